@@ -1,0 +1,255 @@
+"""Command line of ``termination``: parse, call one library function, render.
+
+This is the only module that imports typer and rich.  Library errors
+(:class:`termination.errors.TerminationError`) become one line on stderr and
+exit code 2; ``--traceback`` (anywhere on the command line) shows the trace.
+"""
+
+import functools
+import json
+import sys
+from typing import List, Optional, Tuple
+
+import typer
+from typing_extensions import Annotated
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    pretty_exceptions_enable=False,
+    rich_markup_mode=None,
+    help=(
+        "Which face and atomic termination does a cleaved crystal show? Lists candidate "
+        "Miller faces of a bulk structure, their terminations, step heights, polarity and "
+        "visible corrugation, and ranks them against measurements. Lengths in Å, angles in degrees."
+    ),
+)
+
+_STATE = {"traceback": False}
+
+HYPOTHESIS_NOTE = (
+    "An identification is a ranked hypothesis from a model, not proof: confirm it with an "
+    "independent probe (diffraction, spectroscopy)."
+)
+SAFETY_NOTE = (
+    "Cleaving, vacuum work and cryogens can hurt people: follow your lab's safety rules."
+)
+
+# Shared option types -----------------------------------------------------------------
+StructureArg = Annotated[
+    str,
+    typer.Argument(
+        help="Structure file (CIF, POSCAR, anything ASE reads) or prototype spec NAME:EL1,EL2 "
+        "(see `termination structures`).",
+        show_default=False,
+    ),
+]
+LatticeOpt = Annotated[Optional[float], typer.Option("--a", help="Lattice constant of a prototype, Å.")]
+XOpt = Annotated[Optional[float], typer.Option("--x", help="Free positional parameter of a prototype.")]
+SymprecOpt = Annotated[float, typer.Option("--symprec", help="Symmetry tolerance, Å.")]
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print the result as JSON on stdout.")]
+MaxIndexOpt = Annotated[int, typer.Option("--max-index", help="Largest |h|, |k|, |l| (1 to 12).")]
+MountOpt = Annotated[
+    Optional[Tuple[int, int, int]],
+    typer.Option("--mount", help="Mount face H K L (three integers).", show_default=False),
+]
+
+
+def _fail(message):
+    typer.echo(f"termination: error: {message}", err=True)
+    raise typer.Exit(code=2)
+
+
+def handle_errors(fn):
+    """Turn library errors into one stderr line and exit code 2."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        from termination.errors import TerminationError
+
+        try:
+            return fn(*args, **kwargs)
+        except (TerminationError, OSError) as exc:
+            if _STATE["traceback"]:
+                raise
+            _fail(str(exc).splitlines()[0] if str(exc) else type(exc).__name__)
+
+    return wrapper
+
+
+def _console():
+    from rich.console import Console
+
+    return Console(highlight=False, soft_wrap=False, width=max(100, _terminal_width()))
+
+
+def _terminal_width():
+    import shutil
+
+    return shutil.get_terminal_size((120, 24)).columns
+
+
+def emit_json(record):
+    """Write the JSON serialisation of a result record to stdout."""
+    from termination.report import to_jsonable
+
+    typer.echo(json.dumps(to_jsonable(record), indent=2))
+
+
+def hkl_text(hkl):
+    """'(1 -1 0)' style Miller index."""
+    return "(" + " ".join(str(int(v)) for v in hkl) + ")"
+
+
+def uvw_text(uvw):
+    return "[" + " ".join(str(int(v)) for v in uvw) + "]"
+
+
+def triple(values):
+    """``--mount 0 0 1`` style option as a tuple, or None."""
+    return None if values is None else tuple(int(v) for v in values)
+
+
+def load(structure, a=None, x=None, symprec=1e-3):
+    from structures import load_structure
+
+    return load_structure(structure, a=a, x=x, symprec=symprec)
+
+
+def print_structure(console, summary):
+    console.print(
+        f"[bold]{summary.name}[/bold] ({summary.origin or summary.formula}) "
+        f"{summary.spacegroup} (No. {summary.spacegroup_number}), {summary.natoms} atoms, "
+        f"a={summary.a:.4f} b={summary.b:.4f} c={summary.c:.4f} Å, "
+        f"α={summary.alpha:.2f} β={summary.beta:.2f} γ={summary.gamma:.2f}°"
+    )
+    if summary.note:
+        console.print(f"[dim]Note: {summary.note}[/dim]")
+
+
+def print_cautions(console, summary=None, hypothesis=False):
+    if summary is not None and summary.caution:
+        console.print(f"[yellow]{summary.caution}[/yellow]")
+    if hypothesis:
+        console.print(f"[dim]{HYPOTHESIS_NOTE}[/dim]")
+
+
+# Commands ----------------------------------------------------------------------------
+
+
+@app.command()
+@handle_errors
+def structures(json_out: JsonOpt = False):
+    """List the built-in prototypes with their Wyckoff sites."""
+    from structures import PROTOTYPES
+
+    rows = [
+        {
+            "name": p.name,
+            "elements": list(p.roles),
+            "spacegroup": p.spacegroup,
+            "number": p.number,
+            "sites": p.wyckoff,
+            "free_parameter_x": p.default_x,
+            "example": p.example,
+            "description": p.description,
+        }
+        for p in PROTOTYPES.values()
+    ]
+    if json_out:
+        typer.echo(json.dumps({"prototypes": rows}, indent=2))
+        return
+    from rich.table import Table
+
+    table = Table(title="Built-in prototypes (NAME:EL1,EL2,... --a A [--x X])")
+    for col in ("name", "elements", "space group", "Wyckoff sites", "x", "example"):
+        table.add_column(col)
+    for r in rows:
+        table.add_row(
+            r["name"],
+            ",".join(r["elements"]),
+            f"{r['spacegroup']} ({r['number']})",
+            r["sites"],
+            "" if r["free_parameter_x"] is None else f"{r['free_parameter_x']:g}",
+            r["example"],
+        )
+    _console().print(table)
+
+
+@app.command()
+@handle_errors
+def planes(
+    structure: StructureArg,
+    a: LatticeOpt = None,
+    x: XOpt = None,
+    max_index: MaxIndexOpt = 3,
+    mount: MountOpt = None,
+    symprec: SymprecOpt = 1e-3,
+    json_out: JsonOpt = False,
+):
+    """Symmetry-distinct faces with spacing d, tilt to the mount face and surface mesh."""
+    from termination.report import planes_report
+
+    crystal = load(structure, a, x, symprec)
+    report = planes_report(crystal, max_index=max_index, mount=triple(mount))
+    if json_out:
+        emit_json(report)
+        return
+    from rich.table import Table
+
+    console = _console()
+    print_structure(console, report.structure)
+    title = f"Faces up to index {report.max_index}"
+    if report.mount:
+        title += f", tilt to mount {hkl_text(report.mount)}"
+    table = Table(title=title)
+    for col in ("face", "d (Å)", "mult."):
+        table.add_column(col, justify="right")
+    if report.mount:
+        table.add_column("tilt (°)", justify="right")
+        table.add_column("variant", justify="right")
+        table.add_column("axis", justify="right")
+    for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)"):
+        table.add_column(col, justify="right")
+    for p in report.planes:
+        cells = [hkl_text(p.hkl), f"{p.d:.4f}", str(p.multiplicity)]
+        if report.mount:
+            cells += [
+                f"{p.tilt:.2f}",
+                hkl_text(p.tilt_variant),
+                "—" if p.tilt_axis is None else uvw_text(p.tilt_axis),
+            ]
+        m = p.mesh
+        cells += [f"{m.a:.4f}", f"{m.b:.4f}", f"{m.gamma:.2f}", f"{m.area:.3f}"]
+        table.add_row(*cells)
+    console.print(table)
+    print_cautions(console, report.structure)
+
+
+# Entry point -------------------------------------------------------------------------
+
+
+def main(argv=None):
+    """Console-script entry point: one-line errors for bad options too."""
+    args = list(sys.argv[1:] if argv is None else argv)
+    if "--traceback" in args:
+        _STATE["traceback"] = True
+        args = [v for v in args if v != "--traceback"]
+    command = typer.main.get_command(app)
+    try:
+        code = command.main(args=args, prog_name="termination", standalone_mode=False)
+    except typer.Exit as exc:  # older releases re-raise instead of returning the code
+        sys.exit(getattr(exc, "exit_code", exc.args[0] if exc.args else 0))
+    except typer.Abort:
+        typer.echo("termination: aborted", err=True)
+        sys.exit(130)
+    except Exception as exc:  # click usage errors (typer vendors click in new releases)
+        if _STATE["traceback"] or not hasattr(exc, "format_message"):
+            raise
+        typer.echo(f"termination: error: {exc.format_message()}", err=True)
+        sys.exit(2)
+    sys.exit(code if isinstance(code, int) else 0)
+
+
+if __name__ == "__main__":
+    main()

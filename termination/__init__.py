@@ -1,0 +1,34 @@
+"""termination: which face and atomic termination does a cleaved crystal show?
+
+The library is pure computation on numpy arrays and small frozen dataclasses.
+It never imports typer or rich; ``cli.py`` renders its results.
+"""
+
+from .crystal import Crystal, build_crystal
+from .errors import (
+    ChargeError,
+    ImageError,
+    MeasurementError,
+    PlaneError,
+    StructureError,
+    TerminationError,
+)
+from .planes import Face, Mesh, distinct_faces, face_geometry, interplanar_angle
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Crystal",
+    "build_crystal",
+    "Face",
+    "Mesh",
+    "distinct_faces",
+    "face_geometry",
+    "interplanar_angle",
+    "TerminationError",
+    "StructureError",
+    "PlaneError",
+    "MeasurementError",
+    "ChargeError",
+    "ImageError",
+]

@@ -1,0 +1,125 @@
+"""Result records that the command line shows, and their JSON form.
+
+Every command builds one of these frozen dataclasses; the table and the
+``--json`` output are two renderings of the same record.
+"""
+
+import dataclasses
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .elements import handling_caution
+from .planes import Mesh, distinct_faces
+
+__all__ = [
+    "StructureSummary",
+    "PlaneRow",
+    "PlanesReport",
+    "summarise_structure",
+    "planes_report",
+    "to_jsonable",
+]
+
+
+@dataclass(frozen=True)
+class StructureSummary:
+    """What was loaded: name, symmetry, cell and handling caution."""
+
+    name: str
+    formula: str
+    origin: str
+    spacegroup: str
+    spacegroup_number: int
+    natoms: int
+    a: float
+    b: float
+    c: float
+    alpha: float
+    beta: float
+    gamma: float
+    note: str | None
+    caution: str | None
+
+
+@dataclass(frozen=True)
+class PlaneRow:
+    """One face in the ``planes`` table."""
+
+    hkl: tuple
+    d: float
+    tilt: float | None
+    tilt_variant: tuple | None
+    tilt_axis: tuple | None
+    multiplicity: int
+    mesh: Mesh
+
+
+@dataclass(frozen=True)
+class PlanesReport:
+    structure: StructureSummary
+    mount: tuple | None
+    max_index: int
+    planes: tuple
+
+
+def summarise_structure(crystal):
+    """:class:`StructureSummary` of a crystal."""
+    a, b, c, alpha, beta, gamma = crystal.cell_parameters
+    return StructureSummary(
+        name=crystal.name,
+        formula=crystal.formula,
+        origin=crystal.origin,
+        spacegroup=crystal.spacegroup,
+        spacegroup_number=crystal.spacegroup_number,
+        natoms=crystal.natoms,
+        a=a,
+        b=b,
+        c=c,
+        alpha=alpha,
+        beta=beta,
+        gamma=gamma,
+        note=crystal.note,
+        caution=handling_caution(crystal.species),
+    )
+
+
+def planes_report(crystal, max_index=3, mount=None):
+    """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`."""
+    faces = distinct_faces(crystal, max_index=max_index, mount=mount)
+    rows = tuple(
+        PlaneRow(
+            hkl=f.hkl,
+            d=f.d,
+            tilt=f.tilt,
+            tilt_variant=f.tilt_variant,
+            tilt_axis=f.tilt_axis,
+            multiplicity=f.multiplicity,
+            mesh=f.mesh,
+        )
+        for f in faces
+    )
+    m = None if mount is None else tuple(int(v) for v in mount)
+    return PlanesReport(summarise_structure(crystal), m, int(max_index), rows)
+
+
+def to_jsonable(obj):
+    """Plain JSON-ready form of a result: dataclasses become dicts, arrays lists.
+
+    Non-finite floats become None, so the output is strict JSON.
+    """
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if f.repr}
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return to_jsonable(obj.tolist())
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    return obj
