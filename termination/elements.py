@@ -65,8 +65,8 @@ def handling_caution(species):
 
     Returns None when none of the elements is listed in :data:`TOXIC`.
 
-    >>> handling_caution(["Ga", "As"])
-    'Caution: As toxic (arsenic). Cleave, polish and heat only under the lab's safety rules (fume hood, gloves, sealed waste).'
+    >>> print(handling_caution(["Ga", "As"]))
+    Caution: As toxic (arsenic). Cleave, polish and heat only under the lab's safety rules (fume hood, gloves, sealed waste).
     """
     found = sorted({s for s in species if s in TOXIC})
     if not found:
