@@ -1,0 +1,159 @@
+"""Atomic layers of a face: atoms projected onto the outward normal over one period.
+
+For a face (hkl) with outward normal n and plane spacing d, every atom has a
+height z = r . n taken modulo d.  Atoms whose heights lie within
+``layer_tol_angstrom`` of each other (single linkage, periodic in z) form one
+atomic layer.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import StructureError
+
+__all__ = ["FaceAtoms", "Layer", "face_atoms", "cluster_layers", "DEFAULT_LAYER_TOL"]
+
+#: Default layer tolerance, Å.
+DEFAULT_LAYER_TOL = 0.1
+
+
+@dataclass(frozen=True, eq=False)
+class FaceAtoms:
+    """The atoms of one surface primitive cell of a face.
+
+    Attributes
+    ----------
+    face : Face
+    species : tuple of str
+        One entry per atom of the primitive cell.
+    heights : (N,) ndarray
+        Height along the outward normal, in [0, d), Å.
+    inplane : (N, 2) ndarray
+        Cartesian in-plane coordinates along the face frame (e1, e2), Å.
+    conventional_index : (N,) int ndarray
+        Index of each atom in the crystal's conventional cell.
+    mesh_inplane : (2, 2) ndarray
+        Mesh vectors a, b as rows in (e1, e2) coordinates, Å.
+    stack_inplane : (2,) ndarray
+        In-plane part of the stacking vector: the copy of an atom one period
+        higher (z + d) sits at ``inplane + stack_inplane``.
+    charges : (N,) ndarray or None
+    """
+
+    face: object
+    species: tuple
+    heights: np.ndarray
+    inplane: np.ndarray
+    conventional_index: np.ndarray
+    mesh_inplane: np.ndarray
+    stack_inplane: np.ndarray
+    charges: np.ndarray | None
+
+    @property
+    def d(self):
+        return self.face.d
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One atomic layer of the period.
+
+    ``height`` is its mean height in [0, d); ``depth`` is measured down from
+    the highest layer of the period; ``atoms`` index :class:`FaceAtoms`;
+    ``composition`` counts atoms per surface primitive cell.
+    """
+
+    height: float
+    depth: float
+    composition: dict
+    atoms: tuple
+
+
+def face_atoms(crystal, face):
+    """Primitive-cell atoms of ``face`` with heights and in-plane coordinates.
+
+    Notes
+    -----
+    The basis M = (mesh a, mesh b, stacking vector) is a primitive cell of the
+    lattice, so the fractional coordinates s = x M^-1 of the conventional atoms,
+    taken modulo 1, identify the primitive-cell atoms (centring copies
+    coincide).  Then z = s_3 d and the in-plane position is (s M A) projected
+    on the frame (e1, e2).
+    """
+    M = np.vstack([face.mesh_fractional, face.stack_fractional])
+    s = crystal.positions @ np.linalg.inv(M)
+    s -= np.floor(s)
+    s[np.isclose(s, 1.0, atol=1e-8)] = 0.0
+    key = np.round(s, 6) % 1.0
+    _, first = np.unique(key, axis=0, return_index=True)
+    first = np.sort(first)
+    expected = crystal.natoms / len(crystal.centring)
+    if len(first) != round(expected):
+        raise StructureError(
+            f"face {face.hkl}: found {len(first)} atoms per primitive cell, expected {expected:g}; "
+            "the structure's symmetry tolerance may be too loose"
+        )
+    sp = s[first]
+    cart = sp @ (M @ crystal.lattice)
+    frame = face.frame
+    heights = sp[:, 2] * face.d
+    mesh_cart = face.mesh_fractional @ crystal.lattice
+    stack_cart = face.stack_fractional @ crystal.lattice
+    charges = None if crystal.charges is None else crystal.charges[first]
+    return FaceAtoms(
+        face=face,
+        species=tuple(crystal.species[i] for i in first),
+        heights=heights,
+        inplane=cart @ frame[:2].T,
+        conventional_index=first,
+        mesh_inplane=mesh_cart @ frame[:2].T,
+        stack_inplane=stack_cart @ frame[:2].T,
+        charges=charges,
+    )
+
+
+def cluster_layers(heights, period, layer_tol_angstrom=DEFAULT_LAYER_TOL):
+    """Group periodic heights into layers by single linkage.
+
+    Parameters
+    ----------
+    heights : (N,) array_like
+        Heights in [0, period), Å.
+    period : float
+        Period d, Å.
+    layer_tol_angstrom : float
+        Heights closer than this (Å) belong to one layer.
+
+    Returns
+    -------
+    labels : (N,) int ndarray
+        Layer index per atom, layers numbered by increasing mean height.
+    centres : (L,) ndarray
+        Mean height of each layer in [0, period).
+
+    Examples
+    --------
+    >>> labels, centres = cluster_layers([0.0, 0.05, 1.0, 1.98], 2.0, 0.1)
+    >>> labels.tolist(), np.round(centres, 3).tolist()
+    ([0, 0, 1, 0], [0.01, 1.0])
+    """
+    z = np.asarray(heights, dtype=float)
+    order = np.argsort(z, kind="stable")
+    zs = z[order]
+    gaps = np.diff(zs)
+    new = np.concatenate([[0], np.cumsum(gaps > layer_tol_angstrom)])
+    # Periodic wrap: the last cluster joins the first across z = period.
+    if len(zs) > 1 and new[-1] > 0 and (zs[0] + period - zs[-1]) <= layer_tol_angstrom:
+        new[new == new[-1]] = 0
+    labels_sorted = new
+    unwrapped = zs.copy()
+    wrapped = (labels_sorted == 0) & (zs > period / 2)
+    unwrapped[wrapped] -= period
+    n = labels_sorted.max() + 1
+    centres = np.bincount(labels_sorted, weights=unwrapped, minlength=n) / np.bincount(labels_sorted, minlength=n)
+    centres %= period
+    rank = np.argsort(np.argsort(centres, kind="stable"), kind="stable")
+    labels = np.empty(len(z), dtype=int)
+    labels[order] = rank[labels_sorted]
+    return labels, np.sort(centres)
