@@ -209,7 +209,7 @@ def planes(
         table.add_column("tilt (°)", justify="right")
         table.add_column("variant", justify="right")
         table.add_column("axis", justify="right")
-    for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)"):
+    for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)", "terms", "min step (Å)"):
         table.add_column(col, justify="right")
     for p in report.planes:
         cells = [hkl_text(p.hkl), f"{p.d:.4f}", str(p.multiplicity)]
@@ -220,7 +220,8 @@ def planes(
                 "—" if p.tilt_axis is None else uvw_text(p.tilt_axis),
             ]
         m = p.mesh
-        cells += [f"{m.a:.4f}", f"{m.b:.4f}", f"{m.gamma:.2f}", f"{m.area:.3f}"]
+        cells += [f"{m.a:.4f}", f"{m.b:.4f}", f"{m.gamma:.2f}", f"{m.area:.3f}", str(p.terminations),
+                  f"{p.smallest_step:.3f}"]
         table.add_row(*cells)
     console.print(table)
     print_cautions(console, report.structure)

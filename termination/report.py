@@ -12,6 +12,7 @@ import numpy as np
 
 from .elements import handling_caution
 from .planes import Mesh, distinct_faces
+from .terminations import face_terminations
 
 __all__ = [
     "StructureSummary",
@@ -54,6 +55,8 @@ class PlaneRow:
     tilt_axis: tuple | None
     multiplicity: int
     mesh: Mesh
+    terminations: int
+    smallest_step: float
 
 
 @dataclass(frozen=True)
@@ -85,21 +88,29 @@ def summarise_structure(crystal):
     )
 
 
-def planes_report(crystal, max_index=3, mount=None):
-    """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`."""
+def planes_report(crystal, max_index=3, mount=None, **termination_options):
+    """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`.
+
+    ``termination_options`` go to :func:`termination.terminations.face_terminations`.
+    """
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
-    rows = tuple(
-        PlaneRow(
-            hkl=f.hkl,
-            d=f.d,
-            tilt=f.tilt,
-            tilt_variant=f.tilt_variant,
-            tilt_axis=f.tilt_axis,
-            multiplicity=f.multiplicity,
-            mesh=f.mesh,
+    rows = []
+    for f in faces:
+        ft = face_terminations(crystal, f.hkl, face=f, **termination_options)
+        rows.append(
+            PlaneRow(
+                hkl=f.hkl,
+                d=f.d,
+                tilt=f.tilt,
+                tilt_variant=f.tilt_variant,
+                tilt_axis=f.tilt_axis,
+                multiplicity=f.multiplicity,
+                mesh=f.mesh,
+                terminations=len(ft.terminations),
+                smallest_step=ft.smallest_step,
+            )
         )
-        for f in faces
-    )
+    rows = tuple(rows)
     m = None if mount is None else tuple(int(v) for v in mount)
     return PlanesReport(summarise_structure(crystal), m, int(max_index), rows)
 
