@@ -49,6 +49,21 @@ XOpt = Annotated[Optional[float], typer.Option("--x", help="Free positional para
 SymprecOpt = Annotated[float, typer.Option("--symprec", help="Symmetry tolerance, Å.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print the result as JSON on stdout.")]
 MaxIndexOpt = Annotated[int, typer.Option("--max-index", help="Largest |h|, |k|, |l| (1 to 12).")]
+PlaneOpt = Annotated[
+    Optional[Tuple[int, int, int]],
+    typer.Option("--plane", help="Face H K L (three integers).", show_default=False),
+]
+LayerTolOpt = Annotated[float, typer.Option("--layer-tol", help="Atoms within this height form one layer, Å.")]
+BondFactorOpt = Annotated[
+    float, typer.Option("--bond-factor", help="Bonded if closer than this times the sum of covalent radii.")
+]
+BondCutoffOpt = Annotated[
+    Optional[float], typer.Option("--bond-cutoff", help="Fixed bond cutoff, Å (replaces --bond-factor).")
+]
+UnitRatioOpt = Annotated[
+    float,
+    typer.Option("--unit-ratio", help="Cuts costing more than this times the cheapest lie inside a unit."),
+]
 MountOpt = Annotated[
     Optional[Tuple[int, int, int]],
     typer.Option("--mount", help="Mount face H K L (three integers).", show_default=False),
@@ -224,6 +239,83 @@ def planes(
                   f"{p.smallest_step:.3f}"]
         table.add_row(*cells)
     console.print(table)
+    print_cautions(console, report.structure)
+
+
+def require_plane(plane):
+    if plane is None:
+        from termination.errors import PlaneError
+
+        raise PlaneError("--plane H K L is required")
+    return triple(plane)
+
+
+def composition_text(comp):
+    from termination.elements import composition_label
+
+    return composition_label(comp)
+
+
+@app.command()
+@handle_errors
+def terminations(
+    structure: StructureArg,
+    plane: PlaneOpt = None,
+    a: LatticeOpt = None,
+    x: XOpt = None,
+    layer_tol: LayerTolOpt = 0.1,
+    bond_factor: BondFactorOpt = 1.15,
+    bond_cutoff: BondCutoffOpt = None,
+    unit_ratio: UnitRatioOpt = 1.8,
+    max_multiple: Annotated[int, typer.Option("--max-multiple", help="Steps listed up to this many extra periods d.")] = 3,
+    symprec: SymprecOpt = 1e-3,
+    json_out: JsonOpt = False,
+):
+    """Atomic layers, terminations and allowed step heights of one face."""
+    from termination.report import terminations_report
+
+    crystal = load(structure, a, x, symprec)
+    report = terminations_report(
+        crystal,
+        require_plane(plane),
+        layer_tol_angstrom=layer_tol,
+        bond_factor=bond_factor,
+        bond_cutoff_angstrom=bond_cutoff,
+        unit_ratio=unit_ratio,
+        max_multiple=max_multiple,
+    )
+    if json_out:
+        emit_json(report)
+        return
+    from rich.table import Table
+
+    console = _console()
+    print_structure(console, report.structure)
+    m = report.mesh
+    console.print(
+        f"Face {hkl_text(report.plane)}: d = {report.d:.4f} Å, mesh {m.a:.4f} × {m.b:.4f} Å, "
+        f"γ = {m.gamma:.2f}°, {m.area:.3f} Å² per surface cell"
+    )
+    lt = Table(title=f"Layers of one period (tolerance {report.layer_tol_angstrom:g} Å)")
+    for col in ("layer", "depth (Å)", "composition per cell"):
+        lt.add_column(col, justify="right")
+    for i, layer in enumerate(report.layers):
+        lt.add_row(str(i), f"{layer.depth:.4f}", composition_text(layer.composition))
+    console.print(lt)
+    tt = Table(title="Terminations (top layer or unit), by broken-bond density")
+    for col in ("id", "label", "layers", "depth (Å)", "broken bonds/nm²", "weighted/nm²", "equivalent to"):
+        tt.add_column(col, justify="right")
+    for t in report.terminations:
+        eq = "—" if t.equivalent_to is None else f"{t.equivalent_to} ({t.relation})"
+        tt.add_row(t.id, t.label, ",".join(map(str, t.layers)), f"{t.depth:.4f}",
+                   f"{t.broken_bonds_per_nm2:.2f}", f"{t.weighted_bonds_per_nm2:.2f}", eq)
+    console.print(tt)
+    st = Table(title="Allowed step heights, lower terrace → upper terrace (Å)")
+    for col in ("from", "to", "heights"):
+        st.add_column(col, justify="right" if col != "heights" else "left")
+    for step in report.steps:
+        st.add_row(step.from_label, step.to_label, "  ".join(f"{h:.3f}" for h in step.heights))
+    console.print(st)
     print_cautions(console, report.structure)
 
 

@@ -20,6 +20,9 @@ __all__ = [
     "PlanesReport",
     "summarise_structure",
     "planes_report",
+    "LayerRow",
+    "TerminationsReport",
+    "terminations_report",
     "to_jsonable",
 ]
 
@@ -65,6 +68,46 @@ class PlanesReport:
     mount: tuple | None
     max_index: int
     planes: tuple
+
+
+@dataclass(frozen=True)
+class LayerRow:
+    """One atomic layer: depth below the highest layer (Å) and composition per surface cell."""
+
+    depth: float
+    height: float
+    composition: dict
+
+
+@dataclass(frozen=True)
+class TerminationsReport:
+    structure: StructureSummary
+    plane: tuple
+    d: float
+    mesh: Mesh
+    layer_tol_angstrom: float
+    layers: tuple
+    terminations: tuple
+    steps: tuple
+
+
+def terminations_report(crystal, hkl, **options):
+    """Layers, terminations and steps of one face as a :class:`TerminationsReport`.
+
+    ``options`` go to :func:`termination.terminations.face_terminations`.
+    """
+    ft = face_terminations(crystal, hkl, **options)
+    layers = tuple(LayerRow(depth=l.depth, height=l.height, composition=l.composition) for l in ft.layers)
+    return TerminationsReport(
+        structure=summarise_structure(crystal),
+        plane=ft.face.hkl,
+        d=ft.d,
+        mesh=ft.face.mesh,
+        layer_tol_angstrom=ft.layer_tol_angstrom,
+        layers=layers,
+        terminations=ft.terminations,
+        steps=ft.steps,
+    )
 
 
 def summarise_structure(crystal):
@@ -118,10 +161,17 @@ def planes_report(crystal, max_index=3, mount=None, **termination_options):
 def to_jsonable(obj):
     """Plain JSON-ready form of a result: dataclasses become dicts, arrays lists.
 
+    A field's JSON key is its name, or ``metadata["json"]`` where a name is
+    not a valid identifier (``from``).
+
     Non-finite floats become None, so the output is strict JSON.
     """
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
-        return {f.name: to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if f.repr}
+        return {
+            f.metadata.get("json", f.name): to_jsonable(getattr(obj, f.name))
+            for f in dataclasses.fields(obj)
+            if f.repr
+        }
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):

@@ -24,7 +24,7 @@ Rules (documented in the README):
    the top layer.
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 import numpy as np
 
 from .bonds import DEFAULT_BOND_FACTOR, bond_graph
@@ -109,8 +109,8 @@ class Termination:
 class StepHeights:
     """Allowed step heights from a terrace of ``from_label`` up to ``to_label`` (Å)."""
 
-    from_label: str
-    to_label: str
+    from_label: str = field(metadata={"json": "from"})
+    to_label: str = field(metadata={"json": "to"})
     from_ids: tuple
     to_ids: tuple
     heights: tuple
@@ -470,7 +470,7 @@ def _steps(terminations, layers, d, max_multiple, tol, classes, top_layer):
     steps = []
     for a in reps:
         for b in reps:
-            heights = set()
+            heights = {}
             for ta in by_class[a]:
                 for tb in by_class[b]:
                     za = layers[top_layer[ta.id]].height
@@ -481,14 +481,14 @@ def _steps(terminations, layers, d, max_multiple, tol, classes, top_layer):
                     for n in range(max_multiple + 1):
                         h = delta + n * d
                         if h > max(tol, 1e-6):
-                            heights.add(round(h, 6))
+                            heights.setdefault(round(h, 6), float(h))
             steps.append(
                 StepHeights(
                     from_label=by_class[a][0].label,
                     to_label=by_class[b][0].label,
                     from_ids=tuple(t.id for t in by_class[a]),
                     to_ids=tuple(t.id for t in by_class[b]),
-                    heights=tuple(sorted(heights)),
+                    heights=tuple(sorted(heights.values())),
                 )
             )
     return tuple(steps)
