@@ -242,6 +242,33 @@ def planes(
     print_cautions(console, report.structure)
 
 
+def parse_assignments(items, option, error="MeasurementError"):
+    """``["Na=0.2", "Cl=1"]`` -> ``{"Na": 0.2, "Cl": 1.0}``; one clear error per bad item."""
+    import math
+
+    from termination import errors
+    from termination.elements import check_symbol
+
+    exc = getattr(errors, error)
+    out = {}
+    for item in items or ():
+        name, sep, value = str(item).partition("=")
+        if not sep:
+            raise exc(f"{option} needs ELEMENT=VALUE, got {item!r}")
+        try:
+            symbol = check_symbol(name)
+        except errors.StructureError as e:
+            raise exc(f"{option} {item!r}: {e}") from None
+        try:
+            number = float(value)
+        except ValueError:
+            raise exc(f"{option} {item!r}: {value!r} is not a number") from None
+        if not math.isfinite(number):
+            raise exc(f"{option} {item!r}: value must be finite")
+        out[symbol] = number
+    return out
+
+
 def require_plane(plane):
     if plane is None:
         from termination.errors import PlaneError
@@ -317,6 +344,127 @@ def terminations(
         st.add_row(step.from_label, step.to_label, "  ".join(f"{h:.3f}" for h in step.heights))
     console.print(st)
     print_cautions(console, report.structure)
+
+
+DEMO_STRUCTURE = "half-heusler:Ti,Ni,Sn"
+DEMO_MEASUREMENT = "demo_TiNiSn_001.toml"
+
+
+def _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, steps_file, visible, weight, decay):
+    from termination.measurement import Measurement, parse_value, read_steps
+
+    steps = tuple(parse_value(v) for v in step or ())
+    if steps_file:
+        steps = steps + tuple(read_steps(steps_file))
+    return Measurement(
+        mount=None if mount is None else tuple(int(v) for v in mount),
+        max_index=max_index,
+        tilt=None if tilt is None else parse_value(tilt),
+        row_angle=None if row_angle is None else parse_value(row_angle),
+        spacings=tuple(parse_value(v) for v in spacing or ()),
+        steps=steps,
+        visible=tuple(visible or ()),
+        weights=parse_assignments(weight, "--weight"),
+        decay_length=decay,
+    )
+
+
+def _fmt_criterion(c, unit, digits=2):
+    if c is None:
+        return "—"
+    if c.predicted is None:
+        return f"{c.measured:.{digits}f}{unit}: no prediction"
+    return f"{c.predicted:.{digits}f}{unit} ({c.residual:+.1f}σ)"
+
+
+@app.command()
+@handle_errors
+def match(
+    structure: Annotated[Optional[str], typer.Argument(help="Structure file or prototype spec (omit with --demo).", show_default=False)] = None,
+    demo: Annotated[bool, typer.Option("--demo", help="Run the built-in scenario: a TiNiSn crystal cleaved from a (001) mount.")] = False,
+    measurement: Annotated[Optional[str], typer.Option("--measurement", help="Measurement file (TOML); options override it.")] = None,
+    mount: MountOpt = None,
+    tilt: Annotated[Optional[str], typer.Option("--tilt", help="Terrace inclination to the mount face, e.g. 30+-3 (°).")] = None,
+    spacing: Annotated[Optional[List[str]], typer.Option("--spacing", help="Corrugation periodicity, e.g. 4.6+-0.2 (Å); repeatable.")] = None,
+    row_angle: Annotated[Optional[str], typer.Option("--row-angle", help="Angle between corrugation rows, e.g. 60+-3 (°).")] = None,
+    step: Annotated[Optional[List[str]], typer.Option("--step", help="Step height, e.g. 1.25+-0.1 (Å); repeatable.")] = None,
+    steps: Annotated[Optional[str], typer.Option("--steps", help="File of step heights, one per line (optional sigma column).")] = None,
+    max_index: Annotated[Optional[int], typer.Option("--max-index", help="Largest Miller index of the candidates (default 3).")] = None,
+    visible: Annotated[Optional[List[str]], typer.Option("--visible", help="Only this species shows in the corrugation; repeatable.")] = None,
+    weight: Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")] = None,
+    decay_length: Annotated[Optional[float], typer.Option("--decay-length", help="Decay of visibility with depth, Å.")] = None,
+    charge: Annotated[Optional[List[str]], typer.Option("--charge", help="Formal charge EL=Q for the polarity check; repeatable.")] = None,
+    flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
+    no_reconstructions: Annotated[bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")] = False,
+    top: Annotated[int, typer.Option("--top", help="Show this many candidates.")] = 10,
+    a: LatticeOpt = None,
+    x: XOpt = None,
+    symprec: SymprecOpt = 1e-3,
+    json_out: JsonOpt = False,
+):
+    """Rank which face and termination match the measured tilt, corrugation and steps."""
+    from termination.errors import MeasurementError
+    from termination.matching import MatchModel, match as run_match
+    from termination.measurement import Measurement, merge, read_measurement
+
+    if demo:
+        from structures import bundled
+
+        structure = structure or DEMO_STRUCTURE
+        measurement = measurement or bundled(DEMO_MEASUREMENT)
+    if structure is None:
+        raise MeasurementError("give a STRUCTURE (file or prototype spec), or --demo")
+    base = read_measurement(measurement) if measurement else Measurement()
+    cli_values = _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, steps, visible, weight,
+                                           decay_length)
+    meas = merge(base, cli_values)
+    crystal = load(structure, a, x, symprec)
+    charges = parse_assignments(charge, "--charge", "ChargeError") or None
+    report = run_match(
+        crystal,
+        meas,
+        top=top,
+        model=MatchModel(flat_prior=flat_prior),
+        reconstructions=not no_reconstructions,
+        charges=charges,
+    )
+    if json_out:
+        emit_json(report)
+        return
+    from rich.table import Table
+
+    console = _console()
+    print_structure(console, report.structure)
+    e = report.measurement
+    parts = []
+    if report.mount:
+        parts.append(f"mount {hkl_text(report.mount)}")
+    if e["tilt"]:
+        parts.append(f"tilt {e['tilt']['value']:g}±{e['tilt']['sigma']:g}°")
+    if e["spacings"]:
+        parts.append("spacings " + ", ".join(f"{v['value']:g}±{v['sigma']:g}" for v in e["spacings"]) + " Å")
+    if e["row_angle"]:
+        parts.append(f"row angle {e['row_angle']['value']:g}±{e['row_angle']['sigma']:g}°")
+    if e["steps"]:
+        parts.append("steps " + ", ".join(f"{v['value']:g}" for v in e["steps"]) + " Å")
+    console.print("Measured: " + "; ".join(parts))
+    table = Table(title="Candidate faces and terminations, most probable first")
+    for col in ("rank", "face", "termination", "cell", "p", "tilt (°)", "spacings (Å)", "row angle (°)", "steps (Å)"):
+        table.add_column(col, justify="right", overflow="fold")
+    for r in report.candidates:
+        sp = "; ".join(_fmt_criterion(c, "") for c in r.spacings) or "—"
+        st = "; ".join(_fmt_criterion(c, "") for c in r.steps) or "—"
+        table.add_row(str(r.rank), hkl_text(r.hkl), r.termination, r.cell or "1×1", f"{r.probability:.3f}",
+                      _fmt_criterion(r.tilt, "", 1), sp, _fmt_criterion(r.row_angle, "", 1), st)
+    console.print(table)
+    console.print("[dim]Each cell: predicted value (residual in σ).[/dim]")
+    console.print(f"[bold]{report.verdict}[/bold]")
+    if report.warning:
+        console.print(f"[yellow]{report.warning}[/yellow]")
+    for note in report.notes:
+        console.print(f"[dim]{note}[/dim]")
+    print_cautions(console, report.structure)
+    console.print(f"[dim]{SAFETY_NOTE}[/dim]")
 
 
 # Entry point -------------------------------------------------------------------------
