@@ -25,6 +25,8 @@ Rules (documented in the README):
 """
 
 from dataclasses import dataclass, field
+from functools import lru_cache
+
 import numpy as np
 
 from .bonds import DEFAULT_BOND_FACTOR, bond_graph
@@ -406,12 +408,32 @@ def _crossings(crystal, face, graph, cut_heights):
     return counts, weighted, unit
 
 
+@lru_cache(maxsize=32)
+def _operation_tables(crystal):
+    """Space-group operations in the order preferred for describing relations.
+
+    Cached per crystal (a Crystal is immutable).  Returns the rotations R,
+    the translations t, and the matrices R^-1 acting on row Miller indices,
+    ordered proper rotations first, the identity rotation before the others
+    (a stable sort, so spglib's order is kept within each group).
+    """
+    rots = crystal.rotations
+    improper = np.linalg.det(rots) < 0
+    not_identity = np.trace(rots, axis1=1, axis2=2) != 3
+    order = np.lexsort((not_identity, improper))
+    rinv = np.rint(np.linalg.inv(rots)).astype(np.int64)
+    return rots[order], crystal.translations[order], rinv[order]
+
+
 def _face_operations(crystal, face):
-    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h."""
+    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h.
+
+    In the order of :func:`_operation_tables`.
+    """
+    rots, trans, rinv = _operation_tables(crystal)
     h = np.asarray(face.hkl, dtype=np.int64)
-    rinv = np.rint(np.linalg.inv(crystal.rotations)).astype(np.int64)
     keep = np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1)
-    return crystal.rotations[keep], crystal.translations[keep]
+    return rots[keep], trans[keep]
 
 
 def _describe(crystal, face, R):
@@ -441,21 +463,23 @@ def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
         return k
 
     relations = {}
-    # Prefer proper rotations by the smallest angle when describing a relation.
-    pref = sorted(range(len(rots)), key=lambda n: (np.linalg.det(rots[n]) < 0, int(np.trace(rots[n]) != 3)))
+    # Operations come proper rotations first, identity first, so the first
+    # match of a pair is the simplest description of their relation.
+    allowed = np.asarray(allowed_layers, dtype=int)
+    reach = max(tol, 1e-6)
     for i in allowed_layers:
-        for n in pref:
-            target = (cut_heights[i] + shifts[n]) % d
-            for j in allowed_layers:
-                if j == i:
-                    continue
-                diff = (cut_heights[j] - target + d / 2) % d - d / 2
-                if abs(diff) <= max(tol, 1e-6):
-                    if (i, j) not in relations:
-                        relations[(i, j)] = _describe(crystal, face, rots[n])
-                    ri, rj = find(i), find(j)
-                    if ri != rj:
-                        parent[max(ri, rj)] = min(ri, rj)
+        target = (cut_heights[i] + shifts) % d  # (M,)
+        diff = (cut_heights[allowed][None, :] - target[:, None] + d / 2) % d - d / 2
+        match = np.abs(diff) <= reach  # (M, A)
+        for col in np.flatnonzero(match.any(axis=0)):
+            j = int(allowed[col])
+            if j == i:
+                continue
+            if (i, j) not in relations:
+                relations[(i, j)] = _describe(crystal, face, rots[int(np.argmax(match[:, col]))])
+            ri, rj = find(i), find(j)
+            if ri != rj:
+                parent[max(ri, rj)] = min(ri, rj)
     classes = {k: find(k) for k in allowed_layers}
     return classes, relations
 
