@@ -6,6 +6,7 @@ outward normal is the reciprocal vector G = h b1 + k b2 + l b3.
 """
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -172,22 +173,37 @@ def face_geometry(crystal, hkl, mount=None):
     return _geometry(crystal, h, variants, None if mount is None else check_hkl(mount, "mount"))
 
 
+@lru_cache(maxsize=32)
+def _cell_tables(crystal):
+    """Per-crystal matrices used for every face (cached; a Crystal is immutable).
+
+    Returns the primitive basis in Cartesian rows (Å), the reciprocal rows
+    (1/Å) and the inverse of the lattice matrix.
+    """
+    inverse = np.linalg.inv(crystal.lattice)
+    return crystal.primitive_fractional @ crystal.lattice, crystal.reciprocal, inverse
+
+
+def _cross(a, b):
+    """Cross product of two 3-vectors (np.cross has a large per-call overhead)."""
+    return np.array([a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]])
+
+
 def _geometry(crystal, h, variants, mount):
     P = crystal.primitive_fractional
+    prim_cart, reciprocal, frac_basis_inv = _cell_tables(crystal)
     h_p = primitive_index(rationalise(P @ np.asarray(h, dtype=float), 12))
     U = unimodular_completion(h_p)
-    prim_cart = P @ crystal.lattice
     u = U.T  # rows: stacking, in-plane 1, in-plane 2 (primitive basis)
     v_cart = u @ prim_cart
-    G = np.asarray(h, dtype=float) @ crystal.reciprocal
+    G = np.asarray(h, dtype=float) @ reciprocal
     normal = G / np.linalg.norm(G)
     d = float(v_cart[0] @ normal)
     if d < 0:  # orientation of U's first column is fixed by h_p . u = +1
         raise AssertionError("stacking vector points inward")
     a1, a2 = gauss_reduce(v_cart[1], v_cart[2])
-    if np.cross(a1, a2) @ normal < 0:
+    if _cross(a1, a2) @ normal < 0:
         a2 = -a2
-    frac_basis_inv = np.linalg.inv(crystal.lattice)
     stack = v_cart[0]
     # Shorten the stacking vector with in-plane translations (nearly normal).
     inplane = np.array([a1, a2])
@@ -196,9 +212,9 @@ def _geometry(crystal, h, variants, mount):
     la, lb = float(np.linalg.norm(a1)), float(np.linalg.norm(a2))
     cosg = float(a1 @ a2) / (la * lb)
     gamma = float(np.degrees(np.arccos(np.clip(-abs(cosg), -1.0, 1.0))))
-    area = float(np.linalg.norm(np.cross(a1, a2)))
+    area = float(np.linalg.norm(_cross(a1, a2)))
     e1 = a1 / la
-    frame = np.array([e1, np.cross(normal, e1), normal])
+    frame = np.array([e1, _cross(normal, e1), normal])
     tilt = variant = axis = None
     if mount is not None:
         tilt, variant, axis = tilt_to_mount(crystal, variants, mount)
@@ -302,7 +318,7 @@ def distinct_faces(crystal, max_index=3, mount=None):
     _, first = np.unique(keys, return_index=True)
     faces = []
     for i in first:
-        orbit = {tuple(int(x) for x in v) for v in orbits[i]}
+        orbit = set(map(tuple, orbits[i].tolist()))
         laue = orbit | {tuple(-x for x in v) for v in orbit}
         rep = _representative(orbit, laue)
         faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount))
