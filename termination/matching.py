@@ -22,11 +22,13 @@ tilt
 spacings
     Each measured spacing s_k is one of the K = 5 predicted periodicities p
     (the three shortest lattice-vector lengths of the apparent lattice and
-    its two shortest row spacings), each equally likely:
-    L_k = (1/K) sum_p N(s_k; p, sigma_k).
+    its two shortest row spacings), each equally likely, or an outlier:
+    L_k = (1 - eps) (1/K) sum_p N(s_k; p, sigma_k) + eps / s_max.
 row angle
-    L = N(alpha; gamma', s_alpha) with gamma' whichever of gamma and
-    180° - gamma is closer (rows can be read at either angle).
+    L = (1 - eps) N(alpha; gamma', s_alpha) + eps / 180° with gamma'
+    whichever of gamma and 180° - gamma is closer (rows can be read at
+    either angle).  A termination on which none of the visible species lies
+    predicts no lattice and scores the floors only.
 steps
     Each measured height h is an independent draw from the mixture
     p(h) = (1 - eps) sum_c pi_c N(h; H_c, sigma_h) + eps / h_max over the
@@ -52,7 +54,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import MeasurementError
+from .errors import MeasurementError, StructureError
 from .measurement import Measurement, Value
 from .planes import check_hkl, distinct_faces
 from .report import StructureSummary, summarise_structure
@@ -69,6 +71,7 @@ __all__ = [
     "score",
     "match",
     "effective_measurement",
+    "synthetic_measurement",
 ]
 
 
@@ -322,8 +325,11 @@ def candidate_table(
         log_t = np.array([-model.bond_weight * (t.weighted_bonds_per_nm2 / w_face - 1) for t in ft.terminations])
         log_t -= np.log(np.exp(log_t).sum())
         for t, lt in zip(ft.terminations, log_t):
-            pattern = termination_corrugation(ft, t.id, **vis)
-            lat = pattern.apparent_lattice
+            try:
+                pattern = termination_corrugation(ft, t.id, **vis)
+            except StructureError:  # none of the visible species near this surface
+                pattern = None
+            lat = _NO_LATTICE if pattern is None else pattern.apparent_lattice
             heights, sw, labels = _step_mixture(ft, t, model, None)
             base = dict(
                 hkl=f.hkl, termination=t.label, termination_id=t.id, d=ft.d, tilts=tilts, tilt_variants=variants,
@@ -335,7 +341,7 @@ def candidate_table(
             rows.append(
                 Candidate(
                     cell=None,
-                    periodicities=_periodicities(lat.a, lat.b, lat.gamma, pattern.row_spacings),
+                    periodicities=_periodicities(lat.a, lat.b, lat.gamma, () if pattern is None else pattern.row_spacings),
                     apparent=(lat.a, lat.b, lat.gamma),
                     log_prior=float(log_face + lt + share),
                     polar=polar,
@@ -370,6 +376,13 @@ def candidate_table(
     )
 
 
+class _NoLattice:
+    a = b = gamma = float("nan")
+
+
+_NO_LATTICE = _NoLattice()
+
+
 def _visibility_options(visible, weights, decay_length_angstrom):
     out = {}
     if visible:
@@ -402,7 +415,8 @@ def _logsumexp(x, axis=None):
     x = np.asarray(x, dtype=float)
     m = np.max(x, axis=axis, keepdims=True)
     m = np.where(np.isfinite(m), m, 0.0)
-    out = np.log(np.sum(np.exp(x - m), axis=axis, keepdims=True)) + m
+    with np.errstate(divide="ignore"):
+        out = np.log(np.sum(np.exp(x - m), axis=axis, keepdims=True)) + m
     return np.squeeze(out, axis=axis) if axis is not None else float(out.squeeze())
 
 
@@ -470,12 +484,18 @@ def _terms(table, eff):
         s_m, sig = eff["spacings"][:, 0], eff["spacings"][:, 1]
         s_tot = np.sqrt(sig[None, None, :] ** 2 + (model.model_rel * P[:, :, None]) ** 2)
         lp = _log_normal(s_m[None, None, :], P[:, :, None], s_tot)  # (C, K, M)
-        out["spacings"] = (_logsumexp(lp, axis=1) - np.log(P.shape[1])).sum(axis=1)
+        lp = np.where(np.isnan(lp), -np.inf, lp)  # no visible lattice predicted
+        mix = _logsumexp(lp, axis=1) - np.log(P.shape[1])
+        s_max = max(model.outlier_range_angstrom, 1.5 * float(s_m.max()))
+        eps = model.outlier_fraction
+        out["spacings"] = np.logaddexp(np.log1p(-eps) + mix, np.log(eps / s_max)).sum(axis=1)
     if eff["row_angle"] is not None:
         alpha, s = eff["row_angle"]
         g = np.array([c.apparent[2] for c in cands])
         pred = np.where(np.abs(alpha - g) <= np.abs(alpha - (180 - g)), g, 180 - g)
-        out["row_angle"] = _log_normal(alpha, pred, s)
+        eps = model.outlier_fraction
+        lp = np.where(np.isnan(pred), -np.inf, _log_normal(alpha, pred, s))
+        out["row_angle"] = np.logaddexp(np.log1p(-eps) + lp, np.log(eps / 180.0))
     if len(eff["steps"]):
         H = _pad([c.step_heights for c in cands])
         W = _pad([c.step_weights for c in cands], fill=0.0)
@@ -632,3 +652,56 @@ def match(crystal, measurement, *, top=None, **options):
         opts["decay_length_angstrom"] = measurement.decay_length
     table = candidate_table(crystal, **opts)
     return score(table, measurement, top=top)
+
+
+def synthetic_measurement(table, index, rng, *, tilt_sigma=1.5, spacing_sigma=0.1, row_angle_sigma=3.0,
+                          step_sigma=0.08, n_spacings=2, n_steps=5):
+    """Draw a measurement from the likelihood model of candidate ``index``.
+
+    Used to test recovery and calibration: tilt from a random upward variant,
+    spacings from the candidate's periodicities, row angle from its apparent
+    lattice, steps from its step mixture (with the outlier floor), each with
+    Gaussian noise of the stated sigma plus the model's relative uncertainty.
+
+    Parameters
+    ----------
+    table : CandidateTable
+    index : int
+        Candidate to simulate.
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    Measurement
+    """
+    model = table.model
+    c = table.candidates[index]
+
+    def noisy(mu, s, rel=0.0):
+        return float(mu + rng.normal() * np.hypot(s, rel * mu))
+
+    tilt = None
+    if table.mount is not None and c.tilts:
+        tilt = Value(min(max(noisy(rng.choice(c.tilts), tilt_sigma), 0.0), 90.0), tilt_sigma)
+    spacings = []
+    for _ in range(n_spacings):
+        p = float(rng.choice(c.periodicities))
+        if rng.random() < model.outlier_fraction or not np.isfinite(p):
+            spacings.append(Value(float(rng.uniform(0.5, model.outlier_range_angstrom)), spacing_sigma))
+        else:
+            spacings.append(Value(abs(noisy(p, spacing_sigma, model.model_rel)), spacing_sigma))
+    spacings = tuple(spacings)
+    g = c.apparent[2] if rng.random() < 0.5 else 180.0 - c.apparent[2]
+    if rng.random() < model.outlier_fraction or not np.isfinite(g):
+        g = float(rng.uniform(1.0, 179.0))
+    row_angle = Value(min(max(noisy(g, row_angle_sigma), 1.0), 179.0), row_angle_sigma)
+    heights = []
+    h_max = model.outlier_range_angstrom
+    for _ in range(n_steps):
+        if rng.random() < model.outlier_fraction:
+            heights.append(float(rng.uniform(0.05, h_max)))
+        else:
+            k = rng.choice(len(c.step_heights), p=np.asarray(c.step_weights))
+            heights.append(abs(noisy(c.step_heights[k], step_sigma, model.model_rel)) or 0.01)
+    steps = tuple(Value(h, step_sigma) for h in heights)
+    return Measurement(mount=table.mount, tilt=tilt, row_angle=row_angle, spacings=spacings, steps=steps)
