@@ -377,6 +377,16 @@ def _fmt_criterion(c, unit, digits=2):
     return f"{c.predicted:.{digits}f}{unit} ({c.residual:+.1f}σ)"
 
 
+def _steps_summary(steps):
+    """'4/5 within 2σ, worst +3.1σ' for the step column."""
+    if not steps:
+        return "—"
+    res = [abs(c.residual) for c in steps if c.residual is not None]
+    within = sum(r <= 2 for r in res)
+    worst = max(steps, key=lambda c: abs(c.residual) if c.residual is not None else 0)
+    return f"{within}/{len(steps)} within 2σ, worst {worst.residual:+.1f}σ"
+
+
 @app.command()
 @handle_errors
 def match(
@@ -452,12 +462,13 @@ def match(
     for col in ("rank", "face", "termination", "cell", "p", "tilt (°)", "spacings (Å)", "row angle (°)", "steps (Å)"):
         table.add_column(col, justify="right", overflow="fold")
     for r in report.candidates:
-        sp = "; ".join(_fmt_criterion(c, "") for c in r.spacings) or "—"
-        st = "; ".join(_fmt_criterion(c, "") for c in r.steps) or "—"
+        sp = ", ".join(_fmt_criterion(c, "") for c in r.spacings) or "—"
+        st = _steps_summary(r.steps)
         table.add_row(str(r.rank), hkl_text(r.hkl), r.termination, r.cell or "1×1", f"{r.probability:.3f}",
                       _fmt_criterion(r.tilt, "", 1), sp, _fmt_criterion(r.row_angle, "", 1), st)
     console.print(table)
-    console.print("[dim]Each cell: predicted value (residual in σ).[/dim]")
+    console.print("[dim]Each cell: predicted value (residual in σ); steps: measured heights explained within 2σ. "
+                  "--json gives every criterion.[/dim]")
     console.print(f"[bold]{report.verdict}[/bold]")
     if report.warning:
         console.print(f"[yellow]{report.warning}[/yellow]")
