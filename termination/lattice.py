@@ -126,25 +126,25 @@ def unimodular_completion(h):
     """
     h = [int(x) for x in h]
     n = len(h)
-    U = np.eye(n, dtype=np.int64)
+    # Columns of U as Python int lists: exact, and cheaper than numpy on 3x3.
+    cols = [[int(i == j) for i in range(n)] for j in range(n)]
     row = list(h)
     # Column operations (applied to U as well) reduce row to (g, 0, ..., 0).
     for j in range(1, n):
         while row[j] != 0:
             q = row[0] // row[j]
             row[0] -= q * row[j]
-            U[:, 0] -= q * U[:, j]
+            cols[0] = [a - q * b for a, b in zip(cols[0], cols[j])]
             row[0], row[j] = row[j], row[0]
-            U[:, [0, j]] = U[:, [j, 0]]
-            U[:, j] *= -1  # keep det = +1 after the swap
+            cols[0], cols[j] = cols[j], [-a for a in cols[0]]  # negate to keep det = +1 after the swap
             row[j] = -row[j]
     if row[0] < 0:
         row[0] = -row[0]
-        U[:, 0] *= -1
-        U[:, 1] *= -1
+        cols[0] = [-a for a in cols[0]]
+        cols[1] = [-a for a in cols[1]]
     if row[0] != 1:
         raise ValueError(f"index {tuple(h)} is not primitive (gcd {row[0]})")
-    return U
+    return np.array(cols, dtype=np.int64).T
 
 
 def gauss_reduce(v1, v2):
