@@ -233,6 +233,8 @@ def _upward_tilts(crystal, variants, mount):
 
 def _periodicities(a, b, gamma, row_spacings):
     """K = 5 predicted spacings: three shortest lattice-vector lengths and two row spacings."""
+    if not np.isfinite(a):
+        return (float("nan"),) * 5
     g = np.radians(gamma)
     third = min(np.sqrt(a * a + b * b + 2 * a * b * np.cos(g)), np.sqrt(a * a + b * b - 2 * a * b * np.cos(g)))
     area = a * b * np.sin(g)
@@ -421,13 +423,8 @@ def _logsumexp(x, axis=None):
 
 
 def _log_normal(x, mu, s):
-    return -0.5 * ((x - mu) / s) ** 2 - np.log(s * np.sqrt(2 * np.pi))
-
-
-def _sigma(value, default_rel, default_min):
-    if value.sigma is not None:
-        return value.sigma
-    return max(default_rel * abs(value.value), default_min)
+    with np.errstate(invalid="ignore"):
+        return -0.5 * ((x - mu) / s) ** 2 - np.log(s * np.sqrt(2 * np.pi))
 
 
 def effective_measurement(measurement, model):
@@ -573,7 +570,9 @@ def _nearest(value, options, sigma_of):
         return None, None
     sig = np.array([sigma_of(p) for p in options])
     z = (value - options) / sig
-    i = int(np.argmin(np.abs(z)))
+    if not np.any(np.isfinite(z)):
+        return None, None
+    i = int(np.nanargmin(np.abs(z)))
     return float(options[i]), float(z[i])
 
 
