@@ -262,11 +262,11 @@ def build_crystal(lattice, positions, species, charges=None, *, name=None, sympr
     translations = np.array(sym["translations"], dtype=float) % 1.0
     translations[np.isclose(translations, 1.0, atol=1e-8)] = 0.0
 
-    point_group = [np.eye(3, dtype=np.int64)]
-    for r in rotations:
-        if not any(np.array_equal(r, p) for p in point_group):
-            point_group.append(r)
-    point_group = np.array(point_group)
+    # Distinct rotations in order of first appearance, identity first.
+    _, first = np.unique(rotations.reshape(len(rotations), 9), axis=0, return_index=True)
+    first = np.sort(first)
+    is_identity = np.all(rotations[first] == np.eye(3, dtype=np.int64), axis=(1, 2))
+    point_group = np.concatenate([np.eye(3, dtype=np.int64)[None], rotations[first[~is_identity]]])
 
     identity = np.all(rotations == np.eye(3, dtype=int), axis=(1, 2))
     centring = translations[identity]
