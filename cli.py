@@ -219,11 +219,11 @@ def planes(
         title += f", tilt to mount {hkl_text(report.mount)}"
     table = Table(title=title)
     for col in ("face", "d (Å)", "mult."):
-        table.add_column(col, justify="right")
+        table.add_column(col, justify="right", no_wrap=True)
     if report.mount:
         table.add_column("tilt (°)", justify="right")
-        table.add_column("variant", justify="right")
-        table.add_column("axis", justify="right")
+        table.add_column("variant", justify="right", no_wrap=True)
+        table.add_column("axis", justify="right", no_wrap=True)
     for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)", "terms", "min step (Å)"):
         table.add_column(col, justify="right")
     for p in report.planes:
@@ -460,7 +460,7 @@ def match(
     console.print("Measured: " + "; ".join(parts))
     table = Table(title="Candidate faces and terminations, most probable first")
     for col in ("rank", "face", "termination", "cell", "p", "tilt (°)", "spacings (Å)", "row angle (°)", "steps (Å)"):
-        table.add_column(col, justify="right", overflow="fold")
+        table.add_column(col, justify="right", no_wrap=col in ("face", "termination", "cell"))
     for r in report.candidates:
         sp = ", ".join(_fmt_criterion(c, "") for c in r.spacings) or "—"
         st = _steps_summary(r.steps)
