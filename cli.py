@@ -478,6 +478,108 @@ def match(
     console.print(f"[dim]{SAFETY_NOTE}[/dim]")
 
 
+def length_text(value, digits=3):
+    """A length in Å, or '—' when it is unbounded (stripes, flat patterns)."""
+    import math
+
+    return f"{value:.{digits}f}" if math.isfinite(value) else "—"
+
+
+def lattice_text(lattice):
+    """'2.820 × 2.820 Å, 90.0°' for an apparent lattice."""
+    return f"{length_text(lattice.a)} × {length_text(lattice.b)} Å, {lattice.gamma:.1f}°"
+
+
+def spot_text(g):
+    """'(1/2 0)' for a spot index in units of a*, b*."""
+    from fractions import Fraction
+
+    return "(" + " ".join(str(Fraction(float(v)).limit_denominator(24)) for v in g) + ")"
+
+
+@app.command()
+@handle_errors
+def corrugation(
+    structure: StructureArg,
+    plane: PlaneOpt = None,
+    termination: Annotated[
+        Optional[str], typer.Option("--termination", help="Termination id (T2) or label (SrO); default all.")
+    ] = None,
+    visible: Annotated[
+        Optional[List[str]], typer.Option("--visible", help="Only this species images; repeatable.")
+    ] = None,
+    weight: Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")] = None,
+    decay_length: Annotated[
+        float, typer.Option("--decay-length", help="Decay length λ of the depth weight exp(-depth/λ), Å.")
+    ] = 0.5,
+    depth: Annotated[
+        Optional[float],
+        typer.Option("--depth", help="Atoms down to this depth below the top layer image, Å (default: the top unit)."),
+    ] = None,
+    threshold: Annotated[float, typer.Option("--threshold", help="A spot is visible when |F(G)|/F(0) exceeds this.")] = 0.05,
+    a: LatticeOpt = None,
+    x: XOpt = None,
+    symprec: SymprecOpt = 1e-3,
+    json_out: JsonOpt = False,
+):
+    """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
+    from termination.corrugation import corrugation_report
+
+    crystal = load(structure, a, x, symprec)
+    report = corrugation_report(
+        crystal,
+        require_plane(plane),
+        termination,
+        visible=visible or None,
+        weights=parse_assignments(weight, "--weight", "StructureError"),
+        decay_length_angstrom=decay_length,
+        max_depth_angstrom=depth,
+        threshold=threshold,
+    )
+    if json_out:
+        emit_json(report)
+        return
+    from rich.table import Table
+
+    console = _console()
+    print_structure(console, report.structure)
+    m = report.mesh
+    weights = ", ".join(f"{el}={w:g}" for el, w in report.weights.items())
+    seen = "all species" if report.visible is None else "only " + ", ".join(report.visible)
+    console.print(
+        f"Face {hkl_text(report.plane)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°. "
+        f"Imaging: {seen}{'; weights ' + weights if weights else ''}; λ = {report.decay_length_angstrom:g} Å; "
+        + ("top unit" if report.max_depth_angstrom is None else f"down to {report.max_depth_angstrom:g} Å")
+        + f"; spots above {report.threshold:g} F(0)."
+    )
+    table = Table(title="Apparent lattice per termination (dual of the visible spots)")
+    for col in ("id", "label", "cell", "apparent a × b, γ", "type", "maxima (Å)", "row spacings (Å)",
+                "row angles (°)", "spots"):
+        table.add_column(col, justify="right")
+    for t in report.terminations:
+        for cell, p, kind in [(None, t, t.lattice_type)] + [(r.cell, r, "") for r in t.reconstructions]:
+            table.add_row(
+                t.id if cell is None else "", t.label if cell is None else "", cell or "1×1",
+                lattice_text(p.apparent_lattice), kind, length_text(p.neighbour_distance),
+                "  ".join(length_text(s) for s in p.row_spacings) or "—",
+                "  ".join(f"{v:.1f}" for v in p.row_angles) or "—", str(len(p.spots)),
+            )
+    console.print(table)
+    spots = Table(title="Lowest-order visible spots")
+    for col in ("id", "cell", "(h k) in a*, b*", "|G| (1/Å, no 2π)", "|F|/F(0)"):
+        spots.add_column(col, justify="right")
+    for t in report.terminations:
+        for cell, p in [(None, t)] + [(r.cell, r) for r in t.reconstructions]:
+            shells = sorted({round(s.length, 6) for s in p.spots})[:2]
+            for s in p.spots:
+                if round(s.length, 6) in shells:
+                    spots.add_row(t.id, cell or "1×1", spot_text(s.g), f"{s.length:.4f}", f"{s.intensity:.3f}")
+    console.print(spots)
+    console.print("[dim]A geometric model: which species images at a given bias is not predicted; "
+                  "try --visible and --weight. --json lists every spot.[/dim]")
+    print_cautions(console, report.structure)
+
+
 # Entry point -------------------------------------------------------------------------
 
 

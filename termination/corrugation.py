@@ -38,7 +38,6 @@ __all__ = [
     "pattern_from_sites",
     "lattice_type",
     "cell_notation",
-    "parse_weights",
     "termination_corrugation",
     "supercell_corrugation",
     "corrugation_report",
@@ -454,26 +453,6 @@ def cell_notation(matrix, mesh_inplane, length_tol=1e-3, angle_tol_degrees=0.1):
 
 
 # Input checks -------------------------------------------------------------------------
-
-
-def parse_weights(items):
-    """Parse 'EL=W' strings into a {element: weight} dict.
-
-    >>> parse_weights(["Na=0.2", "cl=1"])
-    {'Na': 0.2, 'Cl': 1.0}
-    """
-    out = {}
-    for item in items or ():
-        text = str(item)
-        el, sep, value = text.partition("=")
-        if not sep:
-            raise StructureError(f"weight must be written EL=W, got {text!r}")
-        try:
-            w = float(value)
-        except ValueError:
-            raise StructureError(f"weight of {el.strip()} must be a number, got {value!r}") from None
-        out[check_symbol(el)] = w
-    return out
 
 
 def _check_options(species, visible, weights, decay, max_depth, threshold, max_order, maximum_fraction, site_tol):

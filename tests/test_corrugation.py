@@ -7,7 +7,6 @@ from termination.corrugation import (
     ApparentLattice,
     cell_notation,
     lattice_type,
-    parse_weights,
     structure_factor,
     supercell_corrugation,
     termination_corrugation,
@@ -415,14 +414,6 @@ def test_bad_supercells_name_the_bad_value(faces):
         supercell_corrugation(ft, "NaCl", [[2, 0], [0, 1]], [[0.0, 0.0]], [0.0], mode="swap")
     with pytest.raises(StructureError, match="already occupied"):
         supercell_corrugation(ft, "NaCl", [[2, 0], [0, 1]], [[0.0, 0.0]], [0.0], mode="add")
-
-
-def test_parse_weights_rejects_malformed_items():
-    assert parse_weights(["na=0.5"]) == {"Na": 0.5}
-    for item, text in [("Na", "'Na'"), ("Na=abc", "'abc'"), ("Qq=1", "Qq")]:
-        with pytest.raises(StructureError) as exc:
-            parse_weights([item])
-        assert text in str(exc.value)
 
 
 def test_lattice_type_of_degenerate_patterns():

@@ -1,0 +1,72 @@
+import json
+
+from typer.testing import CliRunner
+
+import cli
+
+runner = CliRunner()
+
+
+def invoke(*args):
+    return runner.invoke(cli.app, list(args))
+
+
+def test_corrugation_table_shows_the_apparent_lattice():
+    # Rock salt (001), a = 5.64 Å: both ions alike give a/2 = 2.820 Å, the anion
+    # alone the a/sqrt 2 = 3.988 Å mesh (issue 5; geometry of the NaCl layer).
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64")
+    assert r.exit_code == 0, r.output
+    assert "2.820 × 2.820 Å, 90.0°" in r.output and "square" in r.output and "(1 1)" in r.output
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64", "--visible", "Cl")
+    assert r.exit_code == 0 and "3.988 × 3.988 Å, 90.0°" in r.output and "only Cl" in r.output
+
+
+def test_corrugation_json_has_the_issue_fields():
+    # Half-Heusler (111), a = 6.65 Å: hexagonal a/sqrt 2 = 4.70 Å for every
+    # single-species termination (the figure commonly quoted for this family).
+    r = invoke("corrugation", "half-heusler:Ti,Ni,Sn", "--plane", "1", "1", "1", "--a", "6.65", "--json")
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    assert data["plane"] == [1, 1, 1] and len(data["terminations"]) == 3
+    for t in data["terminations"]:
+        assert {"label", "apparent_lattice", "neighbour_distance", "row_spacings", "spots", "reconstructions"} <= set(t)
+        lat = t["apparent_lattice"]
+        assert abs(lat["a"] - 4.702) < 1e-3 and abs(lat["b"] - 4.702) < 1e-3 and abs(lat["gamma"] - 120) < 1e-6
+        assert t["lattice_type"] == "hexagonal"
+        assert {"g", "length", "intensity"} == set(t["spots"][0])
+    # One termination, a weight and a depth: the JSON records the settings.
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64", "--termination", "T1",
+               "--weight", "Na=0.2", "--depth", "3", "--json")
+    data = json.loads(r.stdout)
+    assert data["weights"] == {"Na": 0.2} and data["max_depth_angstrom"] == 3.0
+    (t,) = data["terminations"]
+    spot = {tuple(s["g"]): s["intensity"] for s in t["spots"]}
+    assert abs(t["apparent_lattice"]["a"] - 3.988) < 1e-3 and spot[(1, 0)] > 0.5
+
+
+def test_corrugation_flat_pattern_renders_without_error():
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na")
+    assert r.exit_code == 0, r.output
+    assert "flat" in r.output and "— × — Å" in r.output
+    data = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl",
+                             "--termination", "Na", "--json").stdout)
+    assert data["terminations"][0]["apparent_lattice"]["a"] is None  # inf is not JSON
+
+
+def test_corrugation_bad_inputs_give_one_line_and_exit_code_2():
+    cases = [
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "0"], "(0 0 0)"),
+        (["corrugation", "rocksalt:Na,Cl"], "--plane"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--weight", "Na=-1"], "-1"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--weight", "Na"], "'Na'"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Zz"], "Zz"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "K"], "'K'"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--decay-length", "nan"], "nan"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--threshold", "1.5"], "1.5"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--termination", "Xy"], "'Xy'"),
+    ]
+    for args, text in cases:
+        r = invoke(*args)
+        assert r.exit_code == 2, (args, r.output)
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and text in lines[0] and "Traceback" not in r.output, (args, r.stderr)
