@@ -330,13 +330,16 @@ def terminations(
         lt.add_row(str(i), f"{layer.depth:.4f}", composition_text(layer.composition))
     console.print(lt)
     tt = Table(title="Terminations (top layer or unit), by broken-bond density")
-    for col in ("id", "label", "layers", "depth (Å)", "broken bonds/nm²", "weighted/nm²", "equivalent to"):
+    for col in ("id", "label", "layers", "depth (Å)", "broken bonds/nm²", "weighted/nm²", "equivalent to",
+                "apparent lattice"):
         tt.add_column(col, justify="right")
-    for t in report.terminations:
+    for t, lat in zip(report.terminations, report.apparent_lattices):
         eq = "—" if t.equivalent_to is None else f"{t.equivalent_to} ({t.relation})"
         tt.add_row(t.id, t.label, ",".join(map(str, t.layers)), f"{t.depth:.4f}",
-                   f"{t.broken_bonds_per_nm2:.2f}", f"{t.weighted_bonds_per_nm2:.2f}", eq)
+                   f"{t.broken_bonds_per_nm2:.2f}", f"{t.weighted_bonds_per_nm2:.2f}", eq, lattice_text(lat))
     console.print(tt)
+    console.print("[dim]Apparent lattice: what a topograph shows in the default corrugation model (all species "
+                  "alike, top unit, λ = 0.5 Å); see `termination corrugation`.[/dim]")
     st = Table(title="Allowed step heights, lower terrace → upper terrace (Å)")
     for col in ("from", "to", "heights"):
         st.add_column(col, justify="right" if col != "heights" else "left")

@@ -89,6 +89,7 @@ class TerminationsReport:
     layers: tuple
     terminations: tuple
     steps: tuple
+    apparent_lattices: tuple  # per termination, default corrugation model (termination.corrugation)
 
 
 def terminations_report(crystal, hkl, **options):
@@ -96,8 +97,11 @@ def terminations_report(crystal, hkl, **options):
 
     ``options`` go to :func:`termination.terminations.face_terminations`.
     """
+    from .corrugation import termination_corrugation
+
     ft = face_terminations(crystal, hkl, **options)
     layers = tuple(LayerRow(depth=l.depth, height=l.height, composition=l.composition) for l in ft.layers)
+    apparent = tuple(termination_corrugation(ft, t.id).apparent_lattice for t in ft.terminations)
     return TerminationsReport(
         structure=summarise_structure(crystal),
         plane=ft.face.hkl,
@@ -107,6 +111,7 @@ def terminations_report(crystal, hkl, **options):
         layers=layers,
         terminations=ft.terminations,
         steps=ft.steps,
+        apparent_lattices=apparent,
     )
 
 

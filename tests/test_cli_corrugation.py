@@ -70,3 +70,15 @@ def test_corrugation_bad_inputs_give_one_line_and_exit_code_2():
         assert r.exit_code == 2, (args, r.output)
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and text in lines[0] and "Traceback" not in r.output, (args, r.stderr)
+
+
+def test_terminations_table_shows_the_apparent_lattice_column():
+    # SrTiO3 (001), a = 3.905 Å: TiO2 shows the mesh, SrO (Sr and O alike, the
+    # rock-salt-like layer) a/sqrt 2 = 2.761 Å (two-site structure factor, common practice).
+    r = invoke("terminations", "perovskite:Sr,Ti,O", "--plane", "0", "0", "1", "--a", "3.905")
+    assert r.exit_code == 0, r.output
+    assert "apparent lattice" in r.output
+    assert "3.905 × 3.905 Å, 90.0°" in r.output and "2.761 × 2.761 Å, 90.0°" in r.output
+    data = json.loads(invoke("terminations", "perovskite:Sr,Ti,O", "--plane", "0", "0", "1", "--json").stdout)
+    assert len(data["apparent_lattices"]) == len(data["terminations"])
+    assert {"a", "b", "gamma"} == set(data["apparent_lattices"][0])
