@@ -66,22 +66,23 @@ class Tilt:
     ----------
     macroscopic : float
         Tilt of the plane fitted to all pixels (terraces and steps), deg.
-    terrace : float
+    terrace : float or None
         Tilt of the common terrace plane, deg. This identifies the face.
+        None when the terraces could not be resolved (see the notes).
     azimuth : float
         Direction of steepest ascent of the macroscopic plane, deg in
         [0, 360), measured from +x (columns) towards +y (rows).
-    terrace_azimuth : float
+    terrace_azimuth : float or None
         The same for the terrace plane, deg.
-    terrace_sigma : float
+    terrace_sigma : float or None
         Statistical standard uncertainty of ``terrace``, deg.
     """
 
     macroscopic: float
-    terrace: float
+    terrace: float | None
     azimuth: float
-    terrace_azimuth: float
-    terrace_sigma: float
+    terrace_azimuth: float | None
+    terrace_sigma: float | None
 
 
 @dataclass(frozen=True)
@@ -91,7 +92,9 @@ class Lattice:
     Parameters
     ----------
     a, b : float
-        Lengths of the two shortest independent lattice vectors, a <= b, Å.
+        Lengths of the two shortest independent lattice vectors, a <= b, Å,
+        measured in the terrace plane (the projection onto the scanner plane
+        is stretched back by the terrace tilt).
     gamma : float
         The acute angle between them, deg in (0, 90] (60 for hexagonal).
     sigma_a, sigma_b : float
@@ -205,51 +208,85 @@ def plane_fit(heights, pixel_size):
     px = parse_pixel_size(pixel_size)
     valid = np.isfinite(z)
     labels = valid.astype(np.int32)
-    a, b, c, _ = _common_plane(z, labels, 1, _coordinates(z.shape, px))
+    coords = _coordinates(z.shape, px)
+    a, b, c, _ = _common_plane(z, labels, 1, coords)
     return a, b, float(c[0])
 
 
-def _common_plane(z, labels, n_labels, coords):
+def _plane_slopes(z, valid, coords):
+    """Slopes of the least-squares plane through the finite pixels."""
+    if not valid.all():
+        a, b, _, _ = _common_plane(z, valid.astype(np.intp), 1, coords)
+        return a, b
+    # full grid: centred coordinates make x and y orthogonal, so the sums separate
+    x, y = coords
+    ny, nx = z.shape
+    a = float(x @ z.sum(axis=0)) / (ny * float(x @ x))
+    b = float(y @ z.sum(axis=1)) / (nx * float(y @ y))
+    return a, b
+
+
+def _common_plane(z, labels, n_labels, coords, residual=False):
     """One plane, one offset per label (labels 1..n; 0 excluded).
 
-    Returns slope_x, slope_y, offsets (n,), and a dict of fit statistics.
+    Returns slope_x, slope_y, offsets (n,), and a dict of fit statistics
+    (with the residual image, zero off the labels, when ``residual``).
+
+    Notes
+    -----
+    Works on per-label moments (sums of 1, x, y, z and their products), so
+    no pixel lists are built: with :math:`S_{uv} = \sum_k [\sum_{i\in k}
+    u_i v_i - (\sum_{i\in k} u_i)(\sum_{i\in k} v_i)/N_k]` the slopes solve
+    :math:`[S_{xx}, S_{xy}; S_{xy}, S_{yy}] (a, b)^T = (S_{xz}, S_{yz})^T`.
     """
     x, y = coords
-    mask = labels > 0
-    rows, cols = np.nonzero(mask)
-    lab = labels[rows, cols]
-    xs = x[cols]
-    ys = y[rows]
-    zs = z[rows, cols]
-    n = np.bincount(lab, minlength=n_labels + 1).astype(np.float64)
-    n_safe = np.where(n > 0, n, 1.0)
-    mx = np.bincount(lab, xs, n_labels + 1) / n_safe
-    my = np.bincount(lab, ys, n_labels + 1) / n_safe
-    mz = np.bincount(lab, zs, n_labels + 1) / n_safe
-    xt = xs - mx[lab]
-    yt = ys - my[lab]
-    zt = zs - mz[lab]
-    m = np.array([[xt @ xt, xt @ yt], [xt @ yt, yt @ yt]])
-    rhs = np.array([xt @ zt, yt @ zt])
+    shape = z.shape
+    mn = n_labels + 1
+    lab = labels.ravel().astype(np.intp, copy=False)
+    on = lab > 0
+    zf = np.where(on, z.ravel(), 0.0)
+    xf = np.broadcast_to(x[None, :], shape).ravel()
+    yf = np.broadcast_to(y[:, None], shape).ravel()
+    n = np.bincount(lab, minlength=mn).astype(np.float64)
+    sx = np.bincount(lab, xf, mn)
+    sy = np.bincount(lab, yf, mn)
+    sz = np.bincount(lab, zf, mn)
+    sxx = np.bincount(lab, xf * xf, mn)
+    syy = np.bincount(lab, yf * yf, mn)
+    sxy = np.bincount(lab, xf * yf, mn)
+    sxz = np.bincount(lab, xf * zf, mn)
+    syz = np.bincount(lab, yf * zf, mn)
+    szz = np.bincount(lab, zf * zf, mn)
+    k = slice(1, None)
+    nk = np.where(n[k] > 0, n[k], 1.0)
+
+    def within(uv, u, v):
+        return float(np.sum(uv[k] - u[k] * v[k] / nk))
+
+    Sxx, Syy, Sxy = within(sxx, sx, sx), within(syy, sy, sy), within(sxy, sx, sy)
+    Sxz, Syz, Szz = within(sxz, sx, sz), within(syz, sy, sz), within(szz, sz, sz)
+    m = np.array([[Sxx, Sxy], [Sxy, Syy]])
     try:
-        a, b = np.linalg.solve(m, rhs)
+        a, b = np.linalg.solve(m, np.array([Sxz, Syz]))
     except np.linalg.LinAlgError:
         a, b = 0.0, 0.0
         m = np.eye(2) * np.inf
+    mx, my, mz = sx[k] / nk, sy[k] / nk, sz[k] / nk
     offsets = mz - a * mx - b * my
-    resid = zt - a * xt - b * yt
-    dof = max(resid.size - 2 - n_labels, 1)
-    s2 = float(resid @ resid) / dof
+    rss = Szz - 2 * a * Sxz - 2 * b * Syz + a * a * Sxx + 2 * a * b * Sxy + b * b * Syy
+    dof = max(int(n[k].sum()) - 2 - n_labels, 1)
     stats = {
-        "n": n[1:],
-        "centroid": np.stack([mx[1:], my[1:]], axis=1),
-        "s2": s2,
+        "n": n[k],
+        "centroid": np.stack([mx, my], axis=1),
+        "s2": max(rss, 0.0) / dof,
         "normal": m,
-        "rows": rows,
-        "cols": cols,
-        "resid": resid,
     }
-    return float(a), float(b), offsets[1:], stats
+    if residual:
+        off = np.concatenate([[0.0], offsets])
+        r = z - (a * x[None, :] + b * y[:, None]) - off[labels]
+        r[labels == 0] = 0.0
+        stats["resid_img"] = r
+    return float(a), float(b), offsets, stats
 
 
 def _correlation_factor(shape, labels, stats):
@@ -262,20 +299,23 @@ def _correlation_factor(shape, labels, stats):
     :math:`f = \\frac{1+\\rho_x}{1-\\rho_x}\\,\\frac{1+\\rho_y}{1-\\rho_y}`
     pixels per independent sample.
     """
-    r_img = np.zeros(shape)
-    r_img[stats["rows"], stats["cols"]] = stats["resid"]
-    denom = float(stats["resid"] @ stats["resid"])
+    r_img = stats["resid_img"]
+    # every other row and column is plenty for two correlation coefficients
+    step = 2 if r_img.size > 1_000_000 else 1
+    r_img = r_img[::step, ::step]
+    labels = labels[::step, ::step]
+    denom = float(np.sum(r_img * r_img))
     if denom <= 0:
         return 1.0
     factor = 1.0
-    for axis in (0, 1):
-        a = r_img.take(np.arange(shape[axis] - 1), axis=axis)
-        b = r_img.take(np.arange(1, shape[axis]), axis=axis)
-        la = labels.take(np.arange(shape[axis] - 1), axis=axis)
-        lb = labels.take(np.arange(1, shape[axis]), axis=axis)
-        same = (la == lb) & (la > 0)
-        rho = float(np.sum(a[same] * b[same])) / denom
-        rho = min(max(rho, 0.0), 0.99)
+    for sl_a, sl_b in (
+        ((slice(None), slice(None, -1)), (slice(None), slice(1, None))),
+        ((slice(None, -1), slice(None)), (slice(1, None), slice(None))),
+    ):
+        same = (labels[sl_a] == labels[sl_b]) & (labels[sl_a] > 0)
+        rho = float(np.sum(r_img[sl_a] * r_img[sl_b] * same)) / denom
+        # lag of `step` pixels: rho_1 = rho_step ** (1 / step) for AR(1)
+        rho = min(max(rho, 0.0), 0.99) ** (1.0 / step)
         factor *= (1 + rho) / (1 - rho)
     return factor
 
@@ -284,13 +324,19 @@ def _correlation_factor(shape, labels, stats):
 
 
 def _smooth(z, valid, sigma_px):
-    """Gaussian smoothing that ignores NaN pixels (normalised convolution)."""
-    w = valid.astype(np.float64)
-    num = ndimage.gaussian_filter(np.where(valid, z, 0.0), sigma_px, mode="nearest")
+    """Gaussian smoothing that ignores NaN pixels (normalised convolution).
+
+    Computed in single precision (7 digits are plenty for smoothed heights
+    used to classify pixels), and returned as float64.
+    """
+    if valid.all():
+        return ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest").astype(np.float64)
+    w = valid.astype(np.float32)
+    num = ndimage.gaussian_filter(np.where(valid, z, 0.0).astype(np.float32), sigma_px, mode="nearest")
     den = ndimage.gaussian_filter(w, sigma_px, mode="nearest")
     with np.errstate(invalid="ignore", divide="ignore"):
         out = num / den
-    return np.where(den > 1e-6, out, 0.0)
+    return np.where(den > 1e-4, out, 0.0).astype(np.float64)
 
 
 def _robust_threshold(values, k_sigma):
@@ -345,30 +391,68 @@ class _Terraces:
     offsets: np.ndarray
     stats: dict
     iterations: int
+    dist: np.ndarray | None = None  # distance to the nearest terrace, pixels
+    near: np.ndarray | None = None  # label of the nearest terrace
+
+
+def _bin(z, valid, coords, factor):
+    """Block-average ``factor`` x ``factor`` pixels (NaN-aware); crop the remainder."""
+    if factor == 1:
+        return z, valid, coords
+    ny, nx = z.shape[0] // factor, z.shape[1] // factor
+    zc = np.where(valid, z, 0.0)[: ny * factor, : nx * factor].reshape(ny, factor, nx, factor)
+    wc = valid[: ny * factor, : nx * factor].reshape(ny, factor, nx, factor).sum(axis=(1, 3))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        zc = zc.sum(axis=(1, 3)) / wc
+    x, y = coords
+    xc = x[: nx * factor].reshape(nx, factor).mean(axis=1)
+    yc = y[: ny * factor].reshape(ny, factor).mean(axis=1)
+    return zc, wc > 0, (xc, yc)
+
+
+def _unbin(arr, factor, shape):
+    """Nearest-neighbour upsampling of a binned array back to ``shape``."""
+    if factor == 1:
+        return arr
+    up = np.repeat(np.repeat(arr, factor, axis=0), factor, axis=1)
+    pad = ((0, shape[0] - up.shape[0]), (0, shape[1] - up.shape[1]))
+    return np.pad(up, pad, mode="edge")
 
 
 def _segment(z, valid, coords, px, p):
-    """Iterate level -> histogram -> segment -> refit; return _Terraces."""
-    x, y = coords
-    smooth = _smooth(z, valid, p["edge_smooth_px"])
-    gy, gx = np.gradient(smooth, px[1], px[0])
-    n_valid = int(valid.sum())
+    """Iterate level -> histogram -> segment -> refit; return _Terraces.
+
+    Segmentation runs on a binned copy of large images (``p["bin"]``
+    pixels a side; pixel-valued parameters are scaled to it); the final
+    fit of the plane and the offsets uses every pixel.
+    """
+    factor = p["bin"]
+    zc, vc, cc = _bin(z, valid, coords, factor)
+    pxc = (px[0] * factor, px[1] * factor)
+    xc, yc = cc
+    edge_s = max(p["edge_smooth_px"] / factor, 0.5)
+    smooth = _smooth(zc, vc, edge_s)
+    gy, gx = np.gradient(smooth, pxc[1], pxc[0])
+    # heavier smoothing for the histogram: removes corrugation and noise, while
+    # the blur of the step edges only moves a few pixels between levels
+    smooth_levels = _smooth(zc, vc, max(p["level_smooth_px"] / factor, 0.5))
+    n_valid = int(vc.sum())
     stride = max(1, int(math.sqrt(n_valid / 250_000)))
     sub = (slice(None, None, stride), slice(None, None, stride))
-    vsub = valid[sub]
+    vsub = vc[sub]
     a = float(np.median(gx[sub][vsub]))
     b = float(np.median(gy[sub][vsub]))
-    sigma_s = p["edge_smooth_px"] * float(np.mean(px))
+    sigma_s = edge_s * float(np.mean(pxc))
     floor = 0.2 * p["min_step"] / (math.sqrt(2 * math.pi) * sigma_s)
     min_count = max(p["min_terrace_fraction"] * n_valid, 16)
-    guard = max(1, int(p["edge_guard_px"]))
+    guard = max(1, int(round(p["edge_guard_px"] / factor)))
     size = 2 * guard + 1
     result = None
     for iteration in range(1, p["max_iterations"] + 1):
         g = np.hypot(gx - a, gy - b)
         thr = max(_robust_threshold(g[sub][vsub], p["edge_threshold_sigmas"]), floor)
-        flat = valid & (g <= thr)
-        lev = smooth - (a * x[None, :] + b * y[:, None])
+        flat = vc & (g <= thr)
+        lev = smooth_levels - (a * xc[None, :] + b * yc[:, None])
         bounds = _level_bounds(lev[sub][flat[sub]], p["min_step"], p["min_level_contrast"], min_count / stride**2)
         cls = np.digitize(lev, bounds).astype(np.int32)
         cls[~flat] = -1
@@ -383,26 +467,110 @@ def _segment(z, valid, coords, px, p):
         keep[0] = False
         if not keep.any():
             # nothing large and flat: fall back to every finite pixel as one terrace
-            labels = valid.astype(np.int32)
+            labels = vc.astype(np.int32)
             n = 1
             level_of = np.zeros(1, dtype=int)
         else:
             remap = np.zeros(n + 1, dtype=np.int32)
             remap[keep] = np.arange(1, int(keep.sum()) + 1)
-            first = ndimage.labeled_comprehension(cls, labels, np.nonzero(keep)[0], lambda v: v[0], np.int32, -1)
+            first = np.zeros(n + 1, dtype=np.int32)
+            first[labels.ravel()] = cls.ravel()  # one level per component (interior pixels)
+            level_of = first[keep]
             labels = remap[labels]
             n = int(keep.sum())
-            level_of = np.asarray(first)
-        a_new, b_new, offsets, stats = _common_plane(z, labels, n, coords)
+        a_new, b_new, offsets, stats = _common_plane(zc, labels, n, cc)
         change = math.degrees(max(abs(math.atan(a_new) - math.atan(a)), abs(math.atan(b_new) - math.atan(b))))
         a, b = a_new, b_new
         result = _Terraces(labels, n, level_of, (a, b), offsets, stats, iteration)
         if change < p["slope_tol_deg"]:
             break
-    return result
+    # Final fit on whole terrace regions: every pixel joins its nearest terrace
+    # except near boundaries between levels and at edges. Keeping only pixels
+    # whose noisy height fell inside a level's histogram band would bias the
+    # offsets apart (a selection effect) and overestimate the steps.
+    dist, near = _nearest_terrace(result.labels)
+    lvl = np.concatenate([[-1], result.level_of])[near]
+    boundary = np.zeros(lvl.shape, dtype=bool)
+    dx = lvl[:, 1:] != lvl[:, :-1]
+    dy = lvl[1:, :] != lvl[:-1, :]
+    boundary[:, 1:] |= dx
+    boundary[:, :-1] |= dx
+    boundary[1:, :] |= dy
+    boundary[:-1, :] |= dy
+    g = np.hypot(gx - a, gy - b)
+    thr = max(_robust_threshold(g[sub][vsub], p["edge_threshold_sigmas"]), floor)
+    use = vc & ~ndimage.binary_dilation(g > thr, iterations=guard)
+    if boundary.any():
+        band = int(round((p["edge_guard_px"] + 2.0 * p["edge_smooth_px"]) / factor))
+        use &= ~ndimage.maximum_filter(boundary, size=2 * max(band, 1) + 1, mode="constant")
+    shape = z.shape
+    near = _unbin(near, factor, shape)
+    dist = _unbin(dist, factor, shape) * factor
+    labels = np.where(_unbin(use, factor, shape) & valid, near, 0).astype(np.intp)
+    counts = np.bincount(labels.ravel(), minlength=result.n + 1)
+    if not np.all(counts[1:] > 0):
+        labels = np.where(valid, _unbin(result.labels, factor, shape), 0).astype(np.intp)
+    a, b, offsets, stats = _common_plane(z, labels, result.n, coords, residual=True)
+    return _Terraces(labels, result.n, result.level_of, (a, b), offsets, stats, result.iterations, dist, near)
 
 
-def _adjacent_pairs(labels, n, max_gap_px, min_length_px):
+def _structure_ratio(shape, terr, sigma_px, factor=1):
+    """Large-scale variance of the terrace-fit residual relative to white noise.
+
+    Notes
+    -----
+    With residuals r on the fitted pixels, the white-noise variance is
+    estimated from neighbour differences, :math:`\hat\sigma^2 =
+    \langle (r_{i,j+1} - r_{i,j})^2 \rangle / 2`. Smoothing white noise with a
+    Gaussian of standard deviation :math:`s` pixels leaves
+    :math:`\sigma^2 / (4 \pi s^2)`. The ratio of the observed variance of
+    the smoothed residual to that is about 1 when the fit explains all
+    structure larger than the corrugation, and large when unresolved steps
+    or other relief remain. Corrugation inflates :math:`\hat\sigma^2`, which
+    makes the test conservative (it flags less).
+    """
+    labels = terr.labels
+    r = terr.stats["resid_img"]
+    if factor > 1:
+        # block averages of white noise are white: test on the binned residual
+        ny, nx = shape[0] // factor, shape[1] // factor
+        blk = labels[: ny * factor, : nx * factor].reshape(ny, factor, nx, factor)
+        lo, hi = blk.min(axis=(1, 3)), blk.max(axis=(1, 3))
+        labels = np.where(lo == hi, lo, 0)
+        r = r[: ny * factor, : nx * factor].reshape(ny, factor, nx, factor).mean(axis=(1, 3))
+        r = np.where(labels > 0, r, 0.0)
+        sigma_px = sigma_px / factor
+    on = labels > 0
+    d2, n = 0.0, 0
+    for u, v, lu, lv in (
+        (r[:, 1:], r[:, :-1], labels[:, 1:], labels[:, :-1]),
+        (r[1:, :], r[:-1, :], labels[1:, :], labels[:-1, :]),
+    ):
+        same = (lu == lv) & (lu > 0)
+        diff = u[same] - v[same]
+        d2 += float(diff @ diff)
+        n += diff.size
+    if n == 0:
+        return 1.0
+    noise_var = d2 / n / 2.0
+    w = ndimage.gaussian_filter(on.astype(np.float64), sigma_px, mode="constant")
+    sm = ndimage.gaussian_filter(r, sigma_px, mode="constant")
+    inside = on & (w > 0.9)
+    if not inside.any() or noise_var <= 0:
+        return 1.0
+    observed = float(np.mean((sm[inside] / w[inside]) ** 2))
+    return observed / (noise_var / (4 * math.pi * sigma_px**2))
+
+
+def _nearest_terrace(labels):
+    """Label of the nearest terrace for every pixel and the distance to it, pixels."""
+    if not (labels == 0).any():
+        return np.zeros(labels.shape), labels
+    dist, (ir, ic) = ndimage.distance_transform_edt(labels == 0, return_indices=True)
+    return dist, labels[ir, ic]
+
+
+def _adjacent_pairs(n, dist, near, max_gap_px, min_length_px):
     """Pairs of terraces that meet across a strip no wider than ``max_gap_px``.
 
     Every unlabelled pixel is given to its nearest terrace (within
@@ -411,8 +579,6 @@ def _adjacent_pairs(labels, n, max_gap_px, min_length_px):
     """
     if n < 2:
         return []
-    dist, (ir, ic) = ndimage.distance_transform_edt(labels == 0, return_indices=True)
-    near = labels[ir, ic]
     near = np.where(dist <= max_gap_px / 2.0 + 0.5, near, 0)
     pairs = []
     for u, v in ((near[:, :-1], near[:, 1:]), (near[:-1, :], near[1:, :])):
@@ -421,18 +587,50 @@ def _adjacent_pairs(labels, n, max_gap_px, min_length_px):
         hi = np.maximum(u[d], v[d]).astype(np.int64)
         pairs.append(lo * (n + 1) + hi)
     codes, counts = np.unique(np.concatenate(pairs), return_counts=True)
-    out = [(int(c // (n + 1)), int(c % (n + 1))) for c, k in zip(codes, counts) if k >= min_length_px]
+    return [(int(c // (n + 1)), int(c % (n + 1))) for c, k in zip(codes, counts) if k >= min_length_px]
+
+
+def _flattened(z, valid, terr, near, coords, p):
+    """Terrace-levelled image for the Fourier analysis.
+
+    Every pixel is levelled with the plane and the offset of its nearest
+    terrace. Where the smoothed result stays far from zero (the step edges
+    themselves), pixels are set to zero, and so are NaN pixels. Keeping the
+    corrugation up to the step edges avoids the side bands that blanking
+    whole edge strips would add; removing the edge profiles avoids streaks.
+    """
+    x, y = coords
+    a, b = terr.slope
+    off = np.concatenate([[0.0], terr.offsets])
+    out = z - (a * x[None, :] + b * y[:, None]) - off[near]
+    out[~valid] = 0.0
+    smooth = _smooth(out, valid, p["edge_smooth_px"])
+    step = max(1, int(math.sqrt(z.size / 250_000)))
+    on = terr.labels[::step, ::step] > 0
+    ref = smooth[::step, ::step][on]
+    med = float(np.median(ref))
+    scale = 1.4826 * float(np.median(np.abs(ref - med)))
+    raw = out[::step, ::step][on]
+    raw_med = float(np.median(raw))
+    raw_scale = 1.4826 * float(np.median(np.abs(raw - raw_med)))
+    bad = np.abs(smooth - med) > p["lattice_clip_sigmas"] * max(scale, 1e-12)
+    # one-pixel spikes at the step edges that smoothing dilutes
+    bad |= np.abs(out - raw_med) > p["lattice_clip_sigmas"] * max(raw_scale, 1e-12)
+    guard = int(p["edge_guard_px"])
+    bad = ndimage.maximum_filter(bad, size=2 * guard + 1, mode="constant") | ~valid
+    out[bad] = 0.0
+    out[~bad] -= float(np.mean(out[~bad])) if (~bad).any() else 0.0
     return out
 
 
-def _steps(terr, coords_shape, p):
+def _steps(terr, coords_shape, dist, near, p):
     a, b = terr.slope
     norm = math.sqrt(1 + a * a + b * b)
     st = terr.stats
     f = _correlation_factor(coords_shape, terr.labels, st)
     cov_ab = f * st["s2"] * np.linalg.inv(st["normal"]) if np.all(np.isfinite(st["normal"])) else None
     steps = []
-    for k, l in _adjacent_pairs(terr.labels, terr.n, p["max_step_width_px"], p["min_step_length_px"]):
+    for k, l in _adjacent_pairs(terr.n, dist, near, p["max_step_width_px"], p["min_step_length_px"]):
         i, j = k - 1, l - 1
         if terr.level_of[i] == terr.level_of[j]:
             continue
@@ -491,11 +689,13 @@ def _refine_axis(a_m, a_0, a_p, noise_amp):
     delta = sign * np.clip((2 * alpha - 1) / (alpha + 1), 0.0, 0.5)
     sig_alpha = alpha * noise_amp * np.sqrt(1.0 / a_n**2 + 1.0 / a_0**2)
     sig_delta = 3.0 / (alpha + 1) ** 2 * sig_alpha
-    # width: compare the far neighbour with what the window alone would give
-    a_f = np.minimum(a_p, a_m)
-    expected = _hann_amplitude(1.0 + np.abs(delta)) / _hann_amplitude(delta)
-    broad = np.where(expected > 1e-3, (a_f / a_0 + 1e-12) / np.maximum(expected, 1e-3), 1.0)
-    broad = np.maximum(1.0, np.sqrt(np.maximum(broad, 1.0)))
+    # width: log-curvature of the three points against the window's own at this offset
+    d = np.abs(delta)
+    c_meas = np.log(a_m) + np.log(a_p) - 2 * np.log(a_0)
+    c_win = np.log(_hann_amplitude(1 + d)) + np.log(_hann_amplitude(1 - d)) - 2 * np.log(_hann_amplitude(d))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        broad = np.sqrt(np.where(c_meas < 0, c_win / c_meas, np.inf))
+    broad = np.clip(broad, 1.0, 10.0)
     return delta, sig_delta, broad
 
 
@@ -524,35 +724,54 @@ def _radial_background(power, kr, dk):
     return (med / math.log(2.0))[ring]
 
 
-def _lattice(resid, px, p, notes):
+_MIRROR = 3  # columns of negative kx added to the half spectrum
+
+
+def _half_power(resid, workers):
+    """Power spectrum of the Hann-windowed image, kx >= -3 bins, ky centred.
+
+    Returns power (ny, nx // 2 + 1 + _MIRROR); column ``_MIRROR`` is kx = 0
+    and row ``ny // 2`` is ky = 0. The columns of negative kx come from
+    the symmetry P(-k) = P(k) of a real image.
+    """
     ny, nx = resid.shape
     win = np.outer(np.hanning(ny + 1)[:-1], np.hanning(nx + 1)[:-1])
-    spec = sp_fft.fftshift(sp_fft.fft2(resid * win, workers=p["workers"]))
+    spec = sp_fft.rfft2(resid * win, workers=workers)
     power = spec.real**2 + spec.imag**2
-    amp = np.sqrt(power)
+    power = sp_fft.fftshift(power, axes=0)
+    flip = (2 * (ny // 2) - np.arange(ny)) % ny
+    mirror = power[flip][:, _MIRROR:0:-1]
+    return np.concatenate([mirror, power], axis=1)
+
+
+def _lattice(resid, px, slope, p, notes):
+    ny, nx = resid.shape
+    power = _half_power(resid, p["workers"])
+    cy, cx = ny // 2, _MIRROR
     dkx, dky = 1.0 / (nx * px[0]), 1.0 / (ny * px[1])
-    kx = (np.arange(nx) - nx // 2) * dkx
-    ky = (np.arange(ny) - ny // 2) * dky
+    kx = (np.arange(power.shape[1]) - cx) * dkx
+    ky = (np.arange(ny) - cy) * dky
     kr = np.hypot(kx[None, :], ky[:, None])
-    # one half plane: ky > 0, or ky == 0 and kx > 0
-    half = np.zeros((ny, nx), dtype=bool)
-    half[ny // 2 + 1 :, :] = True
-    half[ny // 2, nx // 2 + 1 :] = True
+    # one half plane: kx > 0, or kx == 0 and ky > 0
+    half = np.zeros(power.shape, dtype=bool)
+    half[:, cx + 1 :] = True
+    half[cy + 1 :, cx] = True
     k_min = p["min_periods"] / min(nx * px[0], ny * px[1])
     usable = half & (kr >= k_min)
     usable[[0, -1], :] = False
-    usable[:, [0, -1]] = False
+    usable[:, -1] = False
     if not usable.any():
-        notes.append("no lattice: the image is too small for a periodicity to repeat "
-                     f"{p['min_periods']} times")
+        notes.append(
+            f"no lattice: the image is too small for a periodicity to repeat {p['min_periods']} times"
+        )
         return None
-    bg = _radial_background(power[half], kr[half], max(dkx, dky))
-    bg_img = np.full((ny, nx), np.inf)
-    bg_img[half] = bg
+    bg_img = np.full(power.shape, np.inf)
+    bg_img[half] = _radial_background(power[half], kr[half], max(dkx, dky))
     n_bins = int(half.sum())
     thr = bg_img * math.log(n_bins / p["lattice_false_alarm"])
-    is_max = power == ndimage.maximum_filter(power, size=3, mode="wrap")
-    cand = usable & is_max & (power > thr)
+    cand = usable & (power > thr)
+    if cand.any():
+        cand &= power == ndimage.maximum_filter(power, size=3, mode="nearest")
     rows, cols = np.nonzero(cand)
     if rows.size == 0:
         notes.append(
@@ -560,12 +779,23 @@ def _lattice(resid, px, p, notes):
             f"(false-alarm probability {p['lattice_false_alarm']:g})"
         )
         return None
-    order = np.argsort(power[rows, cols])[::-1][: p["max_peaks"]]
+    order = np.argsort(power[rows, cols])[::-1]
     rows, cols = rows[order], cols[order]
+    streak = _is_streak(power, rows, cols, cx, cy, p["streak_ratio"])
+    if streak.any():
+        notes.append(f"{int(streak.sum())} Fourier maxima on radial streaks (step edges) ignored")
+    rows, cols = rows[~streak][: p["max_peaks"]], cols[~streak][: p["max_peaks"]]
+    if rows.size == 0:
+        notes.append("no lattice: only streaks from step edges in the Fourier transform")
+        return None
     noise_amp = np.sqrt(bg_img[rows, cols] / 2.0)
-    dx, sx, bx = _refine_axis(amp[rows, cols - 1], amp[rows, cols], amp[rows, cols + 1], noise_amp)
-    dy, sy, by = _refine_axis(amp[rows - 1, cols], amp[rows, cols], amp[rows + 1, cols], noise_amp)
-    g = np.stack([(cols - nx // 2 + dx) * dkx, (rows - ny // 2 + dy) * dky], axis=1)
+
+    def amp(r, c):
+        return np.sqrt(power[r, c])
+
+    dx, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
+    dy, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
+    g = np.stack([(cols - cx + dx) * dkx, (rows - cy + dy) * dky], axis=1)
     # FFT grid resolution (uniform over a bin) with the interpolation noise, times broadening
     sig = np.stack(
         [dkx * np.sqrt(1 / 12 + sx**2) * bx, dky * np.sqrt(1 / 12 + sy**2) * by], axis=1
@@ -577,6 +807,13 @@ def _lattice(resid, px, p, notes):
         notes.append(f"no lattice: one periodicity only (rows {d:.3f} Å apart), no second direction")
         return None
     ok = np.all(np.abs(hk - np.rint(hk)) <= p["index_tol"], axis=1)
+    # one peak per index: the strongest (peaks are sorted by power)
+    _, first = np.unique(np.rint(hk[ok]).astype(np.int64), axis=0, return_index=True)
+    keep = np.zeros(ok.sum(), dtype=bool)
+    keep[first] = True
+    ok[np.nonzero(ok)[0][~keep]] = False
+    if (~ok).any():
+        notes.append(f"{int((~ok).sum())} weaker Fourier peaks not on the lattice ignored")
     h = np.rint(hk[ok])
     gm, sm = g[ok], sig[ok]
     gmat = np.empty((2, 2))
@@ -594,13 +831,17 @@ def _lattice(resid, px, p, notes):
         chi2 = float(np.sum(((gm - pred) / sm) ** 2)) / dof
         cov *= max(1.0, chi2)
     params = np.array([gmat[0, 0], gmat[1, 0], gmat[0, 1], gmat[1, 1]])
-    values, transform = _real_lattice(params, None)
+    sl = np.asarray(slope, dtype=np.float64)
+    metric = np.eye(2) + np.outer(sl, sl)  # image (x, y) lifted onto the terrace plane
+    values, transform = _real_lattice(params, None, metric)
     jac = np.empty((4, 4))
     for i in range(4):
         step = 1e-6 * np.max(np.abs(params))
         dp = np.zeros(4)
         dp[i] = step
-        jac[:, i] = (_real_lattice(params + dp, transform)[0] - _real_lattice(params - dp, transform)[0]) / (2 * step)
+        jac[:, i] = (
+            _real_lattice(params + dp, transform, metric)[0] - _real_lattice(params - dp, transform, metric)[0]
+        ) / (2 * step)
     vcov = jac @ cov @ jac.T
     sd = np.sqrt(np.maximum(np.diag(vcov), 0.0))
     a, b, gamma, direction = values
@@ -617,88 +858,95 @@ def _lattice(resid, px, p, notes):
     )
 
 
-def _index_peaks(g, tol):
-    """The sparsest reciprocal basis (from pairs of peaks) indexing the most peaks.
+def _is_streak(power, rows, cols, cx, cy, ratio):
+    """True for maxima that lie on a line through the origin rather than on a spot.
 
-    Returns the (2, 2) basis (rows g1, g2) and the fractional indices (m, 2)
-    of every peak, or (None, None) without two independent peaks.
+    Notes
+    -----
+    The power 2 bins away along the radial direction is compared with the
+    power 2 bins away tangentially. A Bragg spot of a Hann-windowed image
+    falls to about 1e-3 of its peak at 2 bins in every direction, or
+    broadens in every direction; a streak from straight edges (an edge
+    transforms to a line through the origin) stays bright radially only. A
+    maximum is a streak when the weaker radial neighbour exceeds ``ratio``
+    times the peak power and four times the stronger tangential neighbour.
     """
-    m = len(g)
-    best = None
-    for i in range(m):
-        for j in range(i + 1, m):
-            basis = np.array([g[i], g[j]])
-            det = abs(np.linalg.det(basis))
-            sin = det / (np.linalg.norm(g[i]) * np.linalg.norm(g[j]))
-            if sin < 0.2:
-                continue
-            hk = g @ np.linalg.inv(basis)
-            n_ok = int(np.sum(np.all(np.abs(hk - np.rint(hk)) <= tol, axis=1)))
-            score = (n_ok, det)
-            if best is None or score > best[0]:
-                best = (score, basis, hk)
-    if best is None:
+    kx = (cols - cx).astype(np.float64)
+    ky = (rows - cy).astype(np.float64)
+    norm = np.hypot(kx, ky)
+    ux, uy = kx / norm, ky / norm
+    samples = []
+    for dr, dt in ((2, 0), (-2, 0), (0, 2), (0, -2)):
+        sx = cols + dr * ux - dt * uy
+        sy = rows + dr * uy + dt * ux
+        samples.append(ndimage.map_coordinates(power, [sy, sx], order=1, mode="nearest"))
+    radial = np.minimum(samples[0], samples[1])
+    tangential = np.maximum(samples[2], samples[3])
+    return (radial > ratio * power[rows, cols]) & (radial > 4.0 * tangential)
+
+
+def _index_peaks(g, tol):
+    """Reciprocal basis from the strongest peaks, and the indices of all peaks.
+
+    ``g`` (m, 2) is sorted by decreasing power. The basis is the strongest
+    peak and the strongest one not parallel to it (angle above ~11.5 deg).
+    Weaker peaks that it does not index (side bands, superstructure spots)
+    are left out and counted in the notes.
+
+    Returns the (2, 2) basis (rows g1, g2, Gauss-reduced) and the fractional
+    indices (m, 2) of every peak, or (None, None) without two independent peaks.
+    """
+    norms = np.hypot(g[:, 0], g[:, 1])
+    second = None
+    for j in range(1, len(g)):
+        sin = abs(g[0, 0] * g[j, 1] - g[0, 1] * g[j, 0]) / (norms[0] * norms[j])
+        if sin > 0.2:
+            second = j
+            break
+    if second is None:
         return None, None
-    basis = best[1]
-    # Gauss-reduce so that indices stay small
-    basis = _reduce(basis)
+    basis = _reduce(np.array([g[0], g[second]]))
     return basis, g @ np.linalg.inv(basis)
 
 
-def _reduce(basis):
+def _reduce(basis, metric=None):
+    """Gauss (Lagrange) reduction of a 2-D basis (rows) under ``metric``."""
+    m = np.eye(2) if metric is None else metric
     u, v = basis[0].copy(), basis[1].copy()
     for _ in range(100):
-        if u @ u > v @ v:
+        if u @ m @ u > v @ m @ v:
             u, v = v, u
-        mu = round(float(u @ v) / float(u @ u))
+        mu = round(float(u @ m @ v) / float(u @ m @ u))
         if mu == 0:
             break
         v = v - mu * u
     return np.array([u, v])
 
 
-def _real_lattice(params, transform):
+def _real_lattice(params, transform, metric):
     """(a, b, gamma, direction) of the reduced real-space lattice from (g1x, g2x, g1y, g2y).
 
-    ``transform`` fixes the integer reduction so that finite differences are smooth.
+    Lengths and angles use ``metric`` (that of the terrace plane, so the
+    foreshortening of the projected image is undone). ``transform`` fixes
+    the integer reduction so that finite differences are smooth.
     """
     gmat = np.array([[params[0], params[2]], [params[1], params[3]]])
     real = np.linalg.inv(gmat).T  # rows: real-space vectors with g_i . a_j = delta_ij
     if transform is None:
-        red = _reduce(real)
-        # make gamma acute
-        if red[0] @ red[1] < 0:
+        red = _reduce(real, metric)
+        if red[0] @ metric @ red[1] < 0:  # make gamma acute
             red[1] = -red[1]
         transform = np.rint(red @ np.linalg.inv(real))
     red = transform @ real
-    la, lb = np.linalg.norm(red[0]), np.linalg.norm(red[1])
-    cosg = float(red[0] @ red[1]) / (la * lb)
+    la = math.sqrt(red[0] @ metric @ red[0])
+    lb = math.sqrt(red[1] @ metric @ red[1])
+    cosg = float(red[0] @ metric @ red[1]) / (la * lb)
     gamma = math.degrees(math.acos(min(1.0, max(-1.0, cosg))))
     direction = math.degrees(math.atan2(red[0][1], red[0][0])) % 180.0
     return np.array([la, lb, gamma, direction]), transform
 
 
 # --------------------------------------------------------------------------- entry point
-
-
-_DEFAULTS = dict(
-    min_step=0.5,
-    edge_smooth_px=2.0,
-    edge_threshold_sigmas=5.0,
-    edge_guard_px=2,
-    min_terrace_fraction=0.01,
-    min_level_contrast=0.5,
-    max_iterations=8,
-    slope_tol_deg=1e-3,
-    max_step_width_px=12.0,
-    min_step_length_px=8,
-    z_calibration_fraction=0.0,
-    lattice_false_alarm=1e-3,
-    min_periods=4,
-    max_peaks=12,
-    index_tol=0.15,
-    workers=-1,
-)
 
 
 def analyse_heightmap(
@@ -709,17 +957,21 @@ def analyse_heightmap(
     edge_smooth_px=2.0,
     edge_threshold_sigmas=5.0,
     edge_guard_px=2,
+    level_smooth_px=6.0,
     min_terrace_fraction=0.01,
     min_level_contrast=0.5,
     max_iterations=8,
     slope_tol_deg=1e-3,
-    max_step_width_px=12.0,
+    max_step_width_px=24.0,
     min_step_length_px=8,
     z_calibration_fraction=0.0,
     lattice_false_alarm=1e-3,
-    min_periods=4,
+    min_periods=6,
     max_peaks=12,
-    index_tol=0.15,
+    index_tol=0.05,
+    lattice_clip_sigmas=4.0,
+    streak_ratio=0.05,
+    max_structure_ratio=3.0,
     progress=None,
 ):
     """Tilt, lattice and step heights of one height map.
@@ -742,6 +994,10 @@ def analyse_heightmap(
     edge_guard_px : int, default 2
         Pixels within this distance of an edge or another level are left out
         of the terrace fit.
+    level_smooth_px : float, default 6.0
+        Gaussian smoothing (standard deviation, pixels) of the image whose
+        histogram gives the terrace levels; it should exceed the corrugation
+        period so that the atomic corrugation does not broaden the levels.
     min_terrace_fraction : float, default 0.01
         Smallest terrace, as a fraction of the finite pixels.
     min_level_contrast : float, default 0.5
@@ -751,7 +1007,7 @@ def analyse_heightmap(
         Level-segment-refit cycles at most.
     slope_tol_deg : float, default 1e-3
         Stop when the terrace plane changes by less than this, degrees.
-    max_step_width_px : float, default 12
+    max_step_width_px : float, default 24
         Terraces farther apart than this (pixels) are not adjacent.
     min_step_length_px : int, default 8
         Two terraces are adjacent when they meet along at least this many pixels.
@@ -760,12 +1016,25 @@ def analyse_heightmap(
         quadrature to each step's statistical sigma.
     lattice_false_alarm : float, default 1e-3
         Probability that pure noise gives one Fourier peak above the threshold.
-    min_periods : int, default 4
+    min_periods : int, default 6
         A periodicity must repeat at least this many times across the image.
     max_peaks : int, default 12
         Strongest Fourier peaks (one half plane) used for the lattice.
-    index_tol : float, default 0.15
+    index_tol : float, default 0.05
         A peak is indexed when its fractional indices lie within this of integers.
+    lattice_clip_sigmas : float, default 4
+        Before the Fourier transform, pixels where the levelled image, raw or
+        smoothed, is further than this many robust standard deviations from
+        zero (the step edges) are set to zero, with a margin of ``edge_guard_px``.
+    streak_ratio : float, default 0.05
+        A Fourier maximum whose power 2 bins away radially exceeds this
+        fraction of its own (and four times the tangential one) lies on a
+        streak from step edges and is not a lattice spot.
+    max_structure_ratio : float, default 3
+        After the terrace fit, the residual smoothed over 8 pixels may carry
+        at most this many times the variance that white noise would leave;
+        above it, relief such as steps hidden by noise remains and the
+        terrace tilt and step heights are not reported.
     progress : callable, optional
         Called as ``progress(fraction, stage)`` with fraction in [0, 1].
 
@@ -822,12 +1091,17 @@ def analyse_heightmap(
         px = parse_pixel_size(pixel_size)
     except ImageError as exc:
         raise ImageError(f"pixel_size: {exc}") from None
-    params = dict(_DEFAULTS)
-    params.update(
+    params = dict(
+        workers=-1,
+        # segment large images on a binned copy (about 1024 x 1024 pixels)
+        bin=max(1, int(round(math.sqrt(z.size / 1024**2)))),
         min_step=min_step_angstrom,
         edge_smooth_px=edge_smooth_px,
         edge_threshold_sigmas=edge_threshold_sigmas,
         edge_guard_px=edge_guard_px,
+        level_smooth_px=level_smooth_px,
+        structure_smooth_px=8.0,
+        max_structure_ratio=max_structure_ratio,
         min_terrace_fraction=min_terrace_fraction,
         min_level_contrast=min_level_contrast,
         max_iterations=max_iterations,
@@ -839,6 +1113,8 @@ def analyse_heightmap(
         min_periods=min_periods,
         max_peaks=max_peaks,
         index_tol=index_tol,
+        lattice_clip_sigmas=lattice_clip_sigmas,
+        streak_ratio=streak_ratio,
     )
     _check_params(params)
     if progress is not None and not callable(progress):
@@ -852,7 +1128,7 @@ def analyse_heightmap(
     valid = np.isfinite(z)
     coords = _coordinates(z.shape, px)
     report(0.0, "plane fit")
-    a0, b0, _, _ = _common_plane(z, valid.astype(np.int32), 1, coords)
+    a0, b0 = _plane_slopes(z, valid, coords)
     macro_tilt, macro_az = _tilt_azimuth(a0, b0)
 
     report(0.1, "terraces")
@@ -861,17 +1137,10 @@ def analyse_heightmap(
     terrace_tilt, terrace_az = _tilt_azimuth(a, b)
 
     report(0.6, "steps")
-    steps, f, cov_ab = _steps(terr, z.shape, params)
+    structure = _structure_ratio(z.shape, terr, params["structure_smooth_px"], params["bin"])
+    dist, near = terr.dist, terr.near
+    steps, f, cov_ab = _steps(terr, z.shape, dist, near, params)
     n_levels = len(set(terr.level_of.tolist()))
-    if n_levels < 2:
-        notes.append(
-            "one height level resolved: a single terrace, or steps hidden by noise; no step heights"
-        )
-    elif not steps:
-        notes.append("several levels but no two adjacent terraces: no step heights")
-    else:
-        notes.append("step sigmas are statistical (fit covariance with pixel correlation)"
-                     + ("" if z_calibration_fraction else "; the scanner's z calibration is not included"))
     slope = math.hypot(a, b)
     if cov_ab is not None and slope > 0:
         u = np.array([a, b]) / slope
@@ -881,14 +1150,32 @@ def analyse_heightmap(
     else:
         sig_slope = float("nan")
     terrace_sigma = math.degrees(sig_slope / (1 + slope * slope))
+    hidden = structure > params["max_structure_ratio"]
+    if hidden:
+        notes.append(
+            f"terrace tilt and steps not determined: relief larger than the corrugation remains after "
+            f"the terrace fit ({structure:.1f} times the noise level), e.g. steps hidden by noise"
+        )
+        terrace_tilt = terrace_az = terrace_sigma = None
+        steps = ()
+    elif n_levels < 2:
+        notes.append("one terrace: no step heights")
+    elif not steps:
+        notes.append("several levels but no two adjacent terraces: no step heights")
+    else:
+        notes.append(
+            "step sigmas are statistical (fit covariance with pixel correlation)"
+            + ("" if z_calibration_fraction else "; the scanner's z calibration is not included")
+        )
     notes.append("tilts are relative to the scanner plane, taken as parallel to the mount face")
 
     report(0.7, "lattice")
-    resid = np.zeros_like(z)
-    on = terr.labels > 0
-    rows, cols = np.nonzero(on)
-    resid[rows, cols] = terr.stats["resid"]
-    lattice = _lattice(resid, px, params, notes)
+    resid = _flattened(z, valid, terr, near, coords, params)
+    if hidden:
+        # keep the unresolved relief out of the Fourier transform
+        resid = resid - _smooth(resid, valid, params["structure_smooth_px"])
+        resid[~valid] = 0.0
+    lattice = _lattice(resid, px, (a, b), params, notes)
     report(1.0, "done")
     tilt = Tilt(
         macroscopic=macro_tilt,
@@ -901,17 +1188,19 @@ def analyse_heightmap(
 
 
 def _check_params(p):
-    positive = ("min_step", "edge_smooth_px", "max_step_width_px", "slope_tol_deg", "index_tol")
+    positive = ("min_step", "edge_smooth_px", "level_smooth_px", "max_step_width_px", "slope_tol_deg", "index_tol")
     for name in positive:
         v = p[name]
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
             raise ImageError(f"{_public(name)} must be a positive number, got {v!r}")
-    fractions = ("min_terrace_fraction", "min_level_contrast", "lattice_false_alarm")
+    fractions = ("min_terrace_fraction", "min_level_contrast", "lattice_false_alarm", "streak_ratio")
     for name in fractions:
         v = p[name]
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:
             raise ImageError(f"{_public(name)} must lie in (0, 1), got {v!r}")
-    for name in ("edge_threshold_sigmas", "z_calibration_fraction"):
+    if not (isinstance(p["max_structure_ratio"], (int, float)) and p["max_structure_ratio"] >= 1):
+        raise ImageError(f"max_structure_ratio must be at least 1, got {p['max_structure_ratio']!r}")
+    for name in ("edge_threshold_sigmas", "z_calibration_fraction", "lattice_clip_sigmas"):
         v = p[name]
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 0:
             raise ImageError(f"{_public(name)} must be a non-negative number, got {v!r}")
@@ -948,7 +1237,10 @@ def to_measurement(analysis, *, mount=None, max_index=None):
     if not isinstance(analysis, HeightMapAnalysis):
         raise ImageError(f"expected a HeightMapAnalysis, got {type(analysis).__name__}")
     t = analysis.tilt
-    tilt = Value(min(max(t.terrace, 0.0), 90.0), t.terrace_sigma if math.isfinite(t.terrace_sigma) else None)
+    tilt = None
+    if t.terrace is not None:
+        sigma = t.terrace_sigma if t.terrace_sigma is not None and math.isfinite(t.terrace_sigma) else None
+        tilt = Value(min(max(t.terrace, 0.0), 90.0), sigma)
     lat = analysis.lattice
     spacings, row_angle = (), None
     if lat is not None:
