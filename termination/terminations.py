@@ -410,30 +410,35 @@ def _crossings(crystal, face, graph, cut_heights):
 
 @lru_cache(maxsize=32)
 def _operation_tables(crystal):
-    """Space-group operations in the order preferred for describing relations.
+    """Per-operation tables of the crystal's space group (cached; a Crystal is immutable).
 
-    Cached per crystal (a Crystal is immutable).  Returns the rotations R,
-    the translations t, and the matrices R^-1 acting on row Miller indices,
-    ordered proper rotations first, the identity rotation before the others
-    (a stable sort, so spglib's order is kept within each group).
+    Returns
+    -------
+    rinv : (M, 3, 3) int ndarray
+        R^-1, acting on row Miller indices (h' = h R^-1).
+    preference : (M,) int ndarray
+        0 for the identity rotation (pure translations), 1 for other proper
+        rotations, 3 for improper ones: the order in which operations are
+        tried when describing how two terminations are related.
     """
     rots = crystal.rotations
     improper = np.linalg.det(rots) < 0
     not_identity = np.trace(rots, axis1=1, axis2=2) != 3
-    order = np.lexsort((not_identity, improper))
     rinv = np.rint(np.linalg.inv(rots)).astype(np.int64)
-    return rots[order], crystal.translations[order], rinv[order]
+    return rinv, 2 * improper.astype(int) + not_identity.astype(int)
+
+
+def _keeps_face(crystal, face):
+    """(M,) bool: the operations with h R^-1 = h."""
+    rinv, _ = _operation_tables(crystal)
+    h = np.asarray(face.hkl, dtype=np.int64)
+    return np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1)
 
 
 def _face_operations(crystal, face):
-    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h.
-
-    In the order of :func:`_operation_tables`.
-    """
-    rots, trans, rinv = _operation_tables(crystal)
-    h = np.asarray(face.hkl, dtype=np.int64)
-    keep = np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1)
-    return rots[keep], trans[keep]
+    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h."""
+    keep = _keeps_face(crystal, face)
+    return crystal.rotations[keep], crystal.translations[keep]
 
 
 def _describe(crystal, face, R):
@@ -452,7 +457,12 @@ def _describe(crystal, face, R):
 
 def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
     """Classes of symmetry-equivalent allowed cuts and the relating operation."""
-    rots, trans = _face_operations(crystal, face)
+    keep = _keeps_face(crystal, face)
+    # Identity first, then proper rotations, then improper ones (stable, so
+    # spglib's order is kept within each group): the first operation that
+    # matches a pair is the simplest description of their relation.
+    order = np.argsort(_operation_tables(crystal)[1][keep], kind="stable")
+    rots, trans = crystal.rotations[keep][order], crystal.translations[keep][order]
     G = np.asarray(face.hkl, dtype=float) @ crystal.reciprocal
     shifts = (trans @ np.asarray(face.hkl, dtype=float)) / np.linalg.norm(G) % d
     parent = {k: k for k in allowed_layers}
@@ -463,8 +473,6 @@ def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
         return k
 
     relations = {}
-    # Operations come proper rotations first, identity first, so the first
-    # match of a pair is the simplest description of their relation.
     allowed = np.asarray(allowed_layers, dtype=int)
     reach = max(tol, 1e-6)
     for i in allowed_layers:
