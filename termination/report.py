@@ -60,6 +60,7 @@ class PlaneRow:
     mesh: Mesh
     terminations: int
     smallest_step: float
+    polar: bool | None = None  # every termination Tasker type III; None without charges (termination.polarity)
 
 
 @dataclass(frozen=True)
@@ -68,6 +69,7 @@ class PlanesReport:
     mount: tuple | None
     max_index: int
     planes: tuple
+    charges: object = None  # termination.charges.ChargeAssignment behind the polar column, or None
 
 
 @dataclass(frozen=True)
@@ -136,11 +138,20 @@ def summarise_structure(crystal):
     )
 
 
-def planes_report(crystal, max_index=3, mount=None, **termination_options):
+def planes_report(crystal, max_index=3, mount=None, charges=None, **termination_options):
     """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`.
 
+    ``charges`` (element -> formal charge), else the file's charges, else the
+    light guess of :func:`termination.charges.assign_charges` (never
+    pymatgen) mark the polar faces; without any, ``polar`` is None.
     ``termination_options`` go to :func:`termination.terminations.face_terminations`.
     """
+    from .charges import assign_charges
+    from .polarity import face_is_polar
+
+    assignment = assign_charges(crystal, charges, use_pymatgen=False, required=False)
+    if assignment is not None:
+        crystal = crystal.with_charges(assignment.per_atom)
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     rows = []
     for f in faces:
@@ -156,11 +167,12 @@ def planes_report(crystal, max_index=3, mount=None, **termination_options):
                 mesh=f.mesh,
                 terminations=len(ft.terminations),
                 smallest_step=ft.smallest_step,
+                polar=None if assignment is None else face_is_polar(ft),
             )
         )
     rows = tuple(rows)
     m = None if mount is None else tuple(int(v) for v in mount)
-    return PlanesReport(summarise_structure(crystal), m, int(max_index), rows)
+    return PlanesReport(summarise_structure(crystal), m, int(max_index), rows, assignment)
 
 
 def to_jsonable(obj):
