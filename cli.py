@@ -520,6 +520,15 @@ def corrugation(
         typer.Option("--depth", help="Atoms down to this depth below the top layer image, Å (default: the top unit)."),
     ] = None,
     threshold: Annotated[float, typer.Option("--threshold", help="A spot is visible when |F(G)|/F(0) exceeds this.")] = 0.05,
+    reconstructions: Annotated[
+        bool,
+        typer.Option("--reconstructions/--no-reconstructions",
+                     help="Add the reconstruction cells of polar terminations (polarity step)."),
+    ] = True,
+    charge: Annotated[
+        Optional[List[str]], typer.Option("--charge", help="Formal charge EL=Q for the polarity step; repeatable.")
+    ] = None,
+    max_cell: Annotated[int, typer.Option("--max-cell", help="Largest reconstruction cell, in 1×1 cells (1 to 12).")] = 4,
     a: LatticeOpt = None,
     x: XOpt = None,
     symprec: SymprecOpt = 1e-3,
@@ -538,6 +547,9 @@ def corrugation(
         decay_length_angstrom=decay_length,
         max_depth_angstrom=depth,
         threshold=threshold,
+        reconstructions=reconstructions,
+        charges=parse_assignments(charge, "--charge", "ChargeError") or None,
+        max_cell=max_cell,
     )
     if json_out:
         emit_json(report)
@@ -556,28 +568,32 @@ def corrugation(
         + f"; spots above {report.threshold:g} F(0)."
     )
     table = Table(title="Apparent lattice per termination (dual of the visible spots)")
-    for col in ("id", "label", "cell", "apparent a × b, γ", "type", "maxima (Å)", "row spacings (Å)",
+    for col in ("id", "label", "cell", "a (Å)", "b (Å)", "γ (°)", "type", "maxima (Å)", "row spacings (Å)",
                 "row angles (°)", "spots"):
-        table.add_column(col, justify="right")
+        table.add_column(col, justify="right", no_wrap=True)
     for t in report.terminations:
-        for cell, p, kind in [(None, t, t.lattice_type)] + [(r.cell, r, "") for r in t.reconstructions]:
+        for p in (t,) + t.reconstructions:
+            lat = p.apparent_lattice
             table.add_row(
-                t.id if cell is None else "", t.label if cell is None else "", cell or "1×1",
-                lattice_text(p.apparent_lattice), kind, length_text(p.neighbour_distance),
-                "  ".join(length_text(s) for s in p.row_spacings) or "—",
-                "  ".join(f"{v:.1f}" for v in p.row_angles) or "—", str(len(p.spots)),
+                t.id if p is t else "", t.label if p is t else "", p.cell or "1×1",
+                length_text(lat.a), length_text(lat.b), f"{lat.gamma:.1f}", p.lattice_type,
+                length_text(p.neighbour_distance), " ".join(length_text(s) for s in p.row_spacings) or "—",
+                " ".join(f"{v:.1f}" for v in p.row_angles) or "—", str(len(p.spots)),
             )
     console.print(table)
     spots = Table(title="Lowest-order visible spots")
     for col in ("id", "cell", "(h k) in a*, b*", "|G| (1/Å, no 2π)", "|F|/F(0)"):
         spots.add_column(col, justify="right")
     for t in report.terminations:
-        for cell, p in [(None, t)] + [(r.cell, r) for r in t.reconstructions]:
-            shells = sorted({round(s.length, 6) for s in p.spots})[:2]
+        # Two shells of the 1×1 pattern, the first (fractional-order) shell of each reconstruction.
+        for p in (t,) + t.reconstructions:
+            shells = sorted({round(s.length, 6) for s in p.spots})[: 2 if p is t else 1]
             for s in p.spots:
                 if round(s.length, 6) in shells:
-                    spots.add_row(t.id, cell or "1×1", spot_text(s.g), f"{s.length:.4f}", f"{s.intensity:.3f}")
+                    spots.add_row(t.id, p.cell or "1×1", spot_text(s.g), f"{s.length:.4f}", f"{s.intensity:.3f}")
     console.print(spots)
+    for note in report.notes:
+        console.print(f"[dim]{note}[/dim]")
     console.print("[dim]A geometric model: which species images at a given bias is not predicted; "
                   "try --visible and --weight. --json lists every spot.[/dim]")
     print_cautions(console, report.structure)

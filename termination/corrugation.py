@@ -40,6 +40,7 @@ __all__ = [
     "cell_notation",
     "termination_corrugation",
     "supercell_corrugation",
+    "reconstruction_corrugation",
     "corrugation_report",
 ]
 
@@ -800,19 +801,56 @@ def supercell_corrugation(
     )
 
 
+def reconstruction_corrugation(face_terminations, key, reconstruction, **options):
+    """Corrugation of a reconstruction record of the polarity step.
+
+    Parameters
+    ----------
+    face_terminations : FaceTerminations
+    key : str
+        Termination id or label the reconstruction belongs to.
+    reconstruction : Reconstruction
+        A record with ``matrix``, ``mode``, ``wood`` and the changed sites:
+        every changed atom (``changed_atoms_inplane``, ``changed_atoms_depth``,
+        ``changed_atoms_species``: a whole B6 unit, say) where it has them,
+        else ``changed_inplane`` and ``changed_depth``.
+    **options
+        As in :func:`supercell_corrugation`.
+
+    Returns
+    -------
+    CorrugationPattern
+        ``cell`` is the record's Wood notation, or the matrix notation.
+    """
+    r = reconstruction
+    inplane = getattr(r, "changed_atoms_inplane", None)
+    if inplane is None:
+        inplane, depth, species = r.changed_inplane, r.changed_depth, getattr(r, "changed_species", None)
+    else:
+        depth, species = r.changed_atoms_depth, r.changed_atoms_species
+    if r.mode == "remove":
+        species = None  # vacancies are matched to the atoms themselves
+    return supercell_corrugation(
+        face_terminations, key, r.matrix, inplane, depth, r.mode, changed_species=species,
+        cell=getattr(r, "wood", None), **options,
+    )
+
+
 # Report ------------------------------------------------------------------------------
 
 
 @dataclass(frozen=True)
 class TerminationCorrugation:
-    """One termination's row of the ``corrugation`` report.
+    """One termination's row of the ``corrugation`` report (or one of its reconstruction cells).
 
     The pattern's fields, with the termination id, the Bravais type of the
-    apparent lattice and the patterns of its reconstruction cells.
+    apparent lattice and, for the 1x1 row, the rows of its reconstruction
+    cells (``cell`` None for 1x1).
     """
 
     id: str
     label: str
+    cell: str | None
     apparent_lattice: ApparentLattice
     lattice_type: str
     neighbour_distance: float
@@ -820,6 +858,21 @@ class TerminationCorrugation:
     row_angles: tuple
     spots: tuple
     reconstructions: tuple
+
+
+def _row(key, p, reconstructions=()):
+    return TerminationCorrugation(
+        id=key,
+        label=p.label,
+        cell=p.cell,
+        apparent_lattice=p.apparent_lattice,
+        lattice_type=lattice_type(p.apparent_lattice),
+        neighbour_distance=p.neighbour_distance,
+        row_spacings=p.row_spacings,
+        row_angles=p.row_angles,
+        spots=p.spots,
+        reconstructions=tuple(reconstructions),
+    )
 
 
 @dataclass(frozen=True)
@@ -835,6 +888,25 @@ class CorrugationReport:
     max_depth_angstrom: float | None
     threshold: float
     terminations: tuple
+    notes: tuple
+
+
+def _reconstruction_source(crystal, charges, max_cell):
+    """A function termination id -> reconstruction records, or None with a note why not."""
+    try:
+        from .charges import assign_charges
+        from .polarity import termination_polarity
+    except ImportError:
+        return None, None, "the polarity step is not available: no reconstruction cells"
+    found = assign_charges(crystal, charges, use_pymatgen=False, required=False)
+    if found is None:
+        return None, None, "no formal charges known (give them with --charge EL=Q): no reconstruction cells"
+    charged = crystal.with_charges(found.per_atom)
+
+    def records(ft, key):
+        return termination_polarity(charged, ft, key, max_cell=max_cell).reconstructions
+
+    return charged, records, None
 
 
 def corrugation_report(
@@ -847,7 +919,9 @@ def corrugation_report(
     decay_length_angstrom=DEFAULT_DECAY_LENGTH,
     max_depth_angstrom=None,
     threshold=DEFAULT_THRESHOLD,
-    face_terminations=None,
+    reconstructions=True,
+    charges=None,
+    max_cell=4,
 ):
     """Corrugation of every termination of ``hkl`` (or of one) as a :class:`CorrugationReport`.
 
@@ -859,36 +933,40 @@ def corrugation_report(
         Id or label of one termination; default all.
     visible, weights, decay_length_angstrom, max_depth_angstrom, threshold
         As in :func:`termination_corrugation`.
-    face_terminations : FaceTerminations, optional
-        Precomputed terminations of ``hkl``.
+    reconstructions : bool
+        Add the reconstruction cells that the polarity step proposes for
+        polar (Tasker type III) terminations.
+    charges : dict, optional
+        Formal charges per element for the polarity step; default: the
+        built-in guess (no reconstructions when there is none).
+    max_cell : int
+        Largest supercell index of the reconstruction search.
 
     Returns
     -------
     CorrugationReport
     """
     from .report import summarise_structure
-    from .terminations import face_terminations as build
+    from .terminations import face_terminations
 
-    ft = build(crystal, hkl) if face_terminations is None else face_terminations
+    notes = []
+    records = None
+    if reconstructions:
+        charged, records, note = _reconstruction_source(crystal, charges, max_cell)
+        if note:
+            notes.append(note)
+        crystal = charged if charged is not None else crystal
+    ft = face_terminations(crystal, hkl)
     keys = [t.id for t in ft.terminations] if termination is None else [ft.termination(termination).id]
     options = dict(visible=visible, weights=weights, decay_length_angstrom=decay_length_angstrom,
                    max_depth_angstrom=max_depth_angstrom, threshold=threshold)
     rows = []
     for key in keys:
         p = termination_corrugation(ft, key, **options)
-        rows.append(
-            TerminationCorrugation(
-                id=key,
-                label=p.label,
-                apparent_lattice=p.apparent_lattice,
-                lattice_type=lattice_type(p.apparent_lattice),
-                neighbour_distance=p.neighbour_distance,
-                row_spacings=p.row_spacings,
-                row_angles=p.row_angles,
-                spots=p.spots,
-                reconstructions=(),
-            )
+        recs = () if records is None else tuple(
+            _row(key, reconstruction_corrugation(ft, key, r, **options)) for r in records(ft, key)
         )
+        rows.append(_row(key, p, recs))
     return CorrugationReport(
         structure=summarise_structure(crystal),
         plane=ft.face.hkl,
@@ -899,4 +977,5 @@ def corrugation_report(
         max_depth_angstrom=None if max_depth_angstrom is None else float(max_depth_angstrom),
         threshold=float(threshold),
         terminations=tuple(rows),
+        notes=tuple(notes),
     )

@@ -16,9 +16,31 @@ def test_corrugation_table_shows_the_apparent_lattice():
     # alone the a/sqrt 2 = 3.988 Å mesh (issue 5; geometry of the NaCl layer).
     r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64")
     assert r.exit_code == 0, r.output
-    assert "2.820 × 2.820 Å, 90.0°" in r.output and "square" in r.output and "(1 1)" in r.output
+    row = next(line for line in r.output.splitlines() if "NaCl" in line and "1×1" in line)
+    assert row.split("│")[4:8] == [" 2.820 ", " 2.820 ", "  90.0 ", " square "]
+    assert "(1 1)" in r.output and "(1 0)" not in r.output  # the first-order spot cancels
     r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64", "--visible", "Cl")
-    assert r.exit_code == 0 and "3.988 × 3.988 Å, 90.0°" in r.output and "only Cl" in r.output
+    row = next(line for line in r.output.splitlines() if "NaCl" in line and "1×1" in line)
+    assert r.exit_code == 0 and "only Cl" in r.output and row.split("│")[4:6] == [" 3.988 ", " 3.988 "]
+
+
+def test_corrugation_shows_reconstruction_cells_of_polar_faces():
+    # Rock salt (111) is polar (Tasker type 3); removing half of the top ions in a
+    # (2x1) cell compensates it (Tasker, J. Phys. C 12, 4977 (1979)); the cell's
+    # half-order spots must appear.
+    import pytest
+
+    pytest.importorskip("termination.polarity")
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--termination", "Na", "--json")
+    assert r.exit_code == 0, r.output
+    (t,) = json.loads(r.stdout)["terminations"]
+    cells = {c["cell"]: c for c in t["reconstructions"]}
+    assert "(2×1)" in cells
+    assert any(abs(s["g"][0]) == 0.5 and s["g"][1] == 0 for s in cells["(2×1)"]["spots"])
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--termination", "Na")
+    assert "(2×1)" in r.output and "(1/2 0)" in r.output
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--no-reconstructions", "--json")
+    assert all(t["reconstructions"] == [] for t in json.loads(r.stdout)["terminations"])
 
 
 def test_corrugation_json_has_the_issue_fields():
@@ -47,7 +69,7 @@ def test_corrugation_json_has_the_issue_fields():
 def test_corrugation_flat_pattern_renders_without_error():
     r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na")
     assert r.exit_code == 0, r.output
-    assert "flat" in r.output and "— × — Å" in r.output
+    assert "flat" in r.output and "—" in r.output
     data = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl",
                              "--termination", "Na", "--json").stdout)
     assert data["terminations"][0]["apparent_lattice"]["a"] is None  # inf is not JSON
@@ -64,6 +86,7 @@ def test_corrugation_bad_inputs_give_one_line_and_exit_code_2():
         (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--decay-length", "nan"], "nan"),
         (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--threshold", "1.5"], "1.5"),
         (["corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--termination", "Xy"], "'Xy'"),
+        (["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "13"], "13"),
     ]
     for args, text in cases:
         r = invoke(*args)

@@ -438,3 +438,25 @@ def test_collinear_spots_give_stripes():
     # Order 4 reaches (0 4): a square net of 1 Å x 4 Å... a rectangular 4 x 1 lattice.
     q = pattern_from_sites(sites, np.ones(4), cell, cell, max_order=4.0)
     assert (q.apparent_lattice.a, q.apparent_lattice.b) == pytest.approx((1.0, 4.0))
+
+
+def test_reconstruction_records_of_the_polarity_step(proto):
+    # LaB6 (001) B6 termination: removing every second B6 unit in a c(2x2) cell
+    # (the polarity step's compensating pattern) puts spots at (1/2 1/2); the
+    # whole unit goes, so the ring atoms leave with the apex (geometry).
+    pytest.importorskip("termination.polarity")
+    from termination.charges import assign_charges
+    from termination.corrugation import reconstruction_corrugation
+    from termination.polarity import termination_polarity
+
+    crystal = proto("hexaboride:La,B", a=4.157)
+    charged = crystal.with_charges(assign_charges(crystal, use_pymatgen=False).per_atom)
+    ft = face_terminations(charged, (0, 0, 1))
+    recs = {r.wood: r for r in termination_polarity(charged, ft, "B6", max_cell=2).reconstructions}
+    p = reconstruction_corrugation(ft, "B6", recs["c(2×2)"])
+    assert p.cell == "c(2×2)" and spot(p, (0.5, 0.5)) > 0.5
+    assert p.apparent_lattice.a == pytest.approx(4.157 * R2)
+    # Only La imaging (it lies below the B6 unit): the vacancies do not show.
+    q = reconstruction_corrugation(ft, "B6", recs["c(2×2)"], visible=["La"], max_depth_angstrom=4.0,
+                                   decay_length_angstrom=float("inf"))
+    assert spot(q, (0.5, 0.5)) == 0.0 and q.apparent_lattice.a == pytest.approx(4.157)
