@@ -373,18 +373,8 @@ def lattice_type(lattice, length_tol_angstrom=0.02, angle_tol_degrees=0.5):
     return "oblique"
 
 
-def _root_text(x, tol):
-    r = round(x)
-    if abs(x - r) < tol:
-        return str(int(r))
-    s = round(x * x)
-    if abs(x * x - s) < tol:
-        return f"√{int(s)}"
-    return f"{x:.3g}"
-
-
-def cell_notation(matrix, mesh_inplane, length_tol=1e-3, angle_tol_degrees=0.1):
-    """Wood notation of a supercell, else its matrix notation.
+def cell_notation(matrix, mesh_inplane):
+    """Wood notation of a supercell (:func:`termination.supercells.wood_notation`), else its matrix.
 
     Parameters
     ----------
@@ -392,19 +382,11 @@ def cell_notation(matrix, mesh_inplane, length_tol=1e-3, angle_tol_degrees=0.1):
         Rows: supercell vectors in units of the mesh vectors a, b.
     mesh_inplane : (2, 2) ndarray
         Mesh vectors as rows, Cartesian, Å.
-    length_tol, angle_tol_degrees : float
-        Relative length and angle tolerances of the comparison.
 
     Returns
     -------
     str
-        '(2×1)', 'c(2×2)', '(√3×√3)R30°' or '(2 1 / -1 3)'.
-
-    Notes
-    -----
-    Wood's (m×n)Rθ needs |A1| = m|a|, |A2| = n|b| and both vectors turned by the
-    same θ.  c(m×n) is the centred m a × n b cell: the supercell lattice holds
-    m a, n b and (m a + n b)/2, and |det M| = m n / 2.
+        '(2×1)', 'c(2×2)', '(√3×√3)R30°', or '(2 1 / 0 3)' where no Wood notation applies.
 
     References
     ----------
@@ -413,43 +395,15 @@ def cell_notation(matrix, mesh_inplane, length_tol=1e-3, angle_tol_degrees=0.1):
     Examples
     --------
     >>> sq = np.eye(2) * 3.0
-    >>> cell_notation([[2, 0], [0, 1]], sq), cell_notation([[1, 1], [-1, 1]], sq)
-    ('(2×1)', 'c(2×2)')
+    >>> cell_notation([[2, 0], [0, 1]], sq), cell_notation([[1, 1], [-1, 1]], sq), cell_notation([[2, 1], [0, 3]], sq)
+    ('(2×1)', 'c(2×2)', '(2 1 / 0 3)')
     """
+    from .supercells import wood_notation
+
     M = np.asarray(matrix, dtype=np.int64)
-    mesh = np.asarray(mesh_inplane, float)
-    det = int(round(np.linalg.det(M)))
-    S = M @ mesh
-    la, lb = np.linalg.norm(mesh, axis=1)
-    candidates = []
-    for A1, A2 in ((S[0], S[1]), (S[1], S[0])):
-        for s1 in (1, -1):
-            for s2 in (1, -1):
-                candidates.append((s1 * A1, s2 * A2))
-    rotated = None
-    for A1, A2 in candidates:
-        m, n = np.linalg.norm(A1) / la, np.linalg.norm(A2) / lb
-        t1 = np.degrees(np.arctan2(mesh[0, 0] * A1[1] - mesh[0, 1] * A1[0], mesh[0] @ A1))
-        t2 = np.degrees(np.arctan2(mesh[1, 0] * A2[1] - mesh[1, 1] * A2[0], mesh[1] @ A2))
-        if abs(t1 - t2) > angle_tol_degrees:
-            continue
-        text = f"({_root_text(m, length_tol)}×{_root_text(n, length_tol)})"
-        if abs(t1) < angle_tol_degrees:
-            return text
-        if t1 > 0 and rotated is None:
-            rotated = text + f"R{t1:.3g}°"
-    # Centred rectangular cell c(m×n) of the mesh.
-    inv = np.linalg.inv(M.astype(float))
-    if abs(det) >= 2:
-        for m in range(1, 2 * abs(det) + 1):
-            for n in range(1, 2 * abs(det) + 1):
-                if m * n != 2 * abs(det):
-                    continue
-                pts = np.array([[m, 0], [0, n], [m / 2, n / 2]]) @ inv
-                if np.allclose(pts, np.rint(pts), atol=1e-9):
-                    return f"c({m}×{n})"
-    if rotated is not None:
-        return rotated
+    wood = wood_notation(M, np.asarray(mesh_inplane, float))
+    if wood is not None:
+        return wood.label
     return f"({M[0, 0]} {M[0, 1]} / {M[1, 0]} {M[1, 1]})"
 
 
