@@ -4,6 +4,7 @@ The library is pure computation on numpy arrays and small frozen dataclasses.
 It never imports typer or rich; ``cli.py`` renders its results.
 """
 
+from .corrugation import CorrugationPattern, supercell_corrugation, termination_corrugation
 from .crystal import Crystal, build_crystal
 from .errors import (
     ChargeError,
@@ -25,6 +26,9 @@ __all__ = [
     "distinct_faces",
     "face_geometry",
     "interplanar_angle",
+    "CorrugationPattern",
+    "termination_corrugation",
+    "supercell_corrugation",
     "TerminationError",
     "StructureError",
     "PlaneError",
