@@ -16,7 +16,6 @@ from itertools import combinations
 from math import comb
 
 import numpy as np
-from scipy.special import erfc
 
 from .lattice import row_basis
 
@@ -353,6 +352,8 @@ def ewald_pair_matrix(cell, positions, alpha=None, *, cutoff_erfc=6.0):
     D. E. Parry, Surf. Sci. 49, 433 (1975); L. Bonsall and A. A. Maradudin,
     Phys. Rev. B 15, 1959 (1977).
     """
+    from scipy.special import erfc  # lazy: keeps scipy off the planes/match start-up path
+
     cell = np.asarray(cell, dtype=float)
     pos = np.asarray(positions, dtype=float).reshape(-1, 2)
     area = abs(np.linalg.det(cell))
