@@ -68,6 +68,11 @@ MountOpt = Annotated[
     Optional[Tuple[int, int, int]],
     typer.Option("--mount", help="Mount face H K L (three integers).", show_default=False),
 ]
+ChargeOpt = Annotated[
+    Optional[List[str]],
+    typer.Option("--charge", help="Formal charge EL=Q (3, -0.5, -1/3); repeatable. Default: file or guess.",
+                 show_default=False),
+]
 
 
 def _fail(message):
@@ -199,14 +204,17 @@ def planes(
     x: XOpt = None,
     max_index: MaxIndexOpt = 3,
     mount: MountOpt = None,
+    charge: ChargeOpt = None,
     symprec: SymprecOpt = 1e-3,
     json_out: JsonOpt = False,
 ):
-    """Symmetry-distinct faces with spacing d, tilt to the mount face and surface mesh."""
+    """Symmetry-distinct faces with spacing d, tilt to the mount face, surface mesh and polarity."""
+    from termination.charges import parse_charge_options
     from termination.report import planes_report
 
     crystal = load(structure, a, x, symprec)
-    report = planes_report(crystal, max_index=max_index, mount=triple(mount))
+    report = planes_report(crystal, max_index=max_index, mount=triple(mount),
+                           charges=parse_charge_options(charge) or None)
     if json_out:
         emit_json(report)
         return
@@ -224,7 +232,7 @@ def planes(
         table.add_column("tilt (°)", justify="right")
         table.add_column("variant", justify="right", no_wrap=True)
         table.add_column("axis", justify="right", no_wrap=True)
-    for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)", "terms", "min step (Å)"):
+    for col in ("mesh a (Å)", "b (Å)", "γ (°)", "area (Å²)", "terms", "min step (Å)", "polar"):
         table.add_column(col, justify="right")
     for p in report.planes:
         cells = [hkl_text(p.hkl), f"{p.d:.4f}", str(p.multiplicity)]
@@ -236,9 +244,17 @@ def planes(
             ]
         m = p.mesh
         cells += [f"{m.a:.4f}", f"{m.b:.4f}", f"{m.gamma:.2f}", f"{m.area:.3f}", str(p.terminations),
-                  f"{p.smallest_step:.3f}"]
+                  f"{p.smallest_step:.3f}", "—" if p.polar is None else ("yes" if p.polar else "no")]
         table.add_row(*cells)
     console.print(table)
+    if report.charges is None:
+        console.print("[dim]polar: unknown without formal charges; give --charge EL=Q "
+                      "(see `termination polarity`).[/dim]")
+    else:
+        console.print(f"[dim]polar: every termination Tasker type III; charges {report.charges.text} "
+                      f"({report.charges.method}).[/dim]")
+        if report.charges.caution:
+            console.print(f"[dim]Note: {report.charges.caution}.[/dim]")
     print_cautions(console, report.structure)
 
 
@@ -597,6 +613,103 @@ def corrugation(
     console.print("[dim]A geometric model: which species images at a given bias is not predicted; "
                   "try --visible and --weight. --json lists every spot.[/dim]")
     print_cautions(console, report.structure)
+
+
+def fraction_text(f):
+    """'1/2' for 0.5: a compensation as a small fraction."""
+    from fractions import Fraction
+
+    fr = Fraction(abs(f)).limit_denominator(24)
+    return f"{fr.numerator}/{fr.denominator}" if abs(float(fr) - abs(f)) < 1e-6 else f"{abs(f):.4g}"
+
+
+def compensation_text(t):
+    """'remove 1/2 of the top layer (Na)' for a termination's polarity."""
+    if t.tasker_type != "III":
+        return "none needed"
+    if t.compensation is None:
+        return "not by the top sites"
+    verb = "remove" if t.compensation < 0 else "add"
+    return f"{verb} {fraction_text(t.compensation)} of the {t.sites} ({t.site_label})"
+
+
+@app.command()
+@handle_errors
+def polarity(
+    structure: StructureArg,
+    plane: PlaneOpt = None,
+    max_index: Annotated[
+        Optional[int], typer.Option("--max-index", help="All faces up to this index (1 to 12; default 2).",
+                                    show_default=False)
+    ] = None,
+    charge: ChargeOpt = None,
+    max_cell: Annotated[
+        int, typer.Option("--max-cell", help="Largest reconstruction cell, in 1×1 cells (1 to 12).")
+    ] = 4,
+    a: LatticeOpt = None,
+    x: XOpt = None,
+    symprec: SymprecOpt = 1e-3,
+    json_out: JsonOpt = False,
+):
+    """Layer charges, dipole, Tasker type, compensating charge and reconstruction cells per termination."""
+    from termination.charges import parse_charge_options
+    from termination.polarity import polarity_report
+
+    crystal = load(structure, a, x, symprec)
+    report = polarity_report(crystal, plane=triple(plane), max_index=max_index,
+                             charges=parse_charge_options(charge) or None, max_cell=max_cell)
+    if json_out:
+        emit_json(report)
+        return
+    from rich.table import Table
+
+    console = _console()
+    print_structure(console, report.structure)
+    q = report.charges
+    console.print(f"Formal charges: {q.text} ({q.method}).")
+    if q.caution:
+        console.print(f"[yellow]Note: {q.caution}.[/yellow]")
+    shown = 6
+    for f in report.faces:
+        table = Table(title=f"{hkl_text(f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, "
+                            + ("polar" if f.polar else "not polar"))
+        for col in ("id", "label", "Tasker", "layer charges (e/cell, top first)", "μ/A (e/Å)", "Δq (e/cell)",
+                    "compensation", "cells (best first)"):
+            table.add_column(col, justify="right" if col not in ("compensation", "cells (best first)") else "left")
+        for t in f.terminations:
+            cells = ", ".join(r.wood or matrix_text(r.matrix) for r in t.reconstructions[:3])
+            if len(t.reconstructions) > 3:
+                cells += f", … ({len(t.reconstructions)})"
+            table.add_row(t.id, t.label, t.tasker_type, "  ".join(charge_text(L.charge) for L in t.layers),
+                          f"{t.dipole_per_area:+.4f}", f"{t.compensating_charge:+.3f}", compensation_text(t),
+                          cells or (t.note or "—") if t.tasker_type == "III" else "—")
+        console.print(table)
+        for t in f.terminations:
+            if not t.reconstructions:
+                continue
+            rt = Table(title=f"{hkl_text(f.hkl)} {t.id} {t.label}: cells that {compensation_text(t)}")
+            for col in ("cell", "matrix", "sites", "changed", "patterns", "energy (eV/site)"):
+                rt.add_column(col, justify="right")
+            for r in t.reconstructions[:shown]:
+                rt.add_row(r.wood or "—", matrix_text(r.matrix), str(r.sites), f"{r.changed} ({r.mode})",
+                           str(r.patterns), f"{r.score:.3f}")
+            console.print(rt)
+            if len(t.reconstructions) > shown:
+                console.print(f"[dim]… {len(t.reconstructions) - shown} more cells up to index {report.max_cell} "
+                              "in --json.[/dim]")
+    console.print(f"[dim]μ = Σ q z over the repeat unit, z the depth below the top layer; Δq = μ/d is the charge "
+                  f"the top layer must gain (> 0) or lose (< 0). Patterns ranked by: {report.criterion}.[/dim]")
+    print_cautions(console, report.structure, hypothesis=True)
+
+
+def charge_text(q):
+    """'+3', '-0.5', '0' for a layer charge (e)."""
+    return "0" if abs(q) < 5e-7 else f"{q:+.3g}"
+
+
+def matrix_text(m):
+    """'(2 0 / 0 1)' for a supercell matrix (rows in mesh units)."""
+    return f"({m[0][0]} {m[0][1]} / {m[1][0]} {m[1][1]})"
 
 
 # Entry point -------------------------------------------------------------------------

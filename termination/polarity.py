@@ -392,7 +392,17 @@ def _reduced_basis(hnf, mesh):
     basis = np.rint(np.array([v1, v2]) @ np.linalg.inv(mesh)).astype(np.int64)
     if round(np.linalg.det(basis)) < 0:
         basis[1] *= -1
-    return basis
+    # Of the four orientation-keeping choices, the one whose first vector lies
+    # closest to a, counter-clockwise (reads like (2 1 / 0 2), not (0 -2 / 2 1)).
+    p, q = basis
+    options = [np.array(o) for o in ((p, q), (-p, -q), (q, -p), (-q, p))]
+    a = mesh[0]
+
+    def angle(o):
+        v = o[0] @ mesh
+        return (np.degrees(np.arctan2(a[0] * v[1] - a[1] * v[0], a @ v)) + 1e-9) % 360.0
+
+    return min(options, key=lambda o: (round(angle(o), 6), tuple(o.ravel())))
 
 
 def reconstructions(crystal, face_terminations, termination_key, fraction, max_cell=DEFAULT_MAX_CELL, *,
