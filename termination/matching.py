@@ -45,8 +45,9 @@ prior
     log pi(t|F) = -bond_weight (w_t/w_F - 1), normalised within the face,
     with w the weighted broken-bond density of a termination, w_F the
     cheapest termination of face F and w_min the cheapest of all faces.  A
-    polar (Tasker III) termination shares its mass equally between staying
-    1x1 and its reconstruction cells.  ``flat_prior`` makes every candidate
+    polar (Tasker III) termination keeps half its mass as 1x1 and gives the
+    other half, in equal parts, to its best (up to four) reconstruction cells
+    from :mod:`termination.polarity`.  ``flat_prior`` makes every candidate
     equally likely a priori.
 """
 
@@ -312,7 +313,7 @@ def candidate_table(
     mount = None if mount is None else check_hkl(mount, "mount")
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     vis = _visibility_options(visible, weights, decay_length_angstrom)
-    polar_info, notes = _polarity_provider(crystal, charges, reconstructions, max_cell)
+    crystal, polar_info, notes = _polarity_provider(crystal, charges, reconstructions, max_cell, vis)
     per_face = []
     for f in faces:
         ft = face_terminations(crystal, f.hkl, face=f, max_multiple=model.max_multiple, **termination_options)
@@ -337,9 +338,9 @@ def candidate_table(
                 hkl=f.hkl, termination=t.label, termination_id=t.id, d=ft.d, tilts=tilts, tilt_variants=variants,
                 step_heights=heights, step_weights=sw, step_labels=labels,
             )
-            cells = polar_info(ft, t) if polar_info else (None, ())
-            polar, recon = cells
-            share = np.log(1.0 / (1 + len(recon))) if recon else 0.0
+            polar, recon = polar_info(ft, t) if polar_info else (None, ())
+            share = np.log(1 - RECONSTRUCTED_SHARE) if recon else 0.0
+            share_cell = np.log(RECONSTRUCTED_SHARE / len(recon)) if recon else 0.0
             rows.append(
                 Candidate(
                     cell=None,
@@ -357,7 +358,7 @@ def candidate_table(
                         cell=cell_name,
                         periodicities=_periodicities(rl.a, rl.b, rl.gamma, rpat.row_spacings),
                         apparent=(rl.a, rl.b, rl.gamma),
-                        log_prior=float(log_face + lt + share),
+                        log_prior=float(log_face + lt + share_cell),
                         polar=polar,
                         **base,
                     )
@@ -396,18 +397,48 @@ def _visibility_options(visible, weights, decay_length_angstrom):
     return out
 
 
-def _polarity_provider(crystal, charges, reconstructions, max_cell):
-    """A function (ft, termination) -> (polar, [(cell, pattern), ...]), or None without charges."""
-    try:
-        from . import polarity as _polarity  # noqa: F401
-    except ImportError:
-        return None, ["polarity module not available: no reconstruction candidates"]
-    return _make_polar_info(crystal, charges, reconstructions, max_cell)
+def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
+    """Charged crystal and a function (ft, termination) -> (polar, [(cell, pattern), ...]).
+
+    Without formal charges (given, from the file, or the built-in guess) the
+    polarity is not assessed and no reconstruction candidates are added.
+    """
+    from .charges import assign_charges
+    from .corrugation import reconstruction_corrugation
+    from .polarity import termination_polarity
+
+    found = assign_charges(crystal, charges, use_pymatgen=False, required=charges is not None)
+    if found is None:
+        return crystal, None, ["no formal charges known (give --charge EL=Q): polarity not assessed, "
+                               "no reconstruction candidates"]
+    notes = [f"formal charges {found.method}: "
+             + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
+    if found.caution:
+        notes.append(found.caution)
+    charged = crystal.with_charges(found.per_atom)
+
+    def info(ft, t):
+        pol = termination_polarity(charged, ft, t.id, max_cell=max_cell, with_reconstructions=reconstructions)
+        cells = []
+        for r in pol.reconstructions[:MAX_CELLS_PER_TERMINATION]:
+            try:
+                pattern = reconstruction_corrugation(ft, t.id, r, **vis)
+            except StructureError:
+                continue
+            cells.append((r.wood or _matrix_text(r.matrix), pattern))
+        return pol.tasker_type == "III", cells
+
+    return charged, info, notes
 
 
-def _make_polar_info(crystal, charges, reconstructions, max_cell):
-    """Hook for polar-termination reconstruction candidates (see :mod:`termination.polarity`)."""
-    return None, []
+def _matrix_text(m):
+    return "(" + " ".join(str(int(v)) for v in np.ravel(m)) + ")"
+
+
+#: Reconstruction cells kept per polar termination (the polarity step ranks them).
+MAX_CELLS_PER_TERMINATION = 4
+#: Prior mass of a polar termination given to its reconstruction cells together.
+RECONSTRUCTED_SHARE = 0.5
 
 
 # --------------------------------------------------------------------------- scoring

@@ -116,6 +116,19 @@ def test_literature_surfaces_rank_first(proto, spec, measurement, options, hkl, 
     assert "hypothesis" in report.verdict
 
 
+def test_measured_supercell_spacing_selects_a_reconstruction(proto):
+    # SmB6(001) cleaved: (2x1) rows of the half-occupied top layer seen by STM
+    # (Rößler et al., PNAS 111, 4798 (2014), from memory); the metal-terminated (001) face
+    # needs half its top layer removed whatever the valence (Tasker 1979).
+    m = Measurement(mount=(0, 0, 1), tilt=V(0.5, 1), spacings=(V(4.13, 0.15), V(8.2, 0.3)), row_angle=V(90, 3),
+                    steps=(V(4.1, 0.15),))
+    report = match(proto("hexaboride:Sm,B", a=4.133), m, top=4)
+    best = report.candidates[0]
+    assert best.hkl == (0, 0, 1) and best.cell == "(2×1)"
+    unreconstructed = [r for r in report.candidates if r.cell is None]
+    assert unreconstructed and unreconstructed[0].probability < best.probability / 5
+
+
 def test_flat_prior_changes_the_prior_only(tables):
     table = tables["perovskite:Sr,Ti,O"]
     lp = {round(c.log_prior, 9) for c in candidate_table_flat(table)}
