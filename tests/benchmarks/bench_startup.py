@@ -1,0 +1,101 @@
+"""Start-up of the command line against importing numpy and spglib.
+
+Wall time (median of ``--repeats`` fresh interpreters) of
+
+- the baseline ``python -c "import numpy, spglib"``,
+- ``termination planes rocksalt:Na,Cl --max-index 1``,
+- ``termination match --demo`` (when cli.py has the command),
+
+and each command's ratio to the baseline (target: within 3x).  A run with
+``python -X importtime`` lists which of pymatgen, ase, scipy and matplotlib
+each command imports, and the module that pulled each one in; none of them
+belongs on these paths.
+
+Run:  python tests/benchmarks/bench_startup.py [--repeats 7]
+"""
+
+import argparse
+import os
+import re
+import statistics
+import subprocess
+import sys
+import time
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+CLI = os.path.join(ROOT, "cli.py")
+HEAVY = ("pymatgen", "ase", "scipy", "matplotlib")
+TARGET_RATIO = 3.0
+
+BASELINE = ("import numpy, spglib", [sys.executable, "-c", "import numpy, spglib"])
+COMMANDS = [
+    ("planes rocksalt:Na,Cl --max-index 1", [sys.executable, CLI, "planes", "rocksalt:Na,Cl", "--max-index", "1"]),
+]
+
+
+def has_command(name):
+    with open(CLI, encoding="utf-8") as fh:
+        return re.search(rf"^def {name}\(", fh.read(), flags=re.M) is not None
+
+
+def run_once(argv):
+    t0 = time.perf_counter()
+    subprocess.run(argv, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True)
+    return time.perf_counter() - t0
+
+
+def wall_times(commands, repeats):
+    """Median wall time per command; the commands take turns so load drifts hit all alike."""
+    times = [[] for _ in commands]
+    for _ in range(repeats):
+        for k, argv in enumerate(commands):
+            times[k].append(run_once(argv))
+    return [statistics.median(t) for t in times]
+
+
+def heavy_imports(argv):
+    """{heavy top-level package: module that first imported it} from -X importtime."""
+    proc = subprocess.run([argv[0], "-X", "importtime", *argv[1:]], cwd=ROOT, stdout=subprocess.DEVNULL,
+                          stderr=subprocess.PIPE, text=True, check=True)
+    rows = []
+    for line in proc.stderr.splitlines():
+        m = re.match(r"import time:\s+\d+ \|\s+\d+ \|( *)(\S+)", line)
+        if m:
+            rows.append((len(m.group(1)), m.group(2)))
+    found = {}
+    # importtime prints a module after everything it imported, indented deeper:
+    # the parent of a row is the next row with a smaller indent.
+    for k, (indent, name) in enumerate(rows):
+        top = name.split(".")[0]
+        if top in HEAVY and top not in found:
+            parent = next((n for i, n in rows[k + 1:] if i < indent and n.split(".")[0] != top), "__main__")
+            found[top] = parent
+    return found
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeats", type=int, default=7)
+    args = parser.parse_args(argv)
+    commands = list(COMMANDS)
+    if has_command("match"):
+        commands.append(("match --demo", [sys.executable, CLI, "match", "--demo"]))
+    else:
+        print("cli.py has no `match` command yet; skipped")
+
+    base, *medians = wall_times([BASELINE[1]] + [cmd for _, cmd in commands], args.repeats)
+    print(f"median of {args.repeats} fresh interpreters each, taking turns; {sys.executable}")
+    print(f"{'command':<46} {'wall (s)':>9} {'ratio':>7}  heavy imports")
+    print(f"{BASELINE[0]:<46} {base:9.3f} {1.0:6.2f}x")
+    worst = 0.0
+    for (label, cmd), t in zip(commands, medians):
+        found = heavy_imports(cmd)
+        text = ", ".join(f"{k} (via {v})" for k, v in sorted(found.items())) or "none"
+        worst = max(worst, t / base)
+        print(f"{'termination ' + label:<46} {t:9.3f} {t / base:6.2f}x  {text}", flush=True)
+    verdict = "met" if worst <= TARGET_RATIO else "NOT met"
+    print(f"worst ratio: {worst:.2f}x (target {TARGET_RATIO:g}x: {verdict})")
+
+
+if __name__ == "__main__":
+    main()
