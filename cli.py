@@ -541,9 +541,7 @@ def corrugation(
         typer.Option("--reconstructions/--no-reconstructions",
                      help="Add the reconstruction cells of polar terminations (polarity step)."),
     ] = True,
-    charge: Annotated[
-        Optional[List[str]], typer.Option("--charge", help="Formal charge EL=Q for the polarity step; repeatable.")
-    ] = None,
+    charge: ChargeOpt = None,
     max_cell: Annotated[int, typer.Option("--max-cell", help="Largest reconstruction cell, in 1×1 cells (1 to 12).")] = 4,
     a: LatticeOpt = None,
     x: XOpt = None,
@@ -551,6 +549,7 @@ def corrugation(
     json_out: JsonOpt = False,
 ):
     """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
+    from termination.charges import parse_charge_options
     from termination.corrugation import corrugation_report
 
     crystal = load(structure, a, x, symprec)
@@ -564,7 +563,7 @@ def corrugation(
         max_depth_angstrom=depth,
         threshold=threshold,
         reconstructions=reconstructions,
-        charges=parse_assignments(charge, "--charge", "ChargeError") or None,
+        charges=parse_charge_options(charge) or None,
         max_cell=max_cell,
     )
     if json_out:
@@ -583,18 +582,20 @@ def corrugation(
         + ("top unit" if report.max_depth_angstrom is None else f"down to {report.max_depth_angstrom:g} Å")
         + f"; spots above {report.threshold:g} F(0)."
     )
-    table = Table(title="Apparent lattice per termination (dual of the visible spots)")
-    for col in ("id", "label", "cell", "a (Å)", "b (Å)", "γ (°)", "type", "maxima (Å)", "row spacings (Å)",
-                "row angles (°)", "spots"):
-        table.add_column(col, justify="right", no_wrap=True)
+    table = Table(title="Apparent lattice per termination (dual of the visible spots; Å, degrees)")
+    for col in ("id", "label", "cell", "a", "b", "γ", "type", "maxima", "row spacings", "row angles"):
+        if col == "type":
+            table.add_column(col, justify="right", min_width=11, overflow="fold")
+        else:
+            table.add_column(col, justify="right", no_wrap=True)
     for t in report.terminations:
         for p in (t,) + t.reconstructions:
             lat = p.apparent_lattice
             table.add_row(
                 t.id if p is t else "", t.label if p is t else "", p.cell or "1×1",
                 length_text(lat.a), length_text(lat.b), f"{lat.gamma:.1f}", p.lattice_type,
-                length_text(p.neighbour_distance), " ".join(length_text(s) for s in p.row_spacings) or "—",
-                " ".join(f"{v:.1f}" for v in p.row_angles) or "—", str(len(p.spots)),
+                length_text(p.neighbour_distance), " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
+                " ".join(f"{v:.0f}" for v in p.row_angles) or "—",
             )
     console.print(table)
     spots = Table(title="Lowest-order visible spots")
