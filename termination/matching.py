@@ -234,12 +234,15 @@ def _upward_tilts(crystal, variants, mount):
 
 def _periodicities(a, b, gamma, row_spacings):
     """K = 5 predicted spacings: three shortest lattice-vector lengths and two row spacings."""
-    if not np.isfinite(a):
+    if not np.isfinite(a):  # flat: nothing visible
         return (float("nan"),) * 5
+    if not (np.isfinite(b) and np.isfinite(gamma)):  # stripes: one periodicity and its row spacing
+        rows = [r for r in row_spacings if np.isfinite(r)][:1] or [a]
+        return (float(a), float("nan"), float("nan"), float(rows[0]), float("nan"))
     g = np.radians(gamma)
     third = min(np.sqrt(a * a + b * b + 2 * a * b * np.cos(g)), np.sqrt(a * a + b * b - 2 * a * b * np.cos(g)))
     area = a * b * np.sin(g)
-    rows = list(row_spacings)[:2] or [area / a, area / b]
+    rows = [r for r in row_spacings if np.isfinite(r)][:2] or [area / a, area / b]
     if len(rows) == 1:
         rows.append(rows[0])
     return (float(a), float(b), float(third), float(rows[0]), float(rows[1]))
@@ -519,7 +522,8 @@ def _terms(table, eff):
         out["spacings"] = np.logaddexp(np.log1p(-eps) + mix, np.log(eps / s_max)).sum(axis=1)
     if eff["row_angle"] is not None:
         alpha, s = eff["row_angle"]
-        g = np.array([c.apparent[2] for c in cands])
+        g = np.array([c.apparent[2] for c in cands], dtype=float)
+        g[~np.isfinite(g)] = np.nan
         pred = np.where(np.abs(alpha - g) <= np.abs(alpha - (180 - g)), g, 180 - g)
         eps = model.outlier_fraction
         lp = np.where(np.isnan(pred), -np.inf, _log_normal(alpha, pred, s))
