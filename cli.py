@@ -422,7 +422,7 @@ def match(
     visible: Annotated[Optional[List[str]], typer.Option("--visible", help="Only this species shows in the corrugation; repeatable.")] = None,
     weight: Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")] = None,
     decay_length: Annotated[Optional[float], typer.Option("--decay-length", help="Decay of visibility with depth, Å.")] = None,
-    charge: Annotated[Optional[List[str]], typer.Option("--charge", help="Formal charge EL=Q for the polarity check; repeatable.")] = None,
+    charge: ChargeOpt = None,
     flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
     no_reconstructions: Annotated[bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")] = False,
     top: Annotated[int, typer.Option("--top", help="Show this many candidates.")] = 10,
@@ -448,7 +448,9 @@ def match(
                                            decay_length)
     meas = merge(base, cli_values)
     crystal = load(structure, a, x, symprec)
-    charges = parse_assignments(charge, "--charge", "ChargeError") or None
+    from termination.charges import parse_charge_options
+
+    charges = parse_charge_options(charge) or None
     report = run_match(
         crystal,
         meas,
