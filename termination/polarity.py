@@ -29,7 +29,7 @@ from fractions import Fraction
 import numpy as np
 
 from .charges import assign_charges
-from .errors import PlaneError
+from .errors import ChargeError, PlaneError
 from .planes import check_hkl, distinct_faces, face_geometry
 from .supercells import (
     MAX_PATTERNS,
@@ -621,8 +621,8 @@ def termination_polarity(crystal, face_terminations, termination_key, *, max_cel
     area = ft.face.mesh.area
     d = ft.d
     if ru.charges is None:
-        raise PlaneError(f"face {ft.face.hkl}: the atoms carry no charges; build the terminations from a "
-                         "crystal with charges (Crystal.with_charges)")
+        raise ChargeError(f"face {ft.face.hkl}: the atoms carry no charges; build the terminations from a "
+                          "crystal with charges (Crystal.with_charges)")
     q = np.asarray(ru.charges, dtype=float)
     mu = float(q @ ru.depth)
     dq = mu / d
@@ -646,7 +646,7 @@ def termination_polarity(crystal, face_terminations, termination_key, *, max_cel
             compensation = None
             note = "the top unit and top layer are neutral: the compensation must come from deeper layers"
         else:
-            compensation = dq / Q
+            compensation = round(dq / Q, 12)  # drop float noise: -0.25, not -0.24999999999999997
             if abs(compensation) >= 1 - fraction_tol:
                 note = (f"compensation needs {_fraction_text(compensation)} of the {sites_kind}: more than "
                         "these sites can give")

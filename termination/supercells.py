@@ -12,6 +12,7 @@ supercell N becomes N S.
 """
 
 from dataclasses import dataclass
+from functools import lru_cache
 from itertools import combinations
 from math import comb
 
@@ -393,21 +394,34 @@ class PatternRanking:
     Attributes
     ----------
     patterns : (P, k) int ndarray
-        Changed-site indices of every pattern with exactly the supercell's
-        periodicity, best first.
+        Changed-site indices of one pattern per class of mesh translations,
+        for every class with exactly the supercell's period, best first.
     energy_ev : (P,) ndarray
         Energy per changed site, E = (q²/2) sum_{i,j in pattern} Phi_ij / k,
         in eV (lower is better).
     distinct : int
-        Number of patterns up to a mesh translation (P / det).
+        Number of such classes, P.
     total : int
-        Number of k-subsets examined, C(n, k).
+        Number of k-subsets of the sites, C(n, k).
     """
 
     patterns: np.ndarray
     energy_ev: np.ndarray
     distinct: int
     total: int
+
+
+@lru_cache(maxsize=64)
+def _subsets_touching_first_cell(n, k, g):
+    """k-subsets of range(n), as sorted rows, whose smallest element is < g (cached, read-only)."""
+    blocks = []
+    for first in range(min(g, n - k + 1)):
+        rest = list(combinations(range(first + 1, n), k - 1))
+        rest = np.array(rest, dtype=np.int64).reshape(len(rest), k - 1)
+        blocks.append(np.hstack([np.full((len(rest), 1), first, dtype=np.int64), rest]))
+    out = np.vstack(blocks) if blocks else np.zeros((0, k), dtype=np.int64)
+    out.flags.writeable = False
+    return out
 
 
 def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX_PATTERNS):
@@ -418,7 +432,8 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
     cell : (2, 2) array_like
         Supercell rows, Å.
     positions : (n, 2) array_like
-        Candidate sites, Å.
+        Candidate sites, Å, numbered ``coset * g + base`` as by
+        :func:`supercell_sites` (g = n / D sites per 1×1 cell).
     k : int
         Number of sites removed (vacancies) or added (adatoms), 0 < k < n.
     permutations : (D, n) int array_like
@@ -428,7 +443,7 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
     charge : float
         Charge of one changed site, e (only scales the energies).
     max_patterns : int
-        Refuse (return None) when C(n, k) exceeds this.
+        Refuse (return None) when more subsets than this would be examined.
 
     Returns
     -------
@@ -443,25 +458,36 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
     another, so the lowest energy spreads them out as evenly as the cell
     allows (the 2D Wigner-lattice limit).  For equivalent candidate sites it
     differs from the energy of the whole modified top layer by a
-    pattern-independent constant.  Ties go to the lexicographically first
-    pattern, so the result is deterministic.
+    pattern-independent constant.
+
+    The energy does not change under a mesh translation, so one pattern per
+    translation class is enough: every class has a member with a site in the
+    first 1×1 cell, and only those subsets are generated; classes are told
+    apart by the smallest bit mask over their D translates.  Ties go to the
+    lexicographically first pattern, so the result is deterministic.
     """
     pos = np.asarray(positions, dtype=float).reshape(-1, 2)
     n = len(pos)
     k = int(k)
-    total = comb(n, k)
-    if total > max_patterns or not 0 < k < n:
-        return None
-    phi = ewald_pair_matrix(cell, pos)
-    combos = np.array(list(combinations(range(n), k)), dtype=np.int64).reshape(-1, k)
     perms = np.asarray(permutations, dtype=np.int64)
-    keep = np.ones(len(combos), dtype=bool)
-    for perm in perms[1:]:
-        image = np.sort(perm[combos], axis=1)
-        keep &= ~np.all(image == combos, axis=1)
-    combos = combos[keep]
+    det = len(perms)
+    g = n // det
+    if not 0 < k < n or n > 62:  # subsets are int64 bit masks
+        return None
+    total = comb(n, k)
+    examined = sum(comb(n - 1 - f, k - 1) for f in range(min(g, n - k + 1)))
+    if examined > max_patterns:
+        return None
+    combos = _subsets_touching_first_cell(n, k, g)
+    bits = np.left_shift(np.int64(1), np.arange(n, dtype=np.int64))
+    masks = np.stack([bits[perm][combos].sum(axis=1) for perm in perms])  # (D, m): every translate's bits
+    primitive = np.all(masks[1:] != masks[0][None, :], axis=0)
+    combos, masks = combos[primitive], masks[:, primitive]
     if not len(combos):
         return None
+    _, first = np.unique(masks.min(axis=0), return_index=True)
+    combos = combos[np.sort(first)]
+    phi = ewald_pair_matrix(cell, pos)
     energy = np.empty(len(combos))
     chunk = max(1, 2_000_000 // (k * k))
     for s in range(0, len(combos), chunk):
@@ -469,4 +495,4 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
         energy[s:s + chunk] = phi[c[:, :, None], c[:, None, :]].sum(axis=(1, 2))
     energy *= 0.5 * charge * charge * COULOMB_EV_ANGSTROM / k
     order = np.lexsort((np.arange(len(combos)), np.round(energy, 9)))
-    return PatternRanking(combos[order], energy[order], len(combos) // len(perms), total)
+    return PatternRanking(combos[order], energy[order], len(combos), total)

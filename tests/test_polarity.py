@@ -366,3 +366,11 @@ def test_bad_fraction(charged, fraction):
 def test_plane_and_max_index_together_are_refused(proto):
     with pytest.raises(PlaneError, match="not both"):
         polarity_report(proto("rocksalt:Na,Cl"), plane=(1, 1, 1), max_index=2)
+
+
+def test_uncharged_terminations_are_refused(proto):
+    from termination.errors import ChargeError
+
+    c = proto("rocksalt:Na,Cl")
+    with pytest.raises(ChargeError, match="no charges"):
+        termination_polarity(c, face_terminations(c, (1, 1, 1)), "Na")
