@@ -15,6 +15,8 @@ from .errors import (
     TerminationError,
 )
 from .planes import Face, Mesh, distinct_faces, face_geometry, interplanar_angle
+from .charges import ChargeAssignment, assign_charges
+from .polarity import Reconstruction, polarity_report, reconstructions, termination_polarity
 
 __version__ = "0.1.0"
 
@@ -29,6 +31,12 @@ __all__ = [
     "CorrugationPattern",
     "termination_corrugation",
     "supercell_corrugation",
+    "ChargeAssignment",
+    "assign_charges",
+    "Reconstruction",
+    "reconstructions",
+    "termination_polarity",
+    "polarity_report",
     "TerminationError",
     "StructureError",
     "PlaneError",
