@@ -11,9 +11,10 @@ The analysis of one topograph runs in four stages:
    stops changing. The common plane is the terrace plane; its tilt is the
    one that identifies the face.
 3. **Lattice**: the terrace-levelled image is Hann-windowed and Fourier
-   transformed; significant peaks are located to sub-pixel precision and
-   indexed by the sparsest 2-D reciprocal lattice that explains them. The
-   real-space lattice is reduced to its two shortest vectors.
+   transformed; significant peaks are located to sub-pixel precision, the
+   strongest two independent ones span the reciprocal lattice, and every
+   peak it indexes refines it. The real-space lattice is reduced to its two
+   shortest vectors, measured in the terrace plane.
 4. **Steps**: the height between each pair of adjacent terraces, from the
    terrace offsets of stage 2.
 
@@ -226,37 +227,71 @@ def _plane_slopes(z, valid, coords):
     return a, b
 
 
+def _label_moments(z, labels, n_labels, coords):
+    """Per-label sums of 1, x, y, z, xx, yy, xy, xz, yz, zz (index 0 = unlabelled).
+
+    Notes
+    -----
+    Labels come in long runs along rows. Sums over each run are taken with
+    ``np.add.reduceat``; x and x² sums over a run follow from cumulative
+    sums of the column coordinates and y is constant on a run, so only z,
+    xz and zz need a pass over the pixels. The runs are then summed per
+    label.
+    """
+    x, y = coords
+    ny, nx = z.shape
+    mn = n_labels + 1
+    change = np.empty((ny, nx), dtype=bool)
+    change[:, 0] = True
+    np.not_equal(labels[:, 1:], labels[:, :-1], out=change[:, 1:])
+    starts = np.flatnonzero(change)
+    run_label = labels.ravel()[starts].astype(np.intp)
+    row = starts // nx
+    c0 = starts - row * nx
+    c1 = np.minimum(np.append(starts[1:], ny * nx) - row * nx, nx)
+    zf = np.where(labels > 0, z, 0.0)
+    s_z = np.add.reduceat(zf.ravel(), starts)
+    s_xz = np.add.reduceat((zf * x[None, :]).ravel(), starts)
+    s_zz = np.add.reduceat((zf * zf).ravel(), starts)
+    cx = np.concatenate([[0.0], np.cumsum(x)])
+    cxx = np.concatenate([[0.0], np.cumsum(x * x)])
+    n_run = (c1 - c0).astype(np.float64)
+    s_x = cx[c1] - cx[c0]
+    s_xx = cxx[c1] - cxx[c0]
+    yr = y[row]
+
+    def per_label(w):
+        return np.bincount(run_label, w, mn)
+
+    return (
+        per_label(n_run),
+        per_label(s_x),
+        per_label(yr * n_run),
+        per_label(s_z),
+        per_label(s_xx),
+        per_label(yr * yr * n_run),
+        per_label(yr * s_x),
+        per_label(s_xz),
+        per_label(yr * s_z),
+        per_label(s_zz),
+    )
+
+
 def _common_plane(z, labels, n_labels, coords, residual=False):
-    """One plane, one offset per label (labels 1..n; 0 excluded).
+    r"""One plane, one offset per label (labels 1..n; 0 excluded).
 
     Returns slope_x, slope_y, offsets (n,), and a dict of fit statistics
     (with the residual image, zero off the labels, when ``residual``).
 
     Notes
     -----
-    Works on per-label moments (sums of 1, x, y, z and their products), so
-    no pixel lists are built: with :math:`S_{uv} = \sum_k [\sum_{i\in k}
+    Works on per-label moments (sums of 1, x, y, z and their products, see
+    :func:`_label_moments`): with :math:`S_{uv} = \sum_k [\sum_{i\in k}
     u_i v_i - (\sum_{i\in k} u_i)(\sum_{i\in k} v_i)/N_k]` the slopes solve
     :math:`[S_{xx}, S_{xy}; S_{xy}, S_{yy}] (a, b)^T = (S_{xz}, S_{yz})^T`.
     """
     x, y = coords
-    shape = z.shape
-    mn = n_labels + 1
-    lab = labels.ravel().astype(np.intp, copy=False)
-    on = lab > 0
-    zf = np.where(on, z.ravel(), 0.0)
-    xf = np.broadcast_to(x[None, :], shape).ravel()
-    yf = np.broadcast_to(y[:, None], shape).ravel()
-    n = np.bincount(lab, minlength=mn).astype(np.float64)
-    sx = np.bincount(lab, xf, mn)
-    sy = np.bincount(lab, yf, mn)
-    sz = np.bincount(lab, zf, mn)
-    sxx = np.bincount(lab, xf * xf, mn)
-    syy = np.bincount(lab, yf * yf, mn)
-    sxy = np.bincount(lab, xf * yf, mn)
-    sxz = np.bincount(lab, xf * zf, mn)
-    syz = np.bincount(lab, yf * zf, mn)
-    szz = np.bincount(lab, zf * zf, mn)
+    n, sx, sy, sz, sxx, syy, sxy, sxz, syz, szz = _label_moments(z, labels, n_labels, coords)
     k = slice(1, None)
     nk = np.where(n[k] > 0, n[k], 1.0)
 
@@ -414,7 +449,10 @@ def _unbin(arr, factor, shape):
     """Nearest-neighbour upsampling of a binned array back to ``shape``."""
     if factor == 1:
         return arr
-    up = np.repeat(np.repeat(arr, factor, axis=0), factor, axis=1)
+    ny, nx = arr.shape
+    up = np.broadcast_to(arr[:, None, :, None], (ny, factor, nx, factor)).reshape(ny * factor, nx * factor)
+    if up.shape == tuple(shape):
+        return up
     pad = ((0, shape[0] - up.shape[0]), (0, shape[1] - up.shape[1]))
     return np.pad(up, pad, mode="edge")
 
@@ -440,8 +478,13 @@ def _segment(z, valid, coords, px, p):
     stride = max(1, int(math.sqrt(n_valid / 250_000)))
     sub = (slice(None, None, stride), slice(None, None, stride))
     vsub = vc[sub]
-    a = float(np.median(gx[sub][vsub]))
-    b = float(np.median(gy[sub][vsub]))
+    # first guess of the terrace slope: median gradient of the strongly smoothed
+    # image (steps are a minority of pixels; heavy smoothing keeps noise from
+    # spreading the gradients, which would let the steps bias the median)
+    gly, glx = np.gradient(smooth_levels, pxc[1], pxc[0])
+    a = float(np.median(glx[sub][vsub]))
+    b = float(np.median(gly[sub][vsub]))
+    del gly, glx
     sigma_s = edge_s * float(np.mean(pxc))
     floor = 0.2 * p["min_step"] / (math.sqrt(2 * math.pi) * sigma_s)
     min_count = max(p["min_terrace_fraction"] * n_valid, 16)
@@ -481,9 +524,13 @@ def _segment(z, valid, coords, px, p):
         a_new, b_new, offsets, stats = _common_plane(zc, labels, n, cc)
         change = math.degrees(max(abs(math.atan(a_new) - math.atan(a)), abs(math.atan(b_new) - math.atan(b))))
         a, b = a_new, b_new
-        result = _Terraces(labels, n, level_of, (a, b), offsets, stats, iteration)
+        current = _Terraces(labels, n, level_of, (a, b), offsets, stats, iteration)
+        # keep the segmentation that explains the heights best
+        if result is None or stats["s2"] < result.stats["s2"]:
+            result = current
         if change < p["slope_tol_deg"]:
             break
+    a, b = result.slope
     # Final fit on whole terrace regions: every pixel joins its nearest terrace
     # except near boundaries between levels and at edges. Keeping only pixels
     # whose noisy height fell inside a level's histogram band would bias the
@@ -515,7 +562,7 @@ def _segment(z, valid, coords, px, p):
 
 
 def _structure_ratio(shape, terr, sigma_px, factor=1):
-    """Large-scale variance of the terrace-fit residual relative to white noise.
+    r"""Large-scale variance of the terrace-fit residual relative to white noise.
 
     Notes
     -----
@@ -594,8 +641,9 @@ def _flattened(z, valid, terr, near, coords, p):
     """Terrace-levelled image for the Fourier analysis.
 
     Every pixel is levelled with the plane and the offset of its nearest
-    terrace. Where the smoothed result stays far from zero (the step edges
-    themselves), pixels are set to zero, and so are NaN pixels. Keeping the
+    terrace. Where the result stands far out of the terrace corrugation and
+    noise (the step edges themselves), pixels are set to zero, and so are
+    NaN pixels. Keeping the
     corrugation up to the step edges avoids the side bands that blanking
     whole edge strips would add; removing the edge profiles avoids streaks.
     """
@@ -604,18 +652,13 @@ def _flattened(z, valid, terr, near, coords, p):
     off = np.concatenate([[0.0], terr.offsets])
     out = z - (a * x[None, :] + b * y[:, None]) - off[near]
     out[~valid] = 0.0
-    smooth = _smooth(out, valid, p["edge_smooth_px"])
     step = max(1, int(math.sqrt(z.size / 250_000)))
     on = terr.labels[::step, ::step] > 0
-    ref = smooth[::step, ::step][on]
-    med = float(np.median(ref))
-    scale = 1.4826 * float(np.median(np.abs(ref - med)))
     raw = out[::step, ::step][on]
-    raw_med = float(np.median(raw))
-    raw_scale = 1.4826 * float(np.median(np.abs(raw - raw_med)))
-    bad = np.abs(smooth - med) > p["lattice_clip_sigmas"] * max(scale, 1e-12)
-    # one-pixel spikes at the step edges that smoothing dilutes
-    bad |= np.abs(out - raw_med) > p["lattice_clip_sigmas"] * max(raw_scale, 1e-12)
+    med = float(np.median(raw))
+    scale = max(1.4826 * float(np.median(np.abs(raw - med))), 1e-12)
+    # the step edges: their profile stands out of the terrace corrugation and noise
+    bad = np.abs(out - med) > p["lattice_clip_sigmas"] * scale
     guard = int(p["edge_guard_px"])
     bad = ndimage.maximum_filter(bad, size=2 * guard + 1, mode="constant") | ~valid
     out[bad] = 0.0
@@ -640,11 +683,11 @@ def _steps(terr, coords_shape, dist, near, p):
         if cov_ab is not None:
             var += float(d @ cov_ab @ d)
         h = abs(dc) / norm
-        if h < 0.5 * p["min_step"]:
+        if h < p["min_step"]:  # below the resolved step height: same level
             continue
         sigma = math.sqrt(var) / norm
         sigma = math.hypot(sigma, p["z_calibration_fraction"] * h)
-        steps.append((min(terr.level_of[i], terr.level_of[j]), Step(h, sigma)))
+        steps.append((min(terr.level_of[i], terr.level_of[j]), Step(float(h), float(sigma))))
     steps.sort(key=lambda t: (t[0], t[1].height))
     return tuple(s for _, s in steps), f, cov_ab
 
@@ -1023,9 +1066,10 @@ def analyse_heightmap(
     index_tol : float, default 0.05
         A peak is indexed when its fractional indices lie within this of integers.
     lattice_clip_sigmas : float, default 4
-        Before the Fourier transform, pixels where the levelled image, raw or
-        smoothed, is further than this many robust standard deviations from
-        zero (the step edges) are set to zero, with a margin of ``edge_guard_px``.
+        Before the Fourier transform, pixels of the levelled image further
+        than this many robust standard deviations of the terraces from zero
+        are set to zero with a margin of ``edge_guard_px``: they are the
+        step edges.
     streak_ratio : float, default 0.05
         A Fourier maximum whose power 2 bins away radially exceeds this
         fraction of its own (and four times the tangential one) lies on a
@@ -1074,7 +1118,9 @@ def analyse_heightmap(
     noise power at its \\|k\\| (median of the annulus / ln 2), :math:`N` the
     number of bins in a half plane and :math:`\\alpha` the false-alarm
     probability. Positions are refined per axis with the exact Hann
-    three-point formula. Each coordinate carries
+    three-point formula. Maxima on radial streaks (the transform of
+    straight step edges) are dropped. The strongest peak and the strongest
+    one not parallel to it span the reciprocal lattice. Each coordinate carries
     :math:`\\sigma_k = \\Delta k \\sqrt{1/12 + \\sigma_\\delta^2}\\, B`: the grid
     resolution (uniform over one bin), the interpolation noise, and the
     broadening B of the peak relative to the window's own shape. The
