@@ -715,6 +715,131 @@ def matrix_text(m):
     return f"({m[0][0]} {m[0][1]} / {m[1][0]} {m[1][1]})"
 
 
+def _refuse_existing(path, force, inputs):
+    """No output may replace an input; an existing file only with --force."""
+    from pathlib import Path
+
+    from termination.errors import MeasurementError
+
+    if path is None:
+        return
+    target = Path(path).resolve()
+    if any(target == Path(p).resolve() for p in inputs):
+        raise MeasurementError(f"{path} is an input file; choose another output name")
+    if target.exists() and not force:
+        raise MeasurementError(f"{path} exists; pass --force to overwrite it")
+
+
+def _image_progress(shape):
+    """A rich progress bar on stderr for large images, else a no-op context."""
+    import contextlib
+
+    if shape[0] * shape[1] < 1024 * 1024:
+        return contextlib.nullcontext(None)
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    return Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(),
+                    console=Console(stderr=True), transient=True)
+
+
+def pm_text(value, sigma, digits=3):
+    """'4.000 ± 0.036' or '—'."""
+    if value is None:
+        return "—"
+    return f"{value:.{digits}f}" if sigma is None else f"{value:.{digits}f} ± {sigma:.{digits}f}"
+
+
+@app.command()
+@handle_errors
+def image(
+    file: Annotated[str, typer.Argument(help="Height map: .npy, .tif/.tiff, or a text matrix.", show_default=False)],
+    pixel_size: Annotated[
+        Optional[str],
+        typer.Option("--pixel-size", help="Pixel size with unit, e.g. 0.05nm, or x,y: 0.05nm,0.06nm "
+                     "(default: pixel_size in the sidecar FILE.toml)."),
+    ] = None,
+    z_unit: Annotated[
+        Optional[str],
+        typer.Option("--z-unit", help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm "
+                     "(default: z_unit in the sidecar)."),
+    ] = None,
+    out: Annotated[Optional[str], typer.Option("--out", help="Write a measurement file (TOML) for `match --measurement`.")] = None,
+    steps_out: Annotated[Optional[str], typer.Option("--steps-out", help="Write the step heights for `match --steps`.")] = None,
+    force: Annotated[bool, typer.Option("--force", help="Overwrite existing output files.")] = False,
+    mount: MountOpt = None,
+    min_step: Annotated[float, typer.Option("--min-step", help="Smallest step height to resolve, Å.")] = 0.5,
+    json_out: JsonOpt = False,
+):
+    """Tilt, lattice and step heights of a topograph (height map)."""
+    import numpy as np
+
+    from termination.heightmap import DRIFT_NOTE, analyse_heightmap, to_measurement
+    from termination.heightmap_io import read_heightmap, sidecar_path
+    from termination.measurement import write_measurement, write_steps
+
+    inputs = (file, sidecar_path(file))
+    _refuse_existing(out, force, inputs)
+    _refuse_existing(steps_out, force, inputs)
+    hm = read_heightmap(file, pixel_size=pixel_size, z_unit=z_unit)
+    with _image_progress(hm.shape) as bar:
+        task = None if bar is None else bar.add_task("analysing", total=1.0)
+
+        def progress(fraction, stage):
+            if bar is not None:
+                bar.update(task, completed=fraction, description=stage)
+
+        result = analyse_heightmap(hm.heights, hm.pixel_size, min_step_angstrom=min_step, progress=progress)
+    ny, nx = hm.shape
+    source = f"from {file} ({nx} x {ny} px, pixel {hm.pixel_size[0]:g} x {hm.pixel_size[1]:g} Å)"
+    written = []
+    if out:
+        comment = source + ("\n" + DRIFT_NOTE if result.lattice is not None else "")
+        write_measurement(out, to_measurement(result, mount=triple(mount)), force=force, comment=comment)
+        written.append(("measurement file", out))
+    if steps_out:
+        write_steps(steps_out, to_measurement(result).steps, force=force, comment=source)
+        written.append(("step list", steps_out))
+    if json_out:
+        emit_json(result)
+        return
+    from rich.table import Table
+
+    console = _console()
+    console.print(f"[bold]{file}[/bold]: {nx} × {ny} px, pixel {hm.pixel_size[0]:g} × {hm.pixel_size[1]:g} Å, "
+                  f"heights {float(np.nanmin(hm.heights)):.2f} to {float(np.nanmax(hm.heights)):.2f} Å")
+    t = result.tilt
+    table = Table(title="Tilt relative to the scanner plane")
+    for col in ("plane", "tilt (°)", "azimuth (°)"):
+        table.add_column(col, justify="right")
+    table.add_row("macroscopic (all pixels)", f"{t.macroscopic:.3f}", f"{t.azimuth:.1f}")
+    table.add_row("terrace (identifies the face)", pm_text(t.terrace, t.terrace_sigma),
+                  "—" if t.terrace_azimuth is None else f"{t.terrace_azimuth:.1f}")
+    console.print(table)
+    lat = result.lattice
+    lt = Table(title="Lattice (two shortest periodicities, in the terrace plane)")
+    for col in ("a (Å)", "b (Å)", "γ (°)", "direction of a (°)", "peaks"):
+        lt.add_column(col, justify="right")
+    if lat is None:
+        lt.add_row("not found", "—", "—", "—", "—")
+    else:
+        lt.add_row(pm_text(lat.a, lat.sigma_a), pm_text(lat.b, lat.sigma_b), pm_text(lat.gamma, lat.sigma_gamma, 2),
+                   f"{lat.direction:.1f}", str(lat.peaks))
+    console.print(lt)
+    st = Table(title=f"Steps ({result.terraces} terraces)")
+    st.add_column("#", justify="right")
+    st.add_column("height (Å)", justify="right")
+    for i, s in enumerate(result.steps, 1):
+        st.add_row(str(i), pm_text(s.height, s.sigma))
+    if not result.steps:
+        st.add_row("—", "none found")
+    console.print(st)
+    for note in result.notes:
+        console.print(f"[dim]{note}[/dim]")
+    for what, path in written:
+        console.print(f"Wrote {what} {path}")
+
+
 # Entry point -------------------------------------------------------------------------
 
 

@@ -826,7 +826,8 @@ def _lattice(resid, px, slope, p, notes):
     rows, cols = rows[order], cols[order]
     streak = _is_streak(power, rows, cols, cx, cy, p["streak_ratio"])
     if streak.any():
-        notes.append(f"{int(streak.sum())} Fourier maxima on radial streaks (step edges) ignored")
+        k = int(streak.sum())
+        notes.append(f"{k} Fourier {'maximum' if k == 1 else 'maxima'} on radial streaks (step edges) ignored")
     rows, cols = rows[~streak][: p["max_peaks"]], cols[~streak][: p["max_peaks"]]
     if rows.size == 0:
         notes.append("no lattice: only streaks from step edges in the Fourier transform")
@@ -856,7 +857,8 @@ def _lattice(resid, px, slope, p, notes):
     keep[first] = True
     ok[np.nonzero(ok)[0][~keep]] = False
     if (~ok).any():
-        notes.append(f"{int((~ok).sum())} weaker Fourier peaks not on the lattice ignored")
+        k = int((~ok).sum())
+        notes.append(f"{k} weaker Fourier {'peak' if k == 1 else 'peaks'} not on the lattice ignored")
     h = np.rint(hk[ok])
     gm, sm = g[ok], sig[ok]
     gmat = np.empty((2, 2))
@@ -1262,6 +1264,17 @@ def _public(name):
     return "min_step_angstrom" if name == "min_step" else name
 
 
+def _rounded(value, sigma):
+    """A Value with the sigma to two significant digits and the value to 1e-4.
+
+    >>> _rounded(1.2497828713, 0.0055775785)
+    Value(value=1.2498, sigma=0.0056)
+    """
+    if sigma is not None and sigma > 0:
+        sigma = float(f"{sigma:.2g}")
+    return Value(round(float(value), 4), sigma)
+
+
 def to_measurement(analysis, *, mount=None, max_index=None):
     """The measurement a height map supports, for ``termination match``.
 
@@ -1278,7 +1291,8 @@ def to_measurement(analysis, *, mount=None, max_index=None):
         ``tilt`` is the terrace tilt (relative to the scanner plane, taken
         as the mount face); ``spacings`` are the lattice a and b and
         ``row_angle`` its gamma, when a lattice was found; ``steps`` are the
-        step heights. Anything not found is left empty.
+        step heights. Anything not found is left empty. Values are rounded
+        to 1e-4 (Å or degrees) and sigmas to two significant digits.
     """
     if not isinstance(analysis, HeightMapAnalysis):
         raise ImageError(f"expected a HeightMapAnalysis, got {type(analysis).__name__}")
@@ -1286,13 +1300,13 @@ def to_measurement(analysis, *, mount=None, max_index=None):
     tilt = None
     if t.terrace is not None:
         sigma = t.terrace_sigma if t.terrace_sigma is not None and math.isfinite(t.terrace_sigma) else None
-        tilt = Value(min(max(t.terrace, 0.0), 90.0), sigma)
+        tilt = _rounded(min(max(t.terrace, 0.0), 90.0), sigma)
     lat = analysis.lattice
     spacings, row_angle = (), None
     if lat is not None:
-        spacings = (Value(lat.a, lat.sigma_a), Value(lat.b, lat.sigma_b))
-        row_angle = Value(lat.gamma, lat.sigma_gamma)
-    steps = tuple(Value(s.height, s.sigma) for s in analysis.steps)
+        spacings = (_rounded(lat.a, lat.sigma_a), _rounded(lat.b, lat.sigma_b))
+        row_angle = _rounded(lat.gamma, lat.sigma_gamma)
+    steps = tuple(_rounded(s.height, s.sigma) for s in analysis.steps)
     return Measurement(
         mount=tuple(mount) if mount is not None else None,
         max_index=max_index,
