@@ -303,6 +303,7 @@ def test_plane_fit_matches_least_squares_of_numpy():
 
 
 def test_square_lattice_steps_and_tilt_round_trip():
+    # truth: the parameters the synthetic topograph is built with
     truth = dict(tilt_deg=5.0, azimuth_deg=30.0, step_heights=[1.25] * 3, step_azimuth_deg=10.0,
                  step_wave_angstrom=4.0, lattice=(4.0, 4.0, 90.0, 15.0), corrugation_angstrom=0.1,
                  noise_angstrom=0.05)
@@ -310,7 +311,7 @@ def test_square_lattice_steps_and_tilt_round_trip():
     assert abs(r.tilt.terrace - 5.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 30.0) <= 2.0
     assert r.tilt.terrace_sigma < TILT_DEG
-    # the staircase adds to the terrace slope: the macroscopic plane is steeper
+    # the staircase adds to the terrace slope: 3 steps of 1.25 Å over ~128 Å add about atan(3.75/128) = 1.7° (geometry)
     assert r.tilt.macroscopic > r.tilt.terrace + 0.5
     assert_lattice(r.lattice, 4.0, 4.0, 90.0)
     assert_steps(r.steps, 3, 1.25)
@@ -319,6 +320,7 @@ def test_square_lattice_steps_and_tilt_round_trip():
 
 
 def test_hexagonal_lattice_on_a_strongly_tilted_terrace():
+    # truth: the synthetic parameters
     # at 20° the image shows the lattice foreshortened by cos 20°; a, b, gamma are in the terrace plane
     truth = dict(tilt_deg=20.0, azimuth_deg=-40.0, step_heights=[2.0, -2.0, 2.0], step_azimuth_deg=100.0,
                  step_wave_angstrom=5.0, lattice=(3.0, 3.0, 60.0, 5.0), corrugation_angstrom=0.1,
@@ -327,11 +329,12 @@ def test_hexagonal_lattice_on_a_strongly_tilted_terrace():
     assert abs(r.tilt.terrace - 20.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 320.0) <= 1.0
     assert_lattice(r.lattice, 3.0, 3.0, 60.0)
-    assert r.lattice.peaks == 3
+    assert r.lattice.peaks == 3  # first shell of a hexagonal lattice: three spots per half plane (textbook)
     assert_steps(r.steps, 3, 2.0)
 
 
 def test_oblique_lattice_with_non_square_pixels():
+    # truth: the synthetic parameters; the expected a, b, gamma are those of the Gauss-reduced basis
     truth = dict(tilt_deg=3.0, azimuth_deg=200.0, lattice=(3.6, 5.1, 70.0, 40.0), corrugation_angstrom=0.15,
                  noise_angstrom=0.05, step_heights=[1.8], step_azimuth_deg=60.0)
     px = (0.4, 0.5)
@@ -342,6 +345,7 @@ def test_oblique_lattice_with_non_square_pixels():
 
 
 def test_single_terrace_has_no_steps_and_says_so():
+    # truth: one terrace, tilt 2°, hexagonal 3 Å corrugation (synthetic)
     z = synthetic_heightmap((256, 256), 0.5, tilt_deg=2.0, azimuth_deg=75.0, lattice=(3.0, 3.0, 60.0, 5.0),
                             noise_angstrom=0.05, seed=3)
     r = analyse_heightmap(z, 0.5)
@@ -373,6 +377,7 @@ def test_strong_noise_is_an_honest_not_found():
 
 
 def test_pure_noise_finds_nothing():
+    # white noise has no lattice and no terraces: the false-alarm rate is 1e-3 per image by construction
     z = np.random.default_rng(6).normal(0.0, 0.3, (256, 256))
     r = analyse_heightmap(z, 0.5)
     assert r.lattice is None and r.steps == ()
@@ -415,6 +420,7 @@ def test_step_uncertainty_covers_the_error_under_noise():
 
 
 def test_missing_pixels_are_ignored():
+    # truth: the synthetic parameters; NaN blocks must not change the answer
     z = synthetic_heightmap((256, 256), 0.5, tilt_deg=6.0, azimuth_deg=250.0, step_heights=[1.6, 1.6],
                             lattice=(4.2, 4.2, 90.0, 30.0), noise_angstrom=0.05, seed=8)
     z[100:130, 40:90] = np.nan

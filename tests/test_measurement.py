@@ -52,6 +52,7 @@ FULL = Measurement(
 # ----------------------------------------------------------------- parse_value
 
 
+# the spellings the measurement format specifies: "30", "30+-3", "30±3", "30 +/- 3"
 @pytest.mark.parametrize(
     "text, value, sigma",
     [

@@ -5,10 +5,10 @@
 Prints the median wall time of several runs of
 :func:`termination.heightmap.analyse_heightmap` on a synthetic topograph:
 six 1.25 Å steps, a 3.9 Å square corrugation, 3° terrace tilt, 0.05 Å noise,
-0.25 Å pixels. The first figure recorded on the project's 2-core machine:
-median 3.0 s (2.9-4.3 s over runs, depending on load), of which the Fourier
-stage is about 0.4 s and the terrace segmentation (on a 2x2-binned copy)
-about 1.3 s.
+0.25 Å pixels. Recorded on the project's 2-core machine: median 2.02 s over
+7 runs (min 1.98 s, max 2.43 s) with a load average of about 1.5; 2.4 s
+median under a load average of 3. Of that, the terrace segmentation (on a
+2x2-binned copy) takes about half and the Fourier stage about 0.4 s.
 """
 
 import argparse
