@@ -6,11 +6,14 @@ termination.
 
 - this project, in-process: ``distinct_faces`` and ``face_terminations`` for
   each face.  Each run starts from a freshly built ``Crystal`` (built outside
-  the timer), so the per-crystal bond-graph cache is cold and every run does
-  the full work.  Median of ``--repeats`` runs.
+  the timer), so the per-crystal caches are cold and every run does the full
+  work.  Median of ``--repeats`` runs, spread before, between and after the
+  pymatgen runs so that both sides see the same machine load.
 - pymatgen: ``get_symmetrically_distinct_miller_indices`` plus
   ``SlabGenerator(...).get_slabs()`` for each face (``--pymatgen-repeats``
-  runs, median; it is slow).
+  runs, median; it is slow).  Each run is timed inside a fresh interpreter,
+  after pymatgen's imports and a warm-up at max index 1 (its lazy loading),
+  because the full job slows down when repeated in one process.
 
 The two jobs are not identical in detail: pymatgen groups faces by the
 lattice's reciprocal symmetry (so (1 1 1) and (-1 -1 -1) of a half-Heusler
@@ -26,6 +29,7 @@ The last line is ``speedup: <geometric mean>x``.
 import argparse
 import os
 import statistics
+import subprocess
 import sys
 import time
 import warnings
@@ -68,29 +72,56 @@ def theirs(structure, max_index, slab_angstrom, vacuum_angstrom):
     return len(hkls), n
 
 
-def time_ours(spec, max_index, repeats):
-    times = []
-    for _ in range(repeats):
-        crystal = build_prototype(spec)  # fresh crystal: no warm caches
-        t0 = time.perf_counter()
-        counts = ours(crystal, max_index)
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times), counts
+def time_ours_once(spec, max_index):
+    crystal = build_prototype(spec)  # fresh crystal: no warm caches
+    t0 = time.perf_counter()
+    counts = ours(crystal, max_index)
+    return time.perf_counter() - t0, counts
 
 
-def time_theirs(spec, max_index, repeats, slab_angstrom, vacuum_angstrom):
+def pymatgen_child(spec, max_index, slab_angstrom, vacuum_angstrom):
+    """One pymatgen run (after its imports); prints 'seconds faces slabs'."""
     from pymatgen.core import Lattice, Structure
 
     crystal = build_prototype(spec)
     structure = Structure(Lattice(crystal.lattice), list(crystal.species), crystal.positions)
-    times = []
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        for _ in range(repeats):
-            t0 = time.perf_counter()
-            counts = theirs(structure, max_index, slab_angstrom, vacuum_angstrom)
-            times.append(time.perf_counter() - t0)
-    return statistics.median(times), counts
+        theirs(structure, 1, slab_angstrom, vacuum_angstrom)  # warm-up: lazy loading inside pymatgen
+        t0 = time.perf_counter()
+        faces, slabs = theirs(structure, max_index, slab_angstrom, vacuum_angstrom)
+        elapsed = time.perf_counter() - t0
+    print(f"{elapsed!r} {faces} {slabs}")
+
+
+def time_theirs_once(spec, max_index, slab_angstrom, vacuum_angstrom):
+    """One pymatgen run in a fresh interpreter.
+
+    pymatgen's job gets slower when repeated in one process (LaB6 here: about
+    15 s the first time, 45 s after), so each run starts clean.
+    """
+    argv = [sys.executable, os.path.abspath(__file__), "--pymatgen-child", spec, "--max-index", str(max_index),
+            "--slab-angstrom", repr(slab_angstrom), "--vacuum-angstrom", repr(vacuum_angstrom)]
+    out = subprocess.run(argv, check=True, capture_output=True, text=True).stdout.split()
+    return float(out[0]), (int(out[1]), int(out[2]))
+
+
+def time_both(spec, max_index, repeats, pymatgen_repeats, slab_angstrom, vacuum_angstrom):
+    """Medians of both sides; our runs are spread before, between and after pymatgen's.
+
+    On a shared machine the load drifts over the minutes pymatgen takes;
+    interleaving exposes both sides to the same conditions.
+    """
+    batches = np.array_split(np.arange(repeats), pymatgen_repeats + 1)
+    t_ours, t_theirs = [], []
+    for k, batch in enumerate(batches):
+        for _ in batch:
+            t, counts_ours = time_ours_once(spec, max_index)
+            t_ours.append(t)
+        if k < pymatgen_repeats:
+            t, counts_theirs = time_theirs_once(spec, max_index, slab_angstrom, vacuum_angstrom)
+            t_theirs.append(t)
+    return statistics.median(t_ours), counts_ours, statistics.median(t_theirs), counts_theirs
 
 
 def main(argv=None):
@@ -100,21 +131,22 @@ def main(argv=None):
     parser.add_argument("--pymatgen-repeats", type=int, default=1, help="runs of pymatgen (median)")
     parser.add_argument("--slab-angstrom", type=float, default=10.0, help="pymatgen min_slab_size, Å")
     parser.add_argument("--vacuum-angstrom", type=float, default=10.0, help="pymatgen min_vacuum_size, Å")
+    parser.add_argument("--pymatgen-child", metavar="SPEC", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
+    if args.pymatgen_child:
+        pymatgen_child(args.pymatgen_child, args.max_index, args.slab_angstrom, args.vacuum_angstrom)
+        return
 
-    # Import pymatgen before timing so that its import is not charged to the first structure.
-    import pymatgen.core.surface  # noqa: F401
-
-    print(f"max index {args.max_index}; this project: median of {args.repeats} runs, fresh Crystal each; "
-          f"pymatgen: median of {args.pymatgen_repeats} run(s), SlabGenerator(min_slab_size={args.slab_angstrom:g} Å, "
-          f"min_vacuum_size={args.vacuum_angstrom:g} Å).get_slabs()")
+    print(f"max index {args.max_index}; this project: median of {args.repeats} runs in-process, fresh Crystal each; "
+          f"pymatgen: median of {args.pymatgen_repeats} run(s), each in a fresh interpreter after imports and a max-index-1 warm-up, "
+          f"SlabGenerator(min_slab_size={args.slab_angstrom:g} Å, min_vacuum_size={args.vacuum_angstrom:g} Å)"
+          ".get_slabs()")
     header = f"{'structure':<10} {'faces ours/pmg':>15} {'terms/slabs':>12} {'ours (ms)':>10} {'pymatgen (s)':>13} {'ratio':>8}"
     print(header)
     ratios = []
     for label, spec in STRUCTURES:
-        t_ours, (nf, nt) = time_ours(spec, args.max_index, args.repeats)
-        t_theirs, (pf, ps) = time_theirs(spec, args.max_index, args.pymatgen_repeats, args.slab_angstrom,
-                                         args.vacuum_angstrom)
+        t_ours, (nf, nt), t_theirs, (pf, ps) = time_both(spec, args.max_index, args.repeats, args.pymatgen_repeats,
+                                                          args.slab_angstrom, args.vacuum_angstrom)
         ratio = t_theirs / t_ours
         ratios.append(ratio)
         print(f"{label:<10} {f'{nf}/{pf}':>15} {f'{nt}/{ps}':>12} {1e3 * t_ours:10.2f} {t_theirs:13.2f} "
