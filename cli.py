@@ -64,6 +64,10 @@ UnitRatioOpt = Annotated[
     float,
     typer.Option("--unit-ratio", help="Cuts costing more than this times the cheapest lie inside a unit."),
 ]
+VisibleOpt = Annotated[
+    Optional[List[str]], typer.Option("--visible", help="Only this species images in the corrugation; repeatable.")
+]
+WeightOpt = Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")]
 MountOpt = Annotated[
     Optional[Tuple[int, int, int]],
     typer.Option("--mount", help="Mount face H K L (three integers).", show_default=False),
@@ -419,8 +423,8 @@ def match(
     step: Annotated[Optional[List[str]], typer.Option("--step", help="Step height, e.g. 1.25+-0.1 (Å); repeatable.")] = None,
     steps: Annotated[Optional[str], typer.Option("--steps", help="File of step heights, one per line (optional sigma column).")] = None,
     max_index: Annotated[Optional[int], typer.Option("--max-index", help="Largest Miller index of the candidates (default 3).")] = None,
-    visible: Annotated[Optional[List[str]], typer.Option("--visible", help="Only this species shows in the corrugation; repeatable.")] = None,
-    weight: Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")] = None,
+    visible: VisibleOpt = None,
+    weight: WeightOpt = None,
     decay_length: Annotated[Optional[float], typer.Option("--decay-length", help="Decay of visibility with depth, Å.")] = None,
     charge: ChargeOpt = None,
     flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
@@ -526,10 +530,8 @@ def corrugation(
     termination: Annotated[
         Optional[str], typer.Option("--termination", help="Termination id (T2) or label (SrO); default all.")
     ] = None,
-    visible: Annotated[
-        Optional[List[str]], typer.Option("--visible", help="Only this species images; repeatable.")
-    ] = None,
-    weight: Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")] = None,
+    visible: VisibleOpt = None,
+    weight: WeightOpt = None,
     decay_length: Annotated[
         float, typer.Option("--decay-length", help="Decay length λ of the depth weight exp(-depth/λ), Å.")
     ] = 0.5,
