@@ -8,10 +8,9 @@ exit code 2; ``--traceback`` (anywhere on the command line) shows the trace.
 import functools
 import json
 import sys
-from typing import List, Optional, Tuple
+from typing import Annotated, List, Optional, Tuple
 
 import typer
-from typing_extensions import Annotated
 
 app = typer.Typer(
     add_completion=False,
