@@ -68,6 +68,7 @@ __all__ = [
     "Criterion",
     "MatchRow",
     "MatchReport",
+    "FaceProbability",
     "candidate_table",
     "score",
     "match",
@@ -207,11 +208,20 @@ class MatchRow:
 
 
 @dataclass(frozen=True)
+class FaceProbability:
+    """Posterior probability of a face, summed over its terminations and cells."""
+
+    hkl: tuple
+    probability: float
+
+
+@dataclass(frozen=True)
 class MatchReport:
     structure: StructureSummary
     mount: tuple | None
     measurement: dict
     candidates: tuple
+    faces: tuple
     verdict: str
     warning: str | None
     notes: tuple
@@ -569,10 +579,12 @@ def score(table, measurement, top=None):
         raise MeasurementError("no candidate is compatible with the measurement (check the mount and tilt)")
     prob = np.exp(post - _logsumexp(post))
     order = np.lexsort((np.arange(len(prob)), -np.round(prob, 12)))
-    if top is not None:
-        order = order[: int(top)]
-    rows = tuple(_row(rank + 1, table.candidates[i], prob[i], loglik[i], eff, table.model) for rank, i in enumerate(order))
-    verdict, warning = _verdict(rows, len(table.candidates), prob[order])
+    shown = order if top is None else order[: int(top)]
+    rows = tuple(_row(rank + 1, table.candidates[i], prob[i], loglik[i], eff, table.model) for rank, i in enumerate(shown))
+    faces = _face_marginals(table.candidates, prob)
+    second = None if len(order) < 2 else _row(2, table.candidates[order[1]], prob[order[1]], loglik[order[1]], eff,
+                                               table.model)
+    verdict, warning = _verdict(rows[0], second, len(table.candidates), faces)
     notes = table.notes + (
         "An identification is a ranked hypothesis from a model, not proof: confirm it with an independent probe.",
     )
@@ -581,6 +593,7 @@ def score(table, measurement, top=None):
         mount=table.mount,
         measurement=_echo(eff),
         candidates=rows,
+        faces=faces,
         verdict=verdict,
         warning=warning,
         notes=notes,
@@ -649,22 +662,37 @@ def _row(rank, c, p, ll, eff, model):
     )
 
 
-def _verdict(rows, n_candidates, probs):
-    best = rows[0]
-    face = "(" + " ".join(str(v) for v in best.hkl) + ")"
+def _face_marginals(candidates, prob):
+    """Faces ranked by their summed probability."""
+    total = {}
+    for c, p in zip(candidates, prob):
+        total[c.hkl] = total.get(c.hkl, 0.0) + float(p)
+    ranked = sorted(total.items(), key=lambda kv: (-round(kv[1], 12), kv[0]))
+    return tuple(FaceProbability(hkl=h, probability=p) for h, p in ranked)
+
+
+def _hkl(hkl):
+    return "(" + " ".join(str(v) for v in hkl) + ")"
+
+
+def _verdict(best, second, n_candidates, faces):
     cell = "" if best.cell is None else f" {best.cell}"
     verdict = (
-        f"Most likely {face} {best.termination}-terminated{cell}, probability {best.probability:.2f} "
-        f"among {n_candidates} candidates (a ranked hypothesis, not proof)."
+        f"Most likely {_hkl(best.hkl)} {best.termination}-terminated{cell}, probability {best.probability:.2f} "
+        f"among {n_candidates} candidates; face {_hkl(faces[0].hkl)} with probability {faces[0].probability:.2f} "
+        "over its terminations (a ranked hypothesis, not proof)."
     )
     warning = None
-    if len(probs) > 1 and probs[1] > 0 and probs[0] / probs[1] < 2.0:
-        second = rows[1]
+    if second is not None and second.probability > 0 and best.probability / second.probability < 2.0:
         warning = (
-            f"Ambiguous: the runner-up ({' '.join(str(v) for v in second.hkl)}) {second.termination}"
+            f"Ambiguous: the runner-up {_hkl(second.hkl)} {second.termination}"
             f"{'' if second.cell is None else ' ' + second.cell} is within a factor of 2 "
             f"(p = {second.probability:.2f}); measure more (steps, a second spacing, the tilt) to separate them."
         )
+        if len(faces) > 1 and faces[1].probability > 0 and faces[0].probability / faces[1].probability < 2.0:
+            warning += (
+                f" The faces {_hkl(faces[0].hkl)} and {_hkl(faces[1].hkl)} are themselves within a factor of 2."
+            )
     return verdict, warning
 
 
