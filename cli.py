@@ -493,6 +493,9 @@ def match(
     console.print(table)
     console.print("[dim]Each cell: predicted value (residual in σ); steps: measured heights explained within 2σ. "
                   "--json gives every criterion.[/dim]")
+    console.print("Faces, over their terminations: " + ", ".join(
+        f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in report.faces[:4] if f.probability >= 0.005
+    ))
     console.print(f"[bold]{report.verdict}[/bold]")
     if report.warning:
         console.print(f"[yellow]{report.warning}[/yellow]")
