@@ -417,13 +417,14 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
     polarity is not assessed and no reconstruction candidates are added.
     """
     from .charges import assign_charges
-    from .corrugation import reconstruction_corrugation
-    from .polarity import termination_polarity
 
     found = assign_charges(crystal, charges, use_pymatgen=False, required=charges is not None)
     if found is None:
         return crystal, None, ["no formal charges known (give --charge EL=Q): polarity not assessed, "
                                "no reconstruction candidates"]
+    from .corrugation import reconstruction_corrugation
+    from .polarity import termination_polarity
+
     notes = [f"formal charges {found.method}: "
              + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
     if found.caution:
