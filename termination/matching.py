@@ -326,6 +326,7 @@ def candidate_table(
     mount = None if mount is None else check_hkl(mount, "mount")
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     vis = _visibility_options(visible, weights, decay_length_angstrom)
+    _check_visibility(crystal, vis)
     crystal, polar_info, notes = _polarity_provider(crystal, charges, reconstructions, max_cell, vis)
     per_face = []
     for f in faces:
@@ -408,6 +409,31 @@ def _visibility_options(visible, weights, decay_length_angstrom):
     if decay_length_angstrom is not None:
         out["decay_length_angstrom"] = float(decay_length_angstrom)
     return out
+
+
+def _check_visibility(crystal, vis):
+    """Visible species and weights must name elements of the crystal, and one must image.
+
+    Checked once for the crystal: per termination a species that is merely
+    absent from the top unit makes that termination flat, which is a result.
+    """
+    from .elements import check_symbol
+
+    present = sorted(set(crystal.species))
+
+    def known(el, what):
+        try:
+            norm = check_symbol(el)
+        except StructureError as exc:
+            raise MeasurementError(f"{what} {el!r}: {exc}") from None
+        if norm not in present:
+            raise MeasurementError(f"{what} {norm!r} is not in this crystal ({', '.join(present)})")
+        return norm
+
+    visible = {known(el, "visible species") for el in vis.get("visible", ())}
+    weights = {known(el, "weighted species"): float(w) for el, w in vis.get("weights", {}).items()}
+    if not any(weights.get(el, 1.0 if not visible or el in visible else 0.0) > 0 for el in present):
+        raise MeasurementError(f"no species images: the visibility weights of {', '.join(present)} are all zero")
 
 
 def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):

@@ -69,6 +69,24 @@ def test_bad_inputs_give_one_line(args, text):
     assert len(lines) == 1 and text in lines[0], lines
 
 
+@pytest.mark.parametrize(
+    "extra, text",
+    [
+        (["--visible", "Xx"], "Xx"),  # not an element
+        (["--visible", "K"], "'K' is not in this crystal"),  # an element, but not in NaCl
+        (["--weight", "K=0.5"], "'K' is not in this crystal"),
+        (["--weight", "Na=0", "--weight", "Cl=0"], "all zero"),
+        (["--visible", "Na", "--weight", "Na=0"], "all zero"),
+    ],
+)
+def test_match_rejects_visibility_that_names_no_imaging_species_of_the_crystal(extra, text):
+    # Before, these left every termination flat and ranked on the floors alone, silently.
+    r = runner.invoke(cli.app, ["match", "rocksalt:Na,Cl", "--spacing", "4"] + extra)
+    assert r.exit_code == 2, r.output
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and text in lines[0], lines
+
+
 @pytest.mark.parametrize("path", EXAMPLES, ids=[p.stem for p in EXAMPLES])
 def test_example_files_identify_their_face(path):
     # Examples are invented practice scenarios; the file name says the intended face.
