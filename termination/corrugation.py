@@ -48,6 +48,8 @@ __all__ = [
 #: decay length 1/(2 kappa) of the tunnelling current, kappa = sqrt(2 m phi)/hbar,
 #: for a work function phi of about 4 eV (Tersoff & Hamann 1985).
 DEFAULT_DECAY_LENGTH = 0.5
+#: Largest ``max_depth_angstrom`` (Å): far below anything a topograph sees.
+MAX_DEPTH_ANGSTROM = 1000.0
 #: A spot is visible when |F(G)|/F(0) exceeds this.
 DEFAULT_THRESHOLD = 0.05
 #: Spots are listed out to this many times the longest reduced reciprocal mesh vector.
@@ -433,6 +435,8 @@ def _check_options(species, visible, weights, decay, max_depth, threshold, max_o
         md = float(max_depth)
         if not (np.isfinite(md) and md >= 0):
             raise StructureError(f"maximum depth must be a non-negative length in Å, got {max_depth}")
+        if md > MAX_DEPTH_ANGSTROM:  # every periodic image down to it is listed: bound the work
+            raise StructureError(f"maximum depth must be at most {MAX_DEPTH_ANGSTROM:g} Å, got {max_depth}")
     th = float(threshold)
     if not (np.isfinite(th) and 0 < th < 1):
         raise StructureError(f"spot threshold must lie between 0 and 1, got {threshold}")
@@ -506,8 +510,9 @@ def termination_corrugation(
     decay_length_angstrom : float
         lambda of the depth weight exp(-depth/lambda), Å (``inf``: no decay).
     max_depth_angstrom : float or None
-        Atoms down to this depth below the top layer image.  None (default):
-        the atoms of the top termination unit.
+        Atoms down to this depth below the top layer image, at most
+        :data:`MAX_DEPTH_ANGSTROM`.  None (default): the atoms of the top
+        termination unit.
     threshold : float
         Visible spots have |F(G)|/F(0) > threshold, 0 < threshold < 1.
     max_order : float

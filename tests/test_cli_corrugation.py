@@ -95,6 +95,18 @@ def test_corrugation_bad_inputs_give_one_line_and_exit_code_2():
         assert len(lines) == 1 and text in lines[0] and "Traceback" not in r.output, (args, r.stderr)
 
 
+def test_corrugation_depth_beyond_the_bound_is_an_error_not_a_runaway():
+    # --depth 1e300 used to overflow the image range and exhaust memory.
+    for depth, shown in (("1e300", "1e+300"), ("1001", "1001")):
+        r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--depth", depth,
+                   "--no-reconstructions")
+        assert r.exit_code == 2, r.output
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and "at most 1000" in lines[0] and shown in lines[0], lines
+    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--depth", "1000", "--no-reconstructions")
+    assert r.exit_code == 0, r.output
+
+
 def test_terminations_table_shows_the_apparent_lattice_column():
     # SrTiO3 (001), a = 3.905 Å: TiO2 shows the mesh, SrO (Sr and O alike, the
     # rock-salt-like layer) a/sqrt 2 = 2.761 Å (two-site structure factor, common practice).
