@@ -109,6 +109,10 @@ def _bond_graph(crystal, bond_factor, cutoff_angstrom, shell_factor):
         pair_cut = np.full_like(pair_cut, cutoff_angstrom)
     rmax = float(pair_cut.max())
     lattice = crystal.lattice
+    # Every atom has its own image one lattice vector away, so no nearest-neighbour
+    # distance exceeds the shortest cell vector, and the first-shell rule below drops
+    # anything beyond shell_factor times it: a larger cutoff only enlarges the search.
+    rmax = min(rmax, shell_factor * float(np.linalg.norm(lattice, axis=1).min()) * (1 + 1e-6))
     # Image range: enough cells along each axis to reach rmax (plane spacing 1/|b_i|).
     spacing = 1.0 / np.linalg.norm(crystal.reciprocal, axis=1)
     reach = np.ceil(rmax / spacing).astype(int) + 1

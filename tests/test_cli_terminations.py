@@ -31,3 +31,16 @@ def test_terminations_bad_input():
     assert r.exit_code == 2 and "--plane" in r.stderr
     r = runner.invoke(cli.app, ["terminations", "fcc:Cu", "--plane", "1", "1", "1", "--layer-tol", "-1"])
     assert r.exit_code == 2 and "-1" in r.stderr
+
+
+def test_huge_bond_cutoff_or_factor_gives_the_first_shell_result_without_overflow():
+    # The first-shell rule caps bonds at 1.2 x the nearest-neighbour distance, so any
+    # cutoff beyond it must give the same graph; 1e300 used to overflow the image range.
+    args = ["terminations", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--json"]
+    ref = runner.invoke(cli.app, args + ["--bond-cutoff", "10"])
+    assert ref.exit_code == 0, ref.output
+    for extra in (["--bond-cutoff", "1e300"], ["--bond-factor", "1e300"]):
+        r = runner.invoke(cli.app, args + extra)
+        assert r.exit_code == 0 and r.stderr == "", (extra, r.stderr)
+        got, want = json.loads(r.stdout), json.loads(ref.stdout)
+        assert got["terminations"] == want["terminations"] and got["steps"] == want["steps"]
