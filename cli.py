@@ -782,7 +782,13 @@ def image(
     from termination.heightmap_io import read_heightmap, sidecar_path
     from termination.measurement import write_measurement, write_steps
 
+    from pathlib import Path
+
+    from termination.errors import MeasurementError
+
     inputs = (file, sidecar_path(file))
+    if out and steps_out and Path(out).resolve() == Path(steps_out).resolve():
+        raise MeasurementError(f"--out and --steps-out name the same file {out}; choose two names")
     _refuse_existing(out, force, inputs)
     _refuse_existing(steps_out, force, inputs)
     hm = read_heightmap(file, pixel_size=pixel_size, z_unit=z_unit)

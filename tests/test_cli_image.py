@@ -120,3 +120,15 @@ def test_bad_inputs_give_one_line_and_exit_code_2(scan, tmp_path):
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and text in lines[0] and "Traceback" not in r.output, (args, r.stderr)
     assert np.load(scan).shape == (256, 256)  # the input is untouched
+
+
+def test_out_and_steps_out_naming_one_file_is_refused_before_writing(scan, tmp_path):
+    # Before, the measurement file was written and then the step list failed on it.
+    target = tmp_path / "both.toml"
+    for extra in ([], ["--force"]):
+        r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", target,
+                   "--steps-out", tmp_path / "." / "both.toml", *extra)
+        assert r.exit_code == 2, r.output
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and "same file" in lines[0], lines
+        assert not target.exists()
