@@ -785,12 +785,14 @@ def image(
     from pathlib import Path
 
     from termination.errors import MeasurementError
+    from termination.measurement import Measurement
 
     inputs = (file, sidecar_path(file))
     if out and steps_out and Path(out).resolve() == Path(steps_out).resolve():
         raise MeasurementError(f"--out and --steps-out name the same file {out}; choose two names")
     _refuse_existing(out, force, inputs)
     _refuse_existing(steps_out, force, inputs)
+    Measurement(mount=triple(mount))  # a bad --mount fails before the analysis, with or without --out
     hm = read_heightmap(file, pixel_size=pixel_size, z_unit=z_unit)
     with _image_progress(hm.shape) as bar:
         task = None if bar is None else bar.add_task("analysing", total=1.0)

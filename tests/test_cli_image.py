@@ -132,3 +132,11 @@ def test_out_and_steps_out_naming_one_file_is_refused_before_writing(scan, tmp_p
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and "same file" in lines[0], lines
         assert not target.exists()
+
+
+def test_bad_mount_is_an_error_even_without_out(scan):
+    # --mount only ends up in the --out file, but a (0 0 0) mount is bad input either way.
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--mount", 0, 0, 0)
+    assert r.exit_code == 2, r.output
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "0 0 0" in lines[0], lines
