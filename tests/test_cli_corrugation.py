@@ -117,3 +117,14 @@ def test_terminations_table_shows_the_apparent_lattice_column():
     data = json.loads(invoke("terminations", "perovskite:Sr,Ti,O", "--plane", "0", "0", "1", "--json").stdout)
     assert len(data["apparent_lattices"]) == len(data["terminations"])
     assert {"a", "b", "gamma"} == set(data["apparent_lattices"][0])
+
+
+def test_weight_overrides_visible_as_the_readme_says():
+    # rock salt (001), a = 5.64 Å: Na alone images the a/sqrt 2 = 3.988 Å mesh; Na and Cl
+    # equally weighted cancel the (1 0) spots, a/2 = 2.82 Å (two-site structure factor, common practice).
+    only_na = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na",
+                                "--json").stdout)
+    both = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na",
+                             "--weight", "Cl=1", "--json").stdout)
+    assert abs(only_na["terminations"][0]["apparent_lattice"]["a"] - 3.988) < 1e-3
+    assert abs(both["terminations"][0]["apparent_lattice"]["a"] - 2.820) < 1e-3
