@@ -292,6 +292,12 @@ def read_sidecar(path):
     if unknown:
         raise ImageError(f"{path}: unknown key {sorted(unknown)[0]!r}; known keys are pixel_size, z_unit")
     out = {}
+    for key in ("pixel_size", "z_unit"):
+        # A bare TOML number has no unit; the file must say it, as --pixel-size and --z-unit do.
+        values = data.get(key) if isinstance(data.get(key), list) else [data.get(key)]
+        if any(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
+            raise ImageError(f"{path}: {key} = {data[key]!r} needs a unit, written as text, e.g. "
+                             + ('"0.05nm"' if key == "pixel_size" else '"nm"'))
     try:
         if "pixel_size" in data:
             out["pixel_size"] = parse_pixel_size(data["pixel_size"])

@@ -216,6 +216,17 @@ def test_sidecar_errors(tmp_path, small):
         read_heightmap(path, z_unit="nm")
 
 
+def test_sidecar_bare_numbers_are_refused_not_taken_as_angstrom(tmp_path, small):
+    # "Neither the pixel size nor the height unit is guessed" (README): a number without a
+    # unit used to be read as Å, so pixel_size = 0.05 meant for nm gave a lattice 10x too small.
+    path = tmp_path / "scan.npy"
+    np.save(path, small)
+    for text in ("pixel_size = 0.05\n", "pixel_size = [0.05, 0.06]\n", 'pixel_size = "0.05nm"\nz_unit = 1\n'):
+        sidecar_path(path).write_text(text, encoding="utf-8")
+        with pytest.raises(ImageError, match="scan.toml.*needs a unit"):
+            read_heightmap(path, z_unit="nm") if "z_unit" not in text else read_heightmap(path)
+
+
 def test_missing_calibration_is_an_error(tmp_path, small):
     path = tmp_path / "scan.npy"
     np.save(path, small)
