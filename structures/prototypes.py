@@ -183,7 +183,9 @@ def parse_spec(spec):
         )
     if not rest.strip():
         raise StructureError(f"prototype {name} needs its elements, e.g. {PROTOTYPES[name].example}")
-    elements = [check_symbol(e) for e in rest.split(",") if e.strip()] if rest else []
+    if any(not e.strip() for e in rest.split(",")):
+        raise StructureError(f"empty element in {spec!r}; write e.g. {PROTOTYPES[name].example}")
+    elements = [check_symbol(e) for e in rest.split(",")]
     if len(elements) != len(PROTOTYPES[name].roles):
         proto = PROTOTYPES[name]
         raise StructureError(

@@ -66,6 +66,13 @@ def test_bad_prototype_input_names_the_value(spec, a, x, message):
         build_prototype(spec, a=a, x=x)
 
 
+@pytest.mark.parametrize("spec", ["rocksalt:Na,,Cl", "rocksalt:Na,Cl,", "rocksalt:,Na,Cl", "rocksalt:Na, ,Cl"])
+def test_empty_element_in_a_spec_is_rejected_not_skipped(spec):
+    # 'rocksalt:Na,,Cl' used to be read as rocksalt:Na,Cl without a word.
+    with pytest.raises(StructureError, match="empty element"):
+        build_prototype(spec, a=5.64)
+
+
 def test_unknown_file_or_spec_is_rejected():
     with pytest.raises(StructureError, match="neither a structure file"):
         load_structure("no-such-file.cif")
