@@ -90,8 +90,13 @@ def handle_errors(fn):
     def wrapper(*args, **kwargs):
         from termination.errors import TerminationError
 
+        import warnings
+
         try:
-            return fn(*args, **kwargs)
+            with warnings.catch_warnings():
+                if not _STATE["traceback"]:  # numeric warnings would break the one-line rule
+                    warnings.simplefilter("ignore", RuntimeWarning)
+                return fn(*args, **kwargs)
         except (TerminationError, OSError) as exc:
             if _STATE["traceback"]:
                 raise
@@ -385,10 +390,20 @@ def _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, 
         row_angle=None if row_angle is None else parse_value(row_angle),
         spacings=tuple(parse_value(v) for v in spacing or ()),
         steps=steps,
-        visible=tuple(visible or ()),
+        visible=tuple(_symbol(v, "--visible") for v in visible or ()),
         weights=parse_assignments(weight, "--weight"),
         decay_length=decay,
     )
+
+
+def _symbol(text, option):
+    from termination.elements import check_symbol
+    from termination.errors import MeasurementError, StructureError
+
+    try:
+        return check_symbol(text)
+    except StructureError as exc:
+        raise MeasurementError(f"{option} {text!r}: {exc}") from None
 
 
 def _fmt_criterion(c, unit, digits=2):
@@ -442,7 +457,9 @@ def match(
     if demo:
         from structures import bundled
 
-        structure = structure or DEMO_STRUCTURE
+        if structure is not None:
+            raise MeasurementError(f"--demo runs its own scenario on {DEMO_STRUCTURE}; drop {structure!r} or --demo")
+        structure = DEMO_STRUCTURE
         measurement = measurement or bundled(DEMO_MEASUREMENT)
     if structure is None:
         raise MeasurementError("give a STRUCTURE (file or prototype spec), or --demo")

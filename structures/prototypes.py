@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from termination.crystal import build_crystal
+from termination.crystal import MAX_LENGTH_ANGSTROM, build_crystal
 from termination.elements import check_symbol
 from termination.errors import StructureError
 
@@ -77,6 +77,8 @@ class Prototype:
             raise StructureError(f"lattice constant must be a number in Å, got {a!r}") from None
         if not np.isfinite(a) or a <= 0:
             raise StructureError(f"lattice constant must be positive, got {a} Å")
+        if a > MAX_LENGTH_ANGSTROM:
+            raise StructureError(f"lattice constant must be at most {MAX_LENGTH_ANGSTROM:g} Å, got {a:g} Å")
         if x is not None and self.default_x is None:
             raise StructureError(f"prototype {self.name} has no free parameter; --x {x} does not apply")
         x = self.default_x if x is None else float(x)

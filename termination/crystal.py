@@ -17,6 +17,8 @@ __all__ = ["Crystal", "build_crystal", "reduced_formula", "MIN_DISTANCE_ANGSTROM
 
 #: Two atoms closer than this (Å) make a structure impossible.
 MIN_DISTANCE_ANGSTROM = 0.5
+#: Lattice vectors longer than this (Å) are rejected as impossible for a crystal.
+MAX_LENGTH_ANGSTROM = 1000.0
 
 
 @dataclass(frozen=True, eq=False)
@@ -146,6 +148,10 @@ def _check_cell(lattice, positions, species):
     lengths = np.linalg.norm(lattice, axis=1)
     if np.any(lengths <= 0):
         raise StructureError(f"lattice vector lengths must be positive, got {np.round(lengths, 4).tolist()} Å")
+    if np.any(lengths > MAX_LENGTH_ANGSTROM):
+        raise StructureError(
+            f"impossible lattice: vector lengths {np.round(lengths, 4).tolist()} Å exceed {MAX_LENGTH_ANGSTROM:g} Å"
+        )
     volume = np.linalg.det(lattice)
     if abs(volume) < 1e-3 * np.prod(lengths):
         raise StructureError(f"impossible lattice: the cell vectors are (nearly) coplanar, volume {volume:.4g} Å³")

@@ -94,7 +94,7 @@ def face_atoms(crystal, face):
     expected = crystal.natoms / len(crystal.centring)
     if len(first) != round(expected):
         raise StructureError(
-            f"face {face.hkl}: found {len(first)} atoms per primitive cell, expected {expected:g}; "
+            f"face ({' '.join(map(str, face.hkl))}): found {len(first)} atoms per primitive cell, expected {expected:g}; "
             "the structure's symmetry tolerance may be too loose"
         )
     sp = s[first]

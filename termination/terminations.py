@@ -50,6 +50,8 @@ __all__ = [
 DEFAULT_UNIT_RATIO = 1.8
 #: Step heights are listed for n = 0 .. DEFAULT_MAX_MULTIPLE periods.
 DEFAULT_MAX_MULTIPLE = 3
+#: Largest accepted max_multiple.
+MAX_MULTIPLE_LIMIT = 50
 
 
 @dataclass(frozen=True)
@@ -163,7 +165,7 @@ class FaceTerminations:
             if key in (t.id, t.label):
                 return t
         known = ", ".join(f"{t.id} ({t.label})" for t in self.terminations)
-        raise StructureError(f"face {self.face.hkl} has no termination {key!r}; it has {known}")
+        raise StructureError(f"face {_hkl_text(self.face.hkl)} has no termination {key!r}; it has {known}")
 
     def _top_height(self, t):
         return self.layers[t.layers[0]].height
@@ -229,6 +231,10 @@ class FaceTerminations:
         )
 
 
+def _hkl_text(hkl):
+    return "(" + " ".join(str(int(v)) for v in hkl) + ")"
+
+
 def face_terminations(
     crystal,
     hkl,
@@ -274,8 +280,8 @@ def face_terminations(
     ratio = float(unit_ratio)
     if not ratio >= 1:
         raise StructureError(f"unit ratio must be at least 1, got {unit_ratio}")
-    if int(max_multiple) != max_multiple or max_multiple < 0:
-        raise StructureError(f"max multiple must be a non-negative integer, got {max_multiple}")
+    if int(max_multiple) != max_multiple or not 0 <= max_multiple <= MAX_MULTIPLE_LIMIT:
+        raise StructureError(f"max multiple must be an integer from 0 to {MAX_MULTIPLE_LIMIT}, got {max_multiple}")
     if face is None:
         face = face_geometry(crystal, hkl)
     graph = bond_graph(crystal, bond_factor, bond_cutoff_angstrom)

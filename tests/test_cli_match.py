@@ -116,3 +116,22 @@ def _elements(proto, compound):
     if proto == "fluorite":
         return els[:2]
     return els
+
+
+def test_demo_takes_no_structure():
+    r = runner.invoke(cli.app, ["match", "--demo", "fcc:Cu"])
+    assert r.exit_code == 2 and "--demo" in r.stderr
+
+
+def test_lower_case_visible_species_is_normalised():
+    r = runner.invoke(cli.app, ["match", "rocksalt:Na,Cl", "--mount", "0", "0", "1", "--tilt", "0+-1",
+                                "--spacing", "3.99+-0.15", "--visible", "cl", "--json", "--top", "1"])
+    assert r.exit_code == 0, r.output
+    assert json.loads(r.stdout)["candidates"][0]["hkl"] == [0, 0, 1]
+
+
+def test_huge_values_give_one_line_and_no_numeric_warnings():
+    r = runner.invoke(cli.app, ["planes", "rocksalt:Na,Cl", "--a", "1e300"])
+    assert r.exit_code == 2 and len(r.stderr.strip().splitlines()) == 1 and "1000" in r.stderr
+    r = runner.invoke(cli.app, ["match", "fcc:Cu", "--mount", "0", "0", "1", "--spacing", "1e300", "--json"])
+    assert r.exit_code == 0 and r.stderr == ""

@@ -179,3 +179,14 @@ def test_unknown_termination_names_the_choices(proto):
     ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
     with pytest.raises(StructureError, match="SrO"):
         ft.termination("LaO")
+
+
+def test_max_multiple_has_a_ceiling(proto):
+    with pytest.raises(StructureError, match="0 to 50"):
+        face_terminations(proto("fcc:Cu"), (1, 1, 1), max_multiple=100000)
+
+
+def test_unknown_termination_message_prints_miller_index_plainly(proto):
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    with pytest.raises(StructureError, match=r"face \(1 1 1\) has no termination"):
+        ft.termination("Xx")
