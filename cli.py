@@ -382,7 +382,12 @@ def _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, 
 
     steps = tuple(parse_value(v) for v in step or ())
     if steps_file:
-        steps = steps + tuple(read_steps(steps_file))
+        from termination.errors import MeasurementError
+
+        from_file = tuple(read_steps(steps_file))
+        if not from_file:
+            raise MeasurementError(f"no step heights in {steps_file}")
+        steps = steps + from_file
     return Measurement(
         mount=None if mount is None else tuple(int(v) for v in mount),
         max_index=max_index,
