@@ -126,7 +126,9 @@ def emit_json(record):
 
 def hkl_text(hkl):
     """'(1 -1 0)' style Miller index."""
-    return "(" + " ".join(str(int(v)) for v in hkl) + ")"
+    from termination.planes import hkl_text as text
+
+    return text(hkl)
 
 
 def uvw_text(uvw):

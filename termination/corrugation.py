@@ -38,6 +38,7 @@ __all__ = [
     "pattern_from_sites",
     "lattice_type",
     "cell_notation",
+    "species_weights",
     "termination_corrugation",
     "supercell_corrugation",
     "reconstruction_corrugation",
@@ -449,12 +450,12 @@ def _check_options(species, visible, weights, decay, max_depth, threshold, max_o
     st = float(site_tol)
     if not (np.isfinite(st) and st > 0):
         raise StructureError(f"site tolerance must be a positive length in Å, got {site_tol}")
-    if not np.any(_species_weights(present, vis, w) > 0):
+    if not np.any(species_weights(present, vis, w) > 0):
         raise StructureError(f"no atom images: the weights of {', '.join(present)} are all zero")
     return vis, w
 
 
-def _species_weights(species, visible, weights):
+def species_weights(species, visible, weights):
     """w(species): 1, or 0 outside ``visible``; ``weights`` override."""
     uniq, inverse = np.unique(np.asarray(species, dtype=object).astype(str), return_inverse=True)
     w = np.array(
@@ -476,7 +477,7 @@ def _surface_sites(ft, key, max_depth):
 
 
 def _amplitudes(species, depth, visible, weights, decay):
-    return _species_weights(species, visible, weights) * np.exp(-np.asarray(depth, float) / float(decay))
+    return species_weights(species, visible, weights) * np.exp(-np.asarray(depth, float) / float(decay))
 
 
 # Public entry points -------------------------------------------------------------------

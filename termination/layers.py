@@ -11,6 +11,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import StructureError
+from .planes import hkl_text
 
 __all__ = ["FaceAtoms", "Layer", "face_atoms", "cluster_layers", "DEFAULT_LAYER_TOL"]
 
@@ -94,7 +95,7 @@ def face_atoms(crystal, face):
     expected = crystal.natoms / len(crystal.centring)
     if len(first) != round(expected):
         raise StructureError(
-            f"face ({' '.join(map(str, face.hkl))}): found {len(first)} atoms per primitive cell, expected {expected:g}; "
+            f"face {hkl_text(face.hkl)}: found {len(first)} atoms per primitive cell, expected {expected:g}; "
             "the structure's symmetry tolerance may be too loose"
         )
     sp = s[first]

@@ -57,7 +57,7 @@ import numpy as np
 
 from .errors import MeasurementError, StructureError
 from .measurement import Measurement, Value
-from .planes import check_hkl, distinct_faces
+from .planes import check_hkl, distinct_faces, hkl_text as _hkl
 from .report import StructureSummary, summarise_structure
 from .terminations import face_terminations
 
@@ -258,7 +258,7 @@ def _periodicities(a, b, gamma, row_spacings):
     return (float(a), float(b), float(third), float(rows[0]), float(rows[1]))
 
 
-def _step_mixture(ft, t, model, equivalent):
+def _step_mixture(ft, t, model):
     """Allowed heights from termination t (up and down) with weights rho^n."""
     d = ft.d
     heights, weights, labels = [], [], []
@@ -347,7 +347,7 @@ def candidate_table(
             except StructureError:  # none of the visible species near this surface
                 pattern = None
             lat = _NO_LATTICE if pattern is None else pattern.apparent_lattice
-            heights, sw, labels = _step_mixture(ft, t, model, None)
+            heights, sw, labels = _step_mixture(ft, t, model)
             base = dict(
                 hkl=f.hkl, termination=t.label, termination_id=t.id, d=ft.d, tilts=tilts, tilt_variants=variants,
                 step_heights=heights, step_weights=sw, step_labels=labels,
@@ -417,6 +417,7 @@ def _check_visibility(crystal, vis):
     Checked once for the crystal: per termination a species that is merely
     absent from the top unit makes that termination flat, which is a result.
     """
+    from .corrugation import species_weights
     from .elements import check_symbol
 
     present = sorted(set(crystal.species))
@@ -432,7 +433,7 @@ def _check_visibility(crystal, vis):
 
     visible = {known(el, "visible species") for el in vis.get("visible", ())}
     weights = {known(el, "weighted species"): float(w) for el, w in vis.get("weights", {}).items()}
-    if not any(weights.get(el, 1.0 if not visible or el in visible else 0.0) > 0 for el in present):
+    if not np.any(species_weights(present, visible or None, weights) > 0):
         raise MeasurementError(f"no species images: the visibility weights of {', '.join(present)} are all zero")
 
 
@@ -465,14 +466,10 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
                 pattern = reconstruction_corrugation(ft, t.id, r, **vis)
             except StructureError:
                 continue
-            cells.append((r.wood or _matrix_text(r.matrix), pattern))
+            cells.append((pattern.cell, pattern))
         return pol.tasker_type == "III", cells
 
     return charged, info, notes
-
-
-def _matrix_text(m):
-    return "(" + " ".join(str(int(v)) for v in np.ravel(m)) + ")"
 
 
 #: Reconstruction cells kept per polar termination (the polarity step ranks them).
@@ -507,20 +504,26 @@ def effective_measurement(measurement, model):
     m = measurement
     floor = 1e-3  # a zero uncertainty would make the densities singular
 
-    def pair(v, rel, mn, absolute=None):
+    def pair(v, default_sigma):
         if v is None:
             return None
-        s = v.sigma if v.sigma is not None else (absolute if absolute is not None else max(rel * abs(v.value), mn))
+        s = default_sigma(v.value) if v.sigma is None else v.sigma
         return (float(v.value), max(float(s), floor))
 
+    def pairs(values, rel, minimum):
+        return np.array([pair(v, lambda x: max(rel * abs(x), minimum)) for v in values], dtype=float).reshape(-1, 2)
+
     return {
-        "tilt": pair(m.tilt, 0, 0, model.tilt_sigma_deg),
-        "row_angle": pair(m.row_angle, 0, 0, model.row_angle_sigma_deg),
-        "spacings": np.array([pair(v, model.spacing_rel, model.spacing_min_angstrom) for v in m.spacings],
-                             dtype=float).reshape(-1, 2),
-        "steps": np.array([pair(v, model.step_rel, model.step_min_angstrom) for v in m.steps],
-                          dtype=float).reshape(-1, 2),
+        "tilt": pair(m.tilt, lambda _: model.tilt_sigma_deg),
+        "row_angle": pair(m.row_angle, lambda _: model.row_angle_sigma_deg),
+        "spacings": pairs(m.spacings, model.spacing_rel, model.spacing_min_angstrom),
+        "steps": pairs(m.steps, model.step_rel, model.step_min_angstrom),
     }
+
+
+def _with_floor(log_density, eps, value_range):
+    """log((1 - eps) p + eps / range): a density with a uniform outlier floor."""
+    return np.logaddexp(np.log1p(-eps) + log_density, np.log(eps / value_range))
 
 
 def _pad(seqs, fill=np.nan):
@@ -555,16 +558,14 @@ def _terms(table, eff):
         lp = np.where(np.isnan(lp), -np.inf, lp)  # no visible lattice predicted
         mix = _logsumexp(lp, axis=1) - np.log(P.shape[1])
         s_max = max(model.outlier_range_angstrom, 1.5 * float(s_m.max()))
-        eps = model.outlier_fraction
-        out["spacings"] = np.logaddexp(np.log1p(-eps) + mix, np.log(eps / s_max)).sum(axis=1)
+        out["spacings"] = _with_floor(mix, model.outlier_fraction, s_max).sum(axis=1)
     if eff["row_angle"] is not None:
         alpha, s = eff["row_angle"]
         g = np.array([c.apparent[2] for c in cands], dtype=float)
         g[~np.isfinite(g)] = np.nan
         pred = np.where(np.abs(alpha - g) <= np.abs(alpha - (180 - g)), g, 180 - g)
-        eps = model.outlier_fraction
         lp = np.where(np.isnan(pred), -np.inf, _log_normal(alpha, pred, s))
-        out["row_angle"] = np.logaddexp(np.log1p(-eps) + lp, np.log(eps / 180.0))
+        out["row_angle"] = _with_floor(lp, model.outlier_fraction, 180.0)
     if len(eff["steps"]):
         H = _pad([c.step_heights for c in cands])
         W = _pad([c.step_weights for c in cands], fill=0.0)
@@ -575,8 +576,7 @@ def _terms(table, eff):
         lp = np.where(np.isnan(H)[:, :, None], -np.inf, lp)
         mix = _logsumexp(lp, axis=1)  # (C, M)
         h_max = max(model.outlier_range_angstrom, 1.5 * float(h.max()))
-        eps = model.outlier_fraction
-        out["steps"] = np.logaddexp(np.log1p(-eps) + mix, np.log(eps / h_max)).sum(axis=1)
+        out["steps"] = _with_floor(mix, model.outlier_fraction, h_max).sum(axis=1)
     for k in out:
         out[k] = np.asarray(out[k], dtype=float).reshape(nc)
     return out
@@ -696,10 +696,6 @@ def _face_marginals(candidates, prob):
         total[c.hkl] = total.get(c.hkl, 0.0) + float(p)
     ranked = sorted(total.items(), key=lambda kv: (-round(kv[1], 12), kv[0]))
     return tuple(FaceProbability(hkl=h, probability=p) for h, p in ranked)
-
-
-def _hkl(hkl):
-    return "(" + " ".join(str(v) for v in hkl) + ")"
 
 
 def _verdict(best, second, n_candidates, faces):

@@ -18,6 +18,7 @@ __all__ = [
     "Mesh",
     "Face",
     "check_hkl",
+    "hkl_text",
     "face_variants",
     "face_geometry",
     "distinct_faces",
@@ -91,6 +92,15 @@ class Face:
     @property
     def multiplicity(self):
         return len(self.variants)
+
+
+def hkl_text(hkl):
+    """Miller index as practitioners write it in text.
+
+    >>> hkl_text((1, -1, 0))
+    '(1 -1 0)'
+    """
+    return "(" + " ".join(str(int(v)) for v in hkl) + ")"
 
 
 def check_hkl(hkl, name="plane"):

@@ -30,7 +30,7 @@ import numpy as np
 
 from .charges import assign_charges
 from .errors import ChargeError, PlaneError
-from .planes import check_hkl, distinct_faces, face_geometry
+from .planes import check_hkl, distinct_faces, face_geometry, hkl_text
 from .supercells import (
     MAX_PATTERNS,
     canonical_hnf,
@@ -621,7 +621,7 @@ def termination_polarity(crystal, face_terminations, termination_key, *, max_cel
     area = ft.face.mesh.area
     d = ft.d
     if ru.charges is None:
-        raise ChargeError(f"face ({' '.join(map(str, ft.face.hkl))}): the atoms carry no charges; build the terminations from a "
+        raise ChargeError(f"face {hkl_text(ft.face.hkl)}: the atoms carry no charges; build the terminations from a "
                           "crystal with charges (Crystal.with_charges)")
     q = np.asarray(ru.charges, dtype=float)
     mu = float(q @ ru.depth)
@@ -754,7 +754,7 @@ def polarity_report(crystal, plane=None, max_index=None, *, charges=None, max_ce
     from .report import summarise_structure
 
     if plane is not None and max_index is not None:
-        raise PlaneError(f"give one face or a largest index, not both (plane ({' '.join(map(str, plane))}), max index {max_index})")
+        raise PlaneError(f"give one face or a largest index, not both (plane {hkl_text(plane)}, max index {max_index})")
     max_cell = _check_max_cell(max_cell)
     assignment = assign_charges(crystal, charges, use_pymatgen=use_pymatgen)
     charged = crystal.with_charges(assignment.per_atom)

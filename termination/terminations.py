@@ -33,7 +33,7 @@ from .bonds import DEFAULT_BOND_FACTOR, bond_graph
 from .elements import composition_label
 from .errors import StructureError
 from .layers import DEFAULT_LAYER_TOL, Layer, cluster_layers, face_atoms
-from .planes import face_geometry
+from .planes import face_geometry, hkl_text
 
 __all__ = [
     "DEFAULT_UNIT_RATIO",
@@ -165,7 +165,7 @@ class FaceTerminations:
             if key in (t.id, t.label):
                 return t
         known = ", ".join(f"{t.id} ({t.label})" for t in self.terminations)
-        raise StructureError(f"face {_hkl_text(self.face.hkl)} has no termination {key!r}; it has {known}")
+        raise StructureError(f"face {hkl_text(self.face.hkl)} has no termination {key!r}; it has {known}")
 
     def _top_height(self, t):
         return self.layers[t.layers[0]].height
@@ -229,10 +229,6 @@ class FaceTerminations:
             charges=None if a.charges is None else a.charges[idx[order]],
             mesh_inplane=a.mesh_inplane,
         )
-
-
-def _hkl_text(hkl):
-    return "(" + " ".join(str(int(v)) for v in hkl) + ")"
 
 
 def face_terminations(
