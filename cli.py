@@ -119,14 +119,14 @@ def _terminal_width():
 
 def emit_json(record):
     """Write the JSON serialisation of a result record to stdout."""
-    from termination.report import to_jsonable
+    from termination.serialise import to_jsonable
 
     typer.echo(json.dumps(to_jsonable(record), indent=2))
 
 
 def hkl_text(hkl):
     """'(1 -1 0)' style Miller index."""
-    from termination.planes import hkl_text as text
+    from termination.surface.miller import hkl_text as text
 
     return text(hkl)
 
@@ -141,7 +141,7 @@ def triple(values):
 
 
 def load(structure, a=None, x=None, symprec=1e-3):
-    from structures import load_structure
+    from termination.structures import load_structure
 
     return load_structure(structure, a=a, x=x, symprec=symprec)
 
@@ -171,7 +171,7 @@ def print_cautions(console, summary=None, hypothesis=False):
 @handle_errors
 def structures(json_out: JsonOpt = False):
     """List the built-in prototypes with their Wyckoff sites."""
-    from structures import PROTOTYPES
+    from termination.structures import PROTOTYPES
 
     rows = [
         {
@@ -219,8 +219,8 @@ def planes(
     json_out: JsonOpt = False,
 ):
     """Symmetry-distinct faces with spacing d, tilt to the mount face, surface mesh and polarity."""
-    from termination.charges import parse_charge_options
-    from termination.report import planes_report
+    from termination.bulk.charges import parse_charge_options
+    from termination.reports import planes_report
 
     crystal = load(structure, a, x, symprec)
     report = planes_report(crystal, max_index=max_index, mount=triple(mount),
@@ -273,7 +273,7 @@ def parse_assignments(items, option, error="MeasurementError"):
     import math
 
     from termination import errors
-    from termination.elements import check_symbol
+    from termination.bulk.elements import check_symbol
 
     exc = getattr(errors, error)
     out = {}
@@ -304,7 +304,7 @@ def require_plane(plane):
 
 
 def composition_text(comp):
-    from termination.elements import composition_label
+    from termination.bulk.elements import composition_label
 
     return composition_label(comp)
 
@@ -325,7 +325,7 @@ def terminations(
     json_out: JsonOpt = False,
 ):
     """Atomic layers, terminations and allowed step heights of one face."""
-    from termination.report import terminations_report
+    from termination.reports import terminations_report
 
     crystal = load(structure, a, x, symprec)
     report = terminations_report(
@@ -380,7 +380,7 @@ DEMO_MEASUREMENT = "demo_TiNiSn_001.toml"
 
 
 def _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, steps_file, visible, weight, decay):
-    from termination.measurement import Measurement, parse_value, read_steps
+    from termination.identification.measurement import Measurement, parse_value, read_steps
 
     steps = tuple(parse_value(v) for v in step or ())
     if steps_file:
@@ -404,7 +404,7 @@ def _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, 
 
 
 def _symbol(text, option):
-    from termination.elements import check_symbol
+    from termination.bulk.elements import check_symbol
     from termination.errors import MeasurementError, StructureError
 
     try:
@@ -458,11 +458,12 @@ def match(
 ):
     """Rank which face and termination match the measured tilt, corrugation and steps."""
     from termination.errors import MeasurementError
-    from termination.matching import MatchModel, match as run_match
-    from termination.measurement import Measurement, merge, read_measurement
+    from termination.identification.likelihood import match as run_match
+    from termination.identification.model import MatchModel
+    from termination.identification.measurement import Measurement, merge, read_measurement
 
     if demo:
-        from structures import bundled
+        from termination.structures import bundled
 
         if structure is not None:
             raise MeasurementError(f"--demo runs its own scenario on {DEMO_STRUCTURE}; drop {structure!r} or --demo")
@@ -475,7 +476,7 @@ def match(
                                            decay_length)
     meas = merge(base, cli_values)
     crystal = load(structure, a, x, symprec)
-    from termination.charges import parse_charge_options
+    from termination.bulk.charges import parse_charge_options
 
     charges = parse_charge_options(charge) or None
     report = run_match(
@@ -579,19 +580,19 @@ def corrugation(
     json_out: JsonOpt = False,
 ):
     """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
-    from termination.charges import parse_charge_options
-    from termination.corrugation import corrugation_report
+    from termination.bulk.charges import parse_charge_options
+    from termination.reports import corrugation_report
 
     crystal = load(structure, a, x, symprec)
+    from termination.surface.corrugation import Visibility
+
+    visibility = Visibility(visible=visible or None, weights=parse_assignments(weight, "--weight", "StructureError"),
+                            decay_length_angstrom=decay_length, max_depth_angstrom=depth, threshold=threshold)
     report = corrugation_report(
         crystal,
         require_plane(plane),
         termination,
-        visible=visible or None,
-        weights=parse_assignments(weight, "--weight", "StructureError"),
-        decay_length_angstrom=decay_length,
-        max_depth_angstrom=depth,
-        threshold=threshold,
+        visibility=visibility,
         reconstructions=reconstructions,
         charges=parse_charge_options(charge) or None,
         max_cell=max_cell,
@@ -683,8 +684,8 @@ def polarity(
     json_out: JsonOpt = False,
 ):
     """Layer charges, dipole, Tasker type, compensating charge and reconstruction cells per termination."""
-    from termination.charges import parse_charge_options
-    from termination.polarity import polarity_report
+    from termination.bulk.charges import parse_charge_options
+    from termination.reports import polarity_report
 
     crystal = load(structure, a, x, symprec)
     report = polarity_report(crystal, plane=triple(plane), max_index=max_index,
@@ -802,14 +803,16 @@ def image(
     """Tilt, lattice and step heights of a topograph (height map)."""
     import numpy as np
 
-    from termination.heightmap import DRIFT_NOTE, analyse_heightmap, to_measurement
-    from termination.heightmap_io import read_heightmap, sidecar_path
-    from termination.measurement import write_measurement, write_steps
+    from termination.imaging.analysis import analyse_heightmap
+    from termination.imaging.fourier import DRIFT_NOTE
+    from termination.identification.measurement import measurement_from_image as to_measurement
+    from termination.imaging.reading import read_heightmap, sidecar_path
+    from termination.identification.measurement import write_measurement, write_steps
 
     from pathlib import Path
 
     from termination.errors import MeasurementError
-    from termination.measurement import Measurement
+    from termination.identification.measurement import Measurement
 
     inputs = (file, sidecar_path(file))
     if out and steps_out and Path(out).resolve() == Path(steps_out).resolve():

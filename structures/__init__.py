@@ -1,4 +1,8 @@
-"""Bulk structures: built-in prototypes, file loading and bundled data."""
+"""Bulk structures: built-in prototypes, structure files and bundled demo data.
+
+In the repository this package sits at the top level (``structures/``); it
+is installed as :mod:`termination.structures`.
+"""
 
 from .loading import bundled, load_structure, read_structure_file
 from .prototypes import KNOWN_LATTICE_CONSTANTS, PROTOTYPES, Prototype, build_prototype, parse_spec

@@ -1,11 +1,14 @@
 """Read bulk structures from files (CIF and what ASE reads) or prototype specs."""
 
+from __future__ import annotations
+
 import os
 import warnings
 
 import numpy as np
 
-from termination.crystal import build_crystal
+from termination.bulk.crystal import build_crystal
+from termination.defaults import SYMPREC_ANGSTROM
 from termination.errors import StructureError
 
 from .prototypes import PROTOTYPES, build_prototype
@@ -20,7 +23,7 @@ def bundled(name):
     return os.path.join(_DATA, name)
 
 
-def read_structure_file(path, symprec=1e-3):
+def read_structure_file(path, symprec=SYMPREC_ANGSTROM):
     """Crystal from a structure file.
 
     CIF files are read with pymatgen (oxidation states, when the CIF gives
@@ -81,7 +84,7 @@ def _read_with_ase(path):
     return np.array(atoms.cell), atoms.get_scaled_positions(wrap=True), atoms.get_chemical_symbols(), None
 
 
-def load_structure(spec, a=None, x=None, symprec=1e-3):
+def load_structure(spec, a=None, x=None, symprec=SYMPREC_ANGSTROM):
     """Crystal from a file path or a prototype spec ``NAME:EL1,EL2,...``.
 
     Parameters

@@ -6,12 +6,15 @@ cell.  ``--a`` sets the lattice constant; ``--x`` the free positional
 parameter where the prototype has one.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass
 
 import numpy as np
 
-from termination.crystal import MAX_LENGTH_ANGSTROM, build_crystal
-from termination.elements import check_symbol
+from termination.bulk.crystal import build_crystal
+from termination.bulk.elements import check_symbol
+from termination.defaults import MAX_LENGTH_ANGSTROM, SYMPREC_ANGSTROM
 from termination.errors import StructureError
 
 __all__ = ["Prototype", "PROTOTYPES", "KNOWN_LATTICE_CONSTANTS", "build_prototype", "parse_spec"]
@@ -64,7 +67,7 @@ class Prototype:
         return ", ".join(f"{self.roles[r]} {w}" for r, w, _ in self.sites)
 
     def build(self, elements, a, x=None, name=None):
-        """Conventional cell of this prototype (a :class:`~termination.crystal.Crystal`)."""
+        """Conventional cell of this prototype (a :class:`~termination.bulk.crystal.Crystal`)."""
         elements = [check_symbol(e) for e in elements]
         if len(elements) != len(self.roles):
             raise StructureError(
@@ -197,7 +200,7 @@ def parse_spec(spec):
     return PROTOTYPES[name], elements
 
 
-def build_prototype(spec, a=None, x=None, symprec=1e-3):
+def build_prototype(spec, a=None, x=None, symprec=SYMPREC_ANGSTROM):
     """Crystal from a spec such as ``half-heusler:Ti,Ni,Sn``.
 
     ``a`` defaults to :data:`KNOWN_LATTICE_CONSTANTS` for tabulated compounds.

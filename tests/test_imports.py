@@ -22,9 +22,9 @@ print("HEAVY=" + json.dumps(heavy))
 """
 
 LIBRARY_JOB = """
-from structures import build_prototype
-from termination.planes import distinct_faces
-from termination.terminations import face_terminations
+from termination.structures import build_prototype
+from termination.surface.faces import distinct_faces
+from termination.surface.terminations import face_terminations
 
 crystal = build_prototype("half-heusler:Ti,Ni,Sn")
 faces = distinct_faces(crystal, max_index=2)
@@ -35,7 +35,7 @@ assert n > 0
 
 def cli_job(*args):
     return f"""
-import cli
+from termination import cli
 try:
     cli.main({list(args)!r})
 except SystemExit as exc:
@@ -61,7 +61,7 @@ def test_planes_command_on_a_prototype_imports_no_heavy_library():
 
 
 def test_match_demo_imports_no_heavy_library():
-    import cli
+    from termination import cli
 
     if not hasattr(cli, "match"):
         pytest.skip("cli.py has no match command")

@@ -3,7 +3,7 @@
     python tests/benchmarks/bench_heightmap.py [--runs 5] [--size 2048]
 
 Prints the median wall time of several runs of
-:func:`termination.heightmap.analyse_heightmap` on a synthetic topograph:
+:func:`termination.imaging.analysis.analyse_heightmap` on a synthetic topograph:
 six 1.25 Å steps, a 3.9 Å square corrugation, 3° terrace tilt, 0.05 Å noise,
 0.25 Å pixels. Recorded on the project's 2-core machine: median 2.02 s over
 7 runs (min 1.98 s, max 2.43 s) with a load average of about 1.5; 2.4 s
@@ -19,8 +19,8 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from termination.heightmap import analyse_heightmap  # noqa: E402
-from termination.heightmap_synthetic import synthetic_heightmap  # noqa: E402
+from termination.imaging.analysis import analyse_heightmap  # noqa: E402
+from termination.testing import synthetic_heightmap  # noqa: E402
 
 
 def main():

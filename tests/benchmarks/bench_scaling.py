@@ -22,9 +22,9 @@ sys.path.insert(0, ROOT)
 
 import numpy as np  # noqa: E402
 
-from structures import build_prototype  # noqa: E402
-from termination.planes import distinct_faces  # noqa: E402
-from termination.terminations import face_terminations  # noqa: E402
+from termination.structures import build_prototype  # noqa: E402
+from termination.surface.faces import distinct_faces  # noqa: E402
+from termination.surface.terminations import face_terminations  # noqa: E402
 
 DEFAULT_STRUCTURES = ("half-heusler:Ti,Ni,Sn", "hexaboride:La,B", "perovskite:Sr,Ti,O")
 

@@ -4,7 +4,7 @@ Wall time (median of ``--repeats`` fresh interpreters) of
 
 - the baseline ``python -c "import numpy, spglib"``,
 - ``termination planes rocksalt:Na,Cl --max-index 1``,
-- ``termination match --demo`` (when cli.py has the command),
+- ``termination match --demo``,
 
 and each command's ratio to the baseline (target: within 3x).  A run with
 ``python -X importtime`` lists which of pymatgen, ase, scipy and matplotlib
@@ -23,19 +23,15 @@ import sys
 import time
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
-CLI = os.path.join(ROOT, "cli.py")
+CLI = [sys.executable, "-m", "termination.cli"]
 HEAVY = ("pymatgen", "ase", "scipy", "matplotlib")
 TARGET_RATIO = 3.0
 
 BASELINE = ("import numpy, spglib", [sys.executable, "-c", "import numpy, spglib"])
 COMMANDS = [
-    ("planes rocksalt:Na,Cl --max-index 1", [sys.executable, CLI, "planes", "rocksalt:Na,Cl", "--max-index", "1"]),
+    ("planes rocksalt:Na,Cl --max-index 1", [*CLI, "planes", "rocksalt:Na,Cl", "--max-index", "1"]),
+    ("match --demo", [*CLI, "match", "--demo"]),
 ]
-
-
-def has_command(name):
-    with open(CLI, encoding="utf-8") as fh:
-        return re.search(rf"^def {name}\(", fh.read(), flags=re.M) is not None
 
 
 def run_once(argv):
@@ -78,10 +74,6 @@ def main(argv=None):
     parser.add_argument("--repeats", type=int, default=7)
     args = parser.parse_args(argv)
     commands = list(COMMANDS)
-    if has_command("match"):
-        commands.append(("match --demo", [sys.executable, CLI, "match", "--demo"]))
-    else:
-        print("cli.py has no `match` command yet; skipped")
 
     base, *medians = wall_times([BASELINE[1]] + [cmd for _, cmd in commands], args.repeats)
     print(f"median of {args.repeats} fresh interpreters each, taking turns; {sys.executable}")

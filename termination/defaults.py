@@ -1,0 +1,92 @@
+"""Every tolerance, knob and size limit of the package, with its unit and its one default.
+
+Functions and commands take these values as the defaults of their keyword
+arguments and options, so a knob means the same in every command.  Names
+carry their unit (``_ANGSTROM``, ``_DEG``, ``_E`` for charges in units of e);
+names without a unit are dimensionless.  The README's "Settings" table lists
+them.
+"""
+
+from __future__ import annotations
+
+# --------------------------------------------------------------------------- structures
+
+#: spglib symmetry tolerance, Å.
+SYMPREC_ANGSTROM = 1e-3
+#: Two atoms closer than this make a structure impossible, Å.
+MIN_DISTANCE_ANGSTROM = 0.5
+#: Lattice vectors longer than this are rejected as impossible for a crystal, Å.
+MAX_LENGTH_ANGSTROM = 1000.0
+
+# --------------------------------------------------------------------------- faces
+
+#: Largest |h|, |k|, |l| of the candidate faces.
+MAX_INDEX = 3
+#: Largest accepted ``max_index``.
+MAX_INDEX_LIMIT = 12
+
+# --------------------------------------------------------------------------- bonds, layers, terminations
+
+#: Pairs closer than this factor times the sum of covalent radii are bonded.
+BOND_FACTOR = 1.15
+#: First-shell width relative to each atom's nearest-neighbour distance.
+SHELL_FACTOR = 1.2
+#: Atoms whose heights along the face normal differ by less than this form one layer, Å.
+LAYER_TOL_ANGSTROM = 0.1
+#: Gaps costing more than this factor times the cheapest gap lie inside a termination unit.
+UNIT_RATIO = 1.8
+#: Step heights are listed for n = 0 .. MAX_MULTIPLE extra periods d.
+MAX_MULTIPLE = 3
+#: Largest accepted ``max_multiple``.
+MAX_MULTIPLE_LIMIT = 50
+
+# --------------------------------------------------------------------------- charges and polarity
+
+#: Largest accepted net charge of given or guessed formal charges, e per formula unit.
+NEUTRALITY_TOL_E = 1e-3
+#: Layer charges below this count as neutral, e per surface cell.
+CHARGE_TOL_E = 1e-6
+#: |dipole| / area below this counts as no dipole, e/Å.
+DIPOLE_TOL_E_PER_ANGSTROM = 1e-4
+#: How close a compensating fraction times the number of sites must be to a whole number.
+FRACTION_TOL = 1e-6
+#: Largest reconstruction cell searched, in 1x1 cells.
+MAX_CELL = 4
+#: Largest accepted ``max_cell``.
+MAX_CELL_LIMIT = 12
+#: Cells with more candidate occupation patterns than this are skipped.
+MAX_PATTERNS = 200_000
+#: Reconstruction cells kept per polar termination as candidates of ``match``.
+MAX_CELLS_PER_TERMINATION = 4
+
+# --------------------------------------------------------------------------- corrugation
+
+#: Decay length lambda of the depth weight exp(-depth/lambda), Å: the decay
+#: length 1/(2 kappa) of the tunnelling current for a work function of about
+#: 4 eV (kappa = sqrt(2 m phi)/hbar; Tersoff and Hamann 1985).
+DECAY_LENGTH_ANGSTROM = 0.5
+#: Largest accepted imaging depth, Å: far below anything a topograph sees.
+MAX_DEPTH_ANGSTROM = 1000.0
+#: A Fourier spot is visible when |F(G)|/F(0) exceeds this.
+SPOT_THRESHOLD = 0.05
+#: Spots are listed out to this many times the longest reduced reciprocal mesh vector.
+MAX_SPOT_ORDER = 2.0
+#: Sites whose amplitude reaches this fraction of the largest count as maxima.
+MAXIMUM_FRACTION = 0.5
+#: Two sites closer than this (in the plane and in depth) are one site, Å.
+SITE_TOL_ANGSTROM = 0.2
+
+# --------------------------------------------------------------------------- height maps
+
+#: Smallest step height resolved in a height map, Å.
+MIN_STEP_ANGSTROM = 0.5
+
+# --------------------------------------------------------------------------- numerical noise
+
+#: Heights and lengths closer than this are equal: rounding noise, far below
+#: any physical tolerance, Å.
+LENGTH_EPS_ANGSTROM = 1e-6
+#: Fractional coordinates closer than this are equal.
+FRACTIONAL_EPS = 1e-9
+#: Angles closer than this are equal, degrees.
+ANGLE_EPS_DEG = 1e-6

@@ -1,0 +1,135 @@
+"""The knobs of the height-map analysis: one validated record with documented defaults."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, fields
+
+from termination.defaults import MIN_STEP_ANGSTROM
+from termination.errors import ImageError
+
+__all__ = ["ImageParameters"]
+
+
+@dataclass(frozen=True)
+class ImageParameters:
+    """Settings of :func:`termination.imaging.analysis.analyse_heightmap`.
+
+    Attributes
+    ----------
+    min_step_angstrom : float, default 0.5
+        Smallest step height to resolve, Å. Terrace levels closer than this
+        are one level.
+    edge_smooth_px : float, default 2.0
+        Gaussian smoothing (standard deviation, pixels) before the gradient
+        and the histogram.
+    edge_threshold_sigmas : float, default 5.0
+        A pixel is a step edge when its gradient exceeds the median gradient
+        by this many robust standard deviations.
+    edge_guard_px : int, default 2
+        Pixels within this distance of an edge or another level are left out
+        of the terrace fit.
+    level_smooth_px : float, default 6.0
+        Gaussian smoothing (standard deviation, pixels) of the image whose
+        histogram gives the terrace levels; it should exceed the corrugation
+        period so that the atomic corrugation does not broaden the levels.
+    min_terrace_fraction : float, default 0.01
+        Smallest terrace, as a fraction of the finite pixels.
+    min_level_contrast : float, default 0.5
+        A histogram peak is a level when the dip to its neighbours is at
+        least this fraction of its height (resolved peaks only).
+    max_iterations : int, default 8
+        Level-segment-refit cycles at most.
+    slope_tol_deg : float, default 1e-3
+        Stop when the terrace plane changes by less than this, degrees.
+    max_step_width_px : float, default 24
+        Terraces farther apart than this (pixels) are not adjacent.
+    min_step_length_px : int, default 8
+        Two terraces are adjacent when they meet along at least this many pixels.
+    z_calibration_fraction : float, default 0
+        Relative uncertainty of the scanner's z calibration, added in
+        quadrature to each step's statistical sigma.
+    lattice_false_alarm : float, default 1e-3
+        Probability that pure noise gives one Fourier peak above the threshold.
+    min_periods : int, default 6
+        A periodicity must repeat at least this many times across the image.
+    max_peaks : int, default 12
+        Strongest Fourier peaks (one half plane) used for the lattice.
+    index_tol : float, default 0.05
+        A peak is indexed when its fractional indices lie within this of integers.
+    lattice_clip_sigmas : float, default 4
+        Before the Fourier transform, pixels of the levelled image further
+        than this many robust standard deviations of the terraces from zero
+        are set to zero with a margin of ``edge_guard_px``: they are the
+        step edges.
+    streak_ratio : float, default 0.05
+        A Fourier maximum whose power 2 bins away radially exceeds this
+        fraction of its own (and four times the tangential one) lies on a
+        streak from step edges and is not a lattice spot.
+    structure_smooth_px : float, default 8
+        Smoothing (pixels) of the residual tested for unresolved relief.
+    max_structure_ratio : float, default 3
+        After the terrace fit, the residual smoothed over
+        ``structure_smooth_px`` may carry at most this many times the
+        variance that white noise would leave; above it, relief such as steps
+        hidden by noise remains and the terrace tilt and step heights are not
+        reported.
+    bin : int, default 1
+        Segment on a copy binned by this factor a side (set per image by the
+        analysis, about 1024 x 1024 pixels).
+    workers : int, default -1
+        FFT worker threads (-1: all cores).
+    """
+
+    min_step_angstrom: float = MIN_STEP_ANGSTROM
+    edge_smooth_px: float = 2.0
+    edge_threshold_sigmas: float = 5.0
+    edge_guard_px: int = 2
+    level_smooth_px: float = 6.0
+    min_terrace_fraction: float = 0.01
+    min_level_contrast: float = 0.5
+    max_iterations: int = 8
+    slope_tol_deg: float = 1e-3
+    max_step_width_px: float = 24.0
+    min_step_length_px: int = 8
+    z_calibration_fraction: float = 0.0
+    lattice_false_alarm: float = 1e-3
+    min_periods: int = 6
+    max_peaks: int = 12
+    index_tol: float = 0.05
+    lattice_clip_sigmas: float = 4.0
+    streak_ratio: float = 0.05
+    structure_smooth_px: float = 8.0
+    max_structure_ratio: float = 3.0
+    bin: int = 1
+    workers: int = -1
+
+    def __post_init__(self) -> None:
+        positive = ("min_step_angstrom", "edge_smooth_px", "level_smooth_px", "max_step_width_px", "slope_tol_deg",
+                    "index_tol", "structure_smooth_px")
+        for name in positive:
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
+                raise ImageError(f"{name} must be a positive number, got {v!r}")
+        for name in ("min_terrace_fraction", "min_level_contrast", "lattice_false_alarm", "streak_ratio"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:
+                raise ImageError(f"{name} must lie in (0, 1), got {v!r}")
+        v = self.max_structure_ratio
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not v >= 1:
+            raise ImageError(f"max_structure_ratio must be at least 1, got {v!r}")
+        for name in ("edge_threshold_sigmas", "z_calibration_fraction", "lattice_clip_sigmas"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 0:
+                raise ImageError(f"{name} must be a non-negative number, got {v!r}")
+        for name in ("edge_guard_px", "max_iterations", "min_step_length_px", "min_periods", "max_peaks", "bin"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+                raise ImageError(f"{name} must be a positive integer, got {v!r}")
+        if self.index_tol >= 0.5:
+            raise ImageError(f"index_tol must be below 0.5, got {self.index_tol!r}")
+
+    @classmethod
+    def names(cls) -> tuple[str, ...]:
+        """The settable parameter names."""
+        return tuple(f.name for f in fields(cls))

@@ -1,0 +1,324 @@
+"""Candidate faces: symmetry-distinct Miller planes, their spacing, mesh and tilt to the mount.
+
+Miller indices refer to the conventional cell of the
+:class:`~termination.bulk.crystal.Crystal`.  A face (hkl) is the set of
+lattice planes h.x = const (x fractional); its outward normal is the
+reciprocal vector G = h b1 + k b2 + l b3.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from termination.algebra.integer import primitive_index, rationalise, unimodular_completion
+from termination.algebra.lattice2d import gauss_reduce
+from termination.defaults import ANGLE_EPS_DEG, MAX_INDEX, MAX_INDEX_LIMIT
+from termination.errors import PlaneError
+from termination.surface.miller import check_hkl
+
+__all__ = [
+    "Mesh",
+    "Face",
+    "face_variants",
+    "face_geometry",
+    "distinct_faces",
+    "interplanar_angle",
+    "variant_tilts",
+    "tilt_to_mount",
+]
+
+
+@dataclass(frozen=True)
+class Mesh:
+    """Reduced primitive 2D surface lattice (Å, degrees, Å²).
+
+    ``gamma`` follows the obtuse convention (90° <= gamma <= 120°) of
+    surface crystallography.
+    """
+
+    a: float
+    b: float
+    gamma: float
+    area: float
+
+
+@dataclass(frozen=True, eq=False)
+class Face:
+    """Geometry of one face (hkl).
+
+    Attributes
+    ----------
+    hkl : tuple of int
+        Representative Miller index (conventional cell).
+    variants : tuple of tuple of int
+        All symmetry-equivalent indices under the crystal's point group.
+    d : float
+        Spacing of the lattice planes (centring included), Å.
+    normal : (3,) ndarray
+        Outward unit normal, Cartesian.
+    mesh : Mesh
+        Reduced surface mesh.
+    mesh_fractional : (2, 3) ndarray
+        Mesh vectors as rows, fractional coordinates of the conventional cell;
+        right-handed with ``normal`` and ``|a| <= |b|``.
+    stack_fractional : (3,) ndarray
+        Lattice vector from one plane to the next (``stack . normal = d``),
+        fractional, shortened by in-plane mesh vectors.
+    frame : (3, 3) ndarray
+        Rows e1 (along mesh a), e2, e3 = normal: the surface frame, Cartesian.
+    tilt : float or None
+        Angle to the mount face, degrees (minimum over the variants).
+    tilt_variant : tuple of int or None
+        The variant that realises ``tilt``.
+    tilt_axis : tuple of int or None
+        Direct-lattice direction [uvw] of the rotation axis taking the mount
+        normal onto the variant's normal (None when ``tilt`` is 0).
+    """
+
+    hkl: tuple
+    variants: tuple
+    d: float
+    normal: np.ndarray
+    mesh: Mesh
+    mesh_fractional: np.ndarray
+    stack_fractional: np.ndarray
+    frame: np.ndarray
+    tilt: float | None = None
+    tilt_variant: tuple | None = None
+    tilt_axis: tuple | None = None
+
+    @property
+    def multiplicity(self):
+        return len(self.variants)
+
+
+def _miller_rotations(crystal):
+    """(P, 3, 3) matrices acting on row Miller indices: h' = h @ inv(R)."""
+    return np.rint(np.linalg.inv(crystal.point_group)).astype(np.int64)
+
+
+def face_variants(crystal, hkl):
+    """Symmetry-equivalent Miller indices of ``hkl``, sorted, as tuples."""
+    h = np.asarray(check_hkl(hkl), dtype=np.int64)
+    orbit = np.einsum("i,pij->pj", h, _miller_rotations(crystal))
+    return tuple(sorted({tuple(int(x) for x in v) for v in orbit}))
+
+
+def _choice_key(v):
+    """Preference among variants: fewest negative entries, ascending order, larger l, k, h."""
+    negatives = sum(x < 0 for x in v)
+    unsorted = sum(abs(v[i]) > abs(v[i + 1]) for i in range(2))
+    return (negatives, unsorted, -v[2], -v[1], -v[0])
+
+
+def _representative(orbit, laue_orbit):
+    """Readable representative: the Laue choice r if in the orbit, else -r, else the best."""
+    r = min(laue_orbit, key=_choice_key)
+    if r in orbit:
+        return r
+    neg = tuple(-x for x in r)
+    if neg in orbit:
+        return neg
+    return min(orbit, key=_choice_key)
+
+
+def face_geometry(crystal, hkl, mount=None):
+    """Geometry of the face ``hkl`` of ``crystal``.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    hkl : 3 ints
+        Miller index in the conventional cell; (0 0 0) is rejected.
+    mount : 3 ints, optional
+        Face the crystal was mounted on; sets ``tilt``.
+
+    Returns
+    -------
+    Face
+
+    Notes
+    -----
+    The lattice, centring included, is spanned by a primitive basis P
+    (``crystal.primitive_fractional``).  In that basis the face index is
+    h_p = P h scaled to coprime integers.  A unimodular U with h_p U = (1,0,0)
+    gives the in-plane lattice (columns 2, 3; h_p . u = 0) and the stacking
+    vector (column 1).  Then d = 1/|h_p B_p| with B_p the reciprocal of P,
+    which includes the centring: fcc (001) gives a/2 and fcc (012) a/(2 sqrt 5).
+    """
+    h = check_hkl(hkl)
+    variants = face_variants(crystal, h)
+    return _geometry(crystal, h, variants, None if mount is None else check_hkl(mount, "mount"))
+
+
+@lru_cache(maxsize=32)
+def _cell_tables(crystal):
+    """Per-crystal matrices used for every face (cached; a Crystal is immutable).
+
+    Returns the primitive basis in Cartesian rows (Å), the reciprocal rows
+    (1/Å) and the inverse of the lattice matrix.
+    """
+    inverse = np.linalg.inv(crystal.lattice)
+    return crystal.primitive_fractional @ crystal.lattice, crystal.reciprocal, inverse
+
+
+def _cross(a, b):
+    """Cross product of two 3-vectors (np.cross has a large per-call overhead)."""
+    return np.array([a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]])
+
+
+def _geometry(crystal, h, variants, mount):
+    P = crystal.primitive_fractional
+    prim_cart, reciprocal, frac_basis_inv = _cell_tables(crystal)
+    h_p = primitive_index(rationalise(P @ np.asarray(h, dtype=float), 12))
+    U = unimodular_completion(h_p)
+    u = U.T  # rows: stacking, in-plane 1, in-plane 2 (primitive basis)
+    v_cart = u @ prim_cart
+    G = np.asarray(h, dtype=float) @ reciprocal
+    normal = G / np.linalg.norm(G)
+    d = float(v_cart[0] @ normal)
+    if d < 0:  # orientation of U's first column is fixed by h_p . u = +1
+        raise AssertionError("stacking vector points inward")
+    a1, a2 = gauss_reduce(v_cart[1], v_cart[2])
+    if _cross(a1, a2) @ normal < 0:
+        a2 = -a2
+    stack = v_cart[0]
+    # Shorten the stacking vector with in-plane translations (nearly normal).
+    inplane = np.array([a1, a2])
+    coef = np.linalg.lstsq(inplane.T, stack - d * normal, rcond=None)[0]
+    stack = stack - np.rint(coef) @ inplane
+    la, lb = float(np.linalg.norm(a1)), float(np.linalg.norm(a2))
+    cosg = float(a1 @ a2) / (la * lb)
+    gamma = float(np.degrees(np.arccos(np.clip(-abs(cosg), -1.0, 1.0))))
+    area = float(np.linalg.norm(_cross(a1, a2)))
+    e1 = a1 / la
+    frame = np.array([e1, _cross(normal, e1), normal])
+    tilt = variant = axis = None
+    if mount is not None:
+        tilt, variant, axis = tilt_to_mount(crystal, variants, mount)
+    return Face(
+        hkl=tuple(h),
+        variants=variants,
+        d=d,
+        normal=normal,
+        mesh=Mesh(a=la, b=lb, gamma=gamma, area=area),
+        mesh_fractional=inplane @ frac_basis_inv,
+        stack_fractional=stack @ frac_basis_inv,
+        frame=frame,
+        tilt=tilt,
+        tilt_variant=variant,
+        tilt_axis=axis,
+    )
+
+
+def interplanar_angle(crystal, hkl1, hkl2):
+    """Angle between the normals of two planes, degrees (metric-tensor formula).
+
+    Notes
+    -----
+    cos phi = h1 G* h2 / (|h1| |h2|) with G* = B B^T the reciprocal metric.
+    """
+    B = crystal.reciprocal
+    g1 = np.asarray(check_hkl(hkl1), dtype=float) @ B
+    g2 = np.asarray(check_hkl(hkl2), dtype=float) @ B
+    c = g1 @ g2 / (np.linalg.norm(g1) * np.linalg.norm(g2))
+    return float(np.degrees(np.arccos(np.clip(c, -1.0, 1.0))))
+
+
+def variant_tilts(crystal, variants, mount):
+    """Angle between the mount face and each of ``variants``, degrees.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    variants : (V, 3) int array_like
+        Miller indices.
+    mount : (3,) int array_like
+
+    Returns
+    -------
+    (V,) FloatArray
+        cos phi = G_v . G_m / (|G_v| |G_m|) with G = h B (reciprocal rows B).
+    """
+    B = crystal.reciprocal
+    m = np.asarray(mount, dtype=float) @ B
+    m /= np.linalg.norm(m)
+    G = np.asarray(variants, dtype=float).reshape(-1, 3) @ B
+    G /= np.linalg.norm(G, axis=1)[:, None]
+    return np.degrees(np.arccos(np.clip(G @ m, -1.0, 1.0)))
+
+
+def tilt_to_mount(crystal, variants, mount):
+    """Smallest angle between the mount face and any of ``variants``.
+
+    Returns
+    -------
+    tilt : float
+        Degrees.
+    variant : tuple of int
+        The variant that realises it.
+    axis : tuple of int or None
+        Rotation axis [uvw] (direct lattice) taking the mount normal onto the
+        variant's normal: the cross product of the two reciprocal vectors is
+        the direct-lattice vector mount x variant (in index space).
+    """
+    angles = variant_tilts(crystal, variants, mount)
+    # Deterministic tie-break: smallest angle, then the preferred index form.
+    order = sorted(range(len(variants)), key=lambda i: (round(angles[i], 6), _choice_key(variants[i])))
+    best = order[0]
+    tilt = float(angles[best])
+    variant = tuple(variants[best])
+    axis = None
+    if tilt > ANGLE_EPS_DEG:
+        axis = primitive_index(np.cross(np.asarray(mount, dtype=np.int64), np.asarray(variant, dtype=np.int64)))
+        if not any(axis):  # antiparallel: any axis in the plane will do
+            axis = None
+    return tilt, variant, axis
+
+
+def distinct_faces(crystal, max_index=MAX_INDEX, mount=None):
+    """All symmetry-distinct faces with indices up to ``max_index``.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    max_index : int
+        Largest |h|, |k|, |l| (1 to :data:`MAX_INDEX_LIMIT`).
+    mount : 3 ints, optional
+        Mount face for the tilt.
+
+    Returns
+    -------
+    tuple of Face
+        Sorted by h^2 + k^2 + l^2, then index.  Faces are grouped by the
+        crystal's point group, so in a non-centrosymmetric crystal (hkl) and
+        (-h-k-l) can be distinct faces.
+    """
+    try:
+        n = int(max_index)
+    except (TypeError, ValueError):
+        raise PlaneError(f"max index must be an integer, got {max_index!r}") from None
+    if n != max_index or not 1 <= n <= MAX_INDEX_LIMIT:
+        raise PlaneError(f"max index must be an integer from 1 to {MAX_INDEX_LIMIT}, got {max_index}")
+    mount = None if mount is None else check_hkl(mount, "mount")
+    r = np.arange(-n, n + 1)
+    grid = np.array(np.meshgrid(r, r, r, indexing="ij")).reshape(3, -1).T
+    g = np.gcd.reduce(np.abs(grid), axis=1)
+    grid = grid[g == 1]
+    rots = _miller_rotations(crystal)
+    orbits = np.einsum("hi,pij->hpj", grid, rots)  # (H, P, 3)
+    width = 2 * n + 1
+    codes = ((orbits[..., 0] + n) * width + (orbits[..., 1] + n)) * width + (orbits[..., 2] + n)
+    keys = codes.min(axis=1)
+    _, first = np.unique(keys, return_index=True)
+    faces = []
+    for i in first:
+        orbit = set(map(tuple, orbits[i].tolist()))
+        laue = orbit | {tuple(-x for x in v) for v in orbit}
+        rep = _representative(orbit, laue)
+        faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount))
+    faces.sort(key=lambda f: (sum(x * x for x in f.hkl), _choice_key(f.hkl)))
+    return tuple(faces)

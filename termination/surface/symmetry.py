@@ -1,0 +1,109 @@
+"""Symmetry of a face: the space-group operations that keep it, and their action in the surface plane.
+
+A space-group operation (R, t) maps the face (hkl) onto itself when
+h R^-1 = h.  Such operations relate terminations of the face (they shift
+heights along the normal by (h . t)/|G|); those that also keep a
+termination's cut form the 2D point group of that termination, acting on
+mesh coordinates as integer matrices.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+
+__all__ = ["operation_tables", "keeps_face", "face_operations", "describe_operation", "termination_operations"]
+
+
+@lru_cache(maxsize=32)
+def operation_tables(crystal):
+    """Per-operation tables of the crystal's space group (cached; a Crystal is immutable).
+
+    Returns
+    -------
+    rinv : (M, 3, 3) int ndarray
+        R^-1, acting on row Miller indices (h' = h R^-1).
+    preference : (M,) int ndarray
+        0 for the identity rotation (pure translations), 1 for other proper
+        rotations, 3 for improper ones: the order in which operations are
+        tried when describing how two terminations are related.
+    """
+    rots = crystal.rotations
+    improper = np.linalg.det(rots) < 0
+    not_identity = np.trace(rots, axis1=1, axis2=2) != 3
+    rinv = np.rint(np.linalg.inv(rots)).astype(np.int64)
+    return rinv, 2 * improper.astype(int) + not_identity.astype(int)
+
+
+def keeps_face(crystal, face):
+    """(M,) bool: the operations with h R^-1 = h."""
+    rinv, _ = operation_tables(crystal)
+    h = np.asarray(face.hkl, dtype=np.int64)
+    return np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1)
+
+
+def face_operations(crystal, face):
+    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h."""
+    keep = keeps_face(crystal, face)
+    return crystal.rotations[keep], crystal.translations[keep]
+
+
+def describe_operation(crystal, face, R):
+    """In-plane action of a rotation R (fractional) that keeps the face normal."""
+    A = crystal.lattice
+    Rc = A.T @ R @ np.linalg.inv(A.T)
+    e1, e2 = face.frame[0], face.frame[1]
+    v = Rc @ e1
+    angle = float(np.degrees(np.arctan2(v @ e2, v @ e1)))
+    if np.linalg.det(R) > 0:
+        if abs(angle) < 1e-6:
+            return "translated"
+        return f"rotated {angle % 360:.0f}°"
+    return f"mirror at {(angle / 2) % 180:.0f}°"
+
+
+def termination_operations(crystal, face, *, shift_tol_angstrom=1e-4):
+    """2D point operations of a semi-infinite crystal cut parallel to ``face``, on mesh coordinates.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    face : Face
+    shift_tol_angstrom : float
+        Tolerance on the height shift of an operation, Å.
+
+    Returns
+    -------
+    (K, 2, 2) int ndarray
+        Distinct S with u -> u S (u a row of mesh coordinates), identity first.
+
+    Notes
+    -----
+    From the space-group operations (R, t) that keep the face
+    (h R^-1 = h; :func:`face_operations`) those that also shift heights by
+    (h . t) / |G| = 0 modulo d keep every cut of the face, whichever
+    termination it exposes: they form the symmetry of the semi-infinite
+    crystal.  Their in-plane action on the mesh rows M (fractional, (2, 3))
+    is M R^T = S M.
+    """
+    rots, trans = face_operations(crystal, face)
+    h = np.asarray(face.hkl, dtype=float)
+    gnorm = np.linalg.norm(h @ crystal.reciprocal)
+    d = face.d
+    shift = (trans @ h) / gnorm % d
+    shift = np.minimum(shift, d - shift)
+    keep = shift <= shift_tol_angstrom
+    mesh = np.asarray(face.mesh_fractional, dtype=float)
+    pinv = np.linalg.pinv(mesh)
+    out = []
+    for R in rots[keep]:
+        S = mesh @ R.T @ pinv
+        Si = np.rint(S).astype(np.int64)
+        if np.max(np.abs(S - Si)) > 1e-6 or not np.allclose(Si @ mesh, mesh @ R.T, atol=1e-6):
+            continue
+        if not any(np.array_equal(Si, o) for o in out):
+            out.append(Si)
+    ident = np.eye(2, dtype=np.int64)
+    out.sort(key=lambda s: not np.array_equal(s, ident))
+    return np.array(out, dtype=np.int64).reshape(-1, 2, 2)

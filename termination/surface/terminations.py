@@ -1,0 +1,441 @@
+"""Terminations of a face and the step heights between them.
+
+A termination is the top layer, or top unit of layers, of the semi-infinite
+crystal left by a cut between two consecutive atomic layers.
+
+Rules (documented in the README):
+
+1. Every gap between consecutive layers of the period is a candidate cut.  For
+   each, the bonds that cross the cut plane are counted per surface cell, per
+   nm², and weighted by the bond-strength proxy w = (r_i + r_j)/R.
+2. Unit bonds (between two unit-forming non-metals: B-B, C-O, Si-O, ...)
+   hold polyanions and clusters together.  A gap that breaks more unit bonds
+   than the cheapest gap of the face lies inside a unit (a B6 octahedron, a
+   CO3 group) and is not a cut.
+3. Of the remaining gaps, one whose weighted broken-bond density exceeds
+   ``unit_ratio`` times the cheapest lies inside a strongly bonded slab (the
+   F-Ca-F unit of fluorite (111), the bilayer of diamond (111)) and is not a cut.
+4. Layers between consecutive cuts form one termination unit.  Terminations
+   related by a space-group operation that maps the face onto itself
+   (h R^-1 = h) are equivalent: they share a label and the relating in-plane
+   rotation or mirror is given.
+5. A step from a terrace of termination i up to one of termination j has the
+   height delta_ij + n d, delta_ij = (z_j - z_i) mod d with z the height of
+   the top layer.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from termination.bulk.bonds import bond_graph
+from termination.bulk.elements import composition_label
+from termination.defaults import (
+    BOND_FACTOR,
+    LAYER_TOL_ANGSTROM,
+    LENGTH_EPS_ANGSTROM,
+    MAX_MULTIPLE,
+    MAX_MULTIPLE_LIMIT,
+    UNIT_RATIO,
+)
+from termination.errors import StructureError
+from termination.surface.faces import Face, face_geometry
+from termination.surface.layers import FaceAtoms, Layer, cluster_layers, face_atoms
+from termination.surface.miller import hkl_text
+from termination.surface.steps import StepHeights, class_steps
+from termination.surface.symmetry import describe_operation, keeps_face, operation_tables
+
+__all__ = [
+    "Cut",
+    "Termination",
+    "SurfaceAtoms",
+    "FaceTerminations",
+    "face_terminations",
+]
+
+
+@dataclass(frozen=True)
+class Cut:
+    """A gap between consecutive layers (per surface primitive cell).
+
+    ``below`` and ``above`` are layer indices (top-first numbering);
+    ``height`` is the cut plane's height in [0, d), Å.
+    """
+
+    height: float
+    below: int
+    above: int
+    broken_bonds: float
+    weighted_bonds: float
+    unit_bonds: float
+    allowed: bool
+
+
+@dataclass(frozen=True)
+class Termination:
+    """One termination of a face.
+
+    Attributes
+    ----------
+    id : str
+        'T1', 'T2', ... in order of increasing broken-bond density.
+    label : str
+        Composition of the top unit, electropositive element first ('SrO', 'B6').
+    composition : dict
+        Atoms of the top unit per surface primitive cell.
+    depth : float
+        Depth of the top layer below the highest layer of the period, Å.
+    layers : tuple of int
+        Layer indices of the top unit, top first.
+    cut_height : float
+        Height of the cut plane above the top layer's reference, in [0, d), Å.
+    broken_bonds_per_nm2, weighted_bonds_per_nm2 : float
+        Bonds crossing the cut, per nm² (count, and weighted by w = (r_i+r_j)/R).
+    equivalent_to : str or None
+        Id of the first symmetry-equivalent termination, if any.
+    relation : str or None
+        How it relates to that termination ('rotated 90°', 'mirror at 45°').
+    """
+
+    id: str
+    label: str
+    composition: dict
+    depth: float
+    layers: tuple
+    cut_height: float
+    broken_bonds_per_nm2: float
+    weighted_bonds_per_nm2: float
+    equivalent_to: str | None
+    relation: str | None
+
+
+@dataclass(frozen=True)
+class SurfaceAtoms:
+    """Atoms below a termination's surface (one surface primitive cell wide).
+
+    ``depth`` is measured down from the top layer (0 for the top layer, Å);
+    ``unit`` is 0 for the top termination unit, 1 for the next, ...;
+    ``inplane`` is in the face frame (e1, e2), Å.
+    """
+
+    species: tuple
+    inplane: np.ndarray
+    depth: np.ndarray
+    unit: np.ndarray
+    charges: np.ndarray | None
+    mesh_inplane: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class FaceTerminations:
+    """Layers, cuts, terminations and steps of one face."""
+
+    face: Face
+    atoms: FaceAtoms
+    layers: tuple[Layer, ...]
+    cuts: tuple[Cut, ...]
+    terminations: tuple[Termination, ...]
+    steps: tuple[StepHeights, ...]
+    layer_tol_angstrom: float
+    unit_ratio: float
+
+    @property
+    def d(self):
+        return self.face.d
+
+    @property
+    def smallest_step(self):
+        """Smallest allowed step height of the face, Å."""
+        return min(h for s in self.steps for h in s.heights)
+
+    def termination(self, key):
+        """Termination by id ('T2') or label ('SrO'; the first one with it)."""
+        for t in self.terminations:
+            if key in (t.id, t.label):
+                return t
+        known = ", ".join(f"{t.id} ({t.label})" for t in self.terminations)
+        raise StructureError(f"face {hkl_text(self.face.hkl)} has no termination {key!r}; it has {known}")
+
+    def _top_height(self, t):
+        return self.layers[t.layers[0]].height
+
+    def surface_atoms(self, key, max_depth_angstrom):
+        """Atoms from the top layer of termination ``key`` down to ``max_depth_angstrom``.
+
+        Returns
+        -------
+        SurfaceAtoms
+            Periodic images along the normal are included, so any depth works.
+        """
+        t = self.termination(key)
+        return self._atoms_between(t, -1e-6, float(max_depth_angstrom))
+
+    def repeat_unit(self, key):
+        """The atoms of one period, from the cut above termination ``key`` down.
+
+        Depths are measured from the top layer; atoms satisfy
+        cut_depth <= depth < cut_depth + d with cut_depth <= 0 the depth of
+        the cut plane.  Summing over them gives the stack's repeat unit that
+        starts at this termination (used for dipoles).
+        """
+        t = self.termination(key)
+        z_top = self._top_height(t)
+        cut_depth = -((t.cut_height - z_top) % self.d)
+        out = self._atoms_between(t, cut_depth, cut_depth + self.d - 1e-9)
+        return out
+
+    def _atoms_between(self, t, dmin, dmax):
+        a = self.atoms
+        d = self.d
+        z_top = self._top_height(t)
+        # depth of image k of atom i: z_top - (z_i + k d)
+        base = z_top - a.heights
+        kmin = np.floor((base - dmax) / d).astype(int)
+        kmax = np.ceil((base - dmin) / d).astype(int)
+        idx, ks = [], []
+        for i in range(len(base)):
+            for k in range(kmin[i], kmax[i] + 1):
+                depth = base[i] - k * d
+                if dmin <= depth <= dmax:
+                    idx.append(i)
+                    ks.append(k)
+        idx = np.array(idx, dtype=int)
+        ks = np.array(ks, dtype=float)
+        depth = base[idx] - ks * d
+        inplane = a.inplane[idx] + ks[:, None] * a.stack_inplane[None, :]
+        allowed = [c.height for c in self.cuts if c.allowed]
+        z_atom = z_top - depth
+        unit = np.zeros(len(idx), dtype=int)
+        for c in allowed:
+            # allowed cut planes strictly between the atom and the top cut
+            unit += (np.floor((z_top - c) / d) - np.floor((z_atom - c) / d)).astype(int)
+        order = np.lexsort((inplane[:, 1], inplane[:, 0], depth))
+        return SurfaceAtoms(
+            species=tuple(a.species[i] for i in idx[order]),
+            inplane=inplane[order],
+            depth=depth[order],
+            unit=unit[order],
+            charges=None if a.charges is None else a.charges[idx[order]],
+            mesh_inplane=a.mesh_inplane,
+        )
+
+
+def face_terminations(
+    crystal,
+    hkl,
+    *,
+    layer_tol_angstrom=LAYER_TOL_ANGSTROM,
+    bond_factor=BOND_FACTOR,
+    bond_cutoff_angstrom=None,
+    unit_ratio=UNIT_RATIO,
+    max_multiple=MAX_MULTIPLE,
+    face=None,
+):
+    """Layers, terminations and step heights of the face ``hkl``.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    hkl : 3 ints
+        Face; its outward normal is the reciprocal vector (h k l).
+    layer_tol_angstrom : float
+        Atoms within this height of each other form one layer, Å.
+    bond_factor, bond_cutoff_angstrom : float, float or None
+        Bond rule, see :func:`termination.bulk.bonds.bond_graph`.
+    unit_ratio : float
+        Gaps whose weighted broken-bond density exceeds this factor times the
+        cheapest gap lie inside a unit (``inf`` switches the rule off).
+    max_multiple : int
+        Steps are listed for n = 0 .. max_multiple extra periods.
+    face : Face, optional
+        Precomputed geometry of ``hkl``.
+
+    Returns
+    -------
+    FaceTerminations
+
+    References
+    ----------
+    P. W. Tasker, J. Phys. C 12, 4977 (1979) for the stacking picture of
+    layers and repeat units.
+    """
+    tol = float(layer_tol_angstrom)
+    if not (np.isfinite(tol) and tol >= 0):
+        raise StructureError(f"layer tolerance must be a non-negative length in Å, got {layer_tol_angstrom}")
+    ratio = float(unit_ratio)
+    if not ratio >= 1:
+        raise StructureError(f"unit ratio must be at least 1, got {unit_ratio}")
+    if int(max_multiple) != max_multiple or not 0 <= max_multiple <= MAX_MULTIPLE_LIMIT:
+        raise StructureError(f"max multiple must be an integer from 0 to {MAX_MULTIPLE_LIMIT}, got {max_multiple}")
+    if face is None:
+        face = face_geometry(crystal, hkl)
+    graph = bond_graph(crystal, bond_factor, bond_cutoff_angstrom)
+    return _face_terminations(crystal, face, graph, tol, ratio, int(max_multiple))
+
+
+def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
+    d = face.d
+    atoms = face_atoms(crystal, face)
+    labels, centres = cluster_layers(atoms.heights, d, tol)
+    nl = len(centres)
+    # Top-first numbering: layer 0 is the highest of the period.
+    top_first = np.argsort(-centres, kind="stable")
+    new_index = np.empty(nl, dtype=int)
+    new_index[top_first] = np.arange(nl)
+    labels = new_index[labels]
+    centres = centres[top_first]
+    layers = []
+    for k in range(nl):
+        members = np.flatnonzero(labels == k)
+        comp = {}
+        for i in members:
+            comp[atoms.species[i]] = comp.get(atoms.species[i], 0) + 1
+        layers.append(Layer(height=float(centres[k]), depth=float(centres[0] - centres[k]), composition=comp,
+                            atoms=tuple(int(i) for i in members)))
+
+    # Gaps: below layer k (top-first) lies layer k+1; the gap above layer k is
+    # between layer k and the layer above it (k-1, or the last one one period up).
+    above_of = [(k - 1) % nl for k in range(nl)]
+    cut_heights = np.empty(nl)
+    for k in range(nl):
+        za = centres[above_of[k]] + (d if above_of[k] >= k else 0.0)
+        cut_heights[k] = ((centres[k] + za) / 2.0) % d
+
+    counts, weighted, unit = _crossings(crystal, face, graph, cut_heights)
+    area_nm2 = face.mesh.area / 100.0
+    allowed = unit <= unit.min() + 1e-9
+    wmin = weighted[allowed].min()
+    if wmin <= 1e-12:
+        allowed &= weighted <= 1e-12
+    else:
+        allowed &= weighted <= ratio * wmin * (1 + 1e-9)
+    cuts = tuple(
+        Cut(height=float(cut_heights[k]), below=k, above=above_of[k], broken_bonds=float(counts[k]),
+            weighted_bonds=float(weighted[k]), unit_bonds=float(unit[k]), allowed=bool(allowed[k]))
+        for k in range(nl)
+    )
+
+    # Units: from an allowed cut above layer k down to the next allowed cut.
+    allowed_layers = [k for k in range(nl) if allowed[k]]
+    units = {}
+    for k in allowed_layers:
+        members = [k]
+        j = (k + 1) % nl
+        while not allowed[j]:
+            members.append(j)
+            j = (j + 1) % nl
+        units[k] = tuple(members)
+
+    classes, relations = _equivalence(crystal, face, cut_heights, allowed_layers, tol, d)
+
+    raw = []
+    for k in allowed_layers:
+        comp = {}
+        for m in units[k]:
+            for el, n in layers[m].composition.items():
+                comp[el] = comp.get(el, 0) + n
+        raw.append(
+            dict(k=k, comp=comp, depth=layers[k].depth, layers=units[k], cut=float(cut_heights[k]),
+                 bb=float(counts[k] / area_nm2), wb=float(weighted[k] / area_nm2))
+        )
+    order = sorted(range(len(raw)), key=lambda i: (round(raw[i]["bb"], 6), round(raw[i]["wb"], 6), raw[i]["depth"]))
+    ids = {raw[i]["k"]: f"T{n + 1}" for n, i in enumerate(order)}
+
+    # Labels: equivalent terminations share one; inequivalent namesakes get primes.
+    rep_of = {k: min((j for j in allowed_layers if classes[j] == classes[k]), key=lambda j: ids[j]) for k in allowed_layers}
+    label_of, used = {}, {}
+    for i in order:
+        k = raw[i]["k"]
+        if rep_of[k] != k:
+            continue
+        base = composition_label(raw[i]["comp"])
+        label_of[k] = base + "'" * used.get(base, 0)
+        used[base] = used.get(base, 0) + 1
+    terminations = []
+    for i in order:
+        r = raw[i]
+        k = r["k"]
+        rep = rep_of[k]
+        terminations.append(
+            Termination(
+                id=ids[k],
+                label=label_of[rep],
+                composition=r["comp"],
+                depth=r["depth"],
+                layers=r["layers"],
+                cut_height=r["cut"],
+                broken_bonds_per_nm2=r["bb"],
+                weighted_bonds_per_nm2=r["wb"],
+                equivalent_to=None if rep == k else ids[rep],
+                relation=None if rep == k else relations.get((rep, k)),
+            )
+        )
+    terminations = tuple(terminations)
+    tops = {t.id: layers[t.layers[0]].height for t in terminations}
+    members = [(t.label, tuple(u.id for u in terminations if (u.equivalent_to or u.id) == t.id))
+               for t in terminations if t.equivalent_to is None]
+    steps = class_steps(members, tops, d, max_multiple, tol)
+    return FaceTerminations(face=face, atoms=atoms, layers=tuple(layers), cuts=cuts, terminations=terminations,
+                            steps=steps, layer_tol_angstrom=tol, unit_ratio=ratio)
+
+
+def _crossings(crystal, face, graph, cut_heights):
+    """Bonds crossing each cut plane, per surface primitive cell.
+
+    A bond from height z to z + dz (dz > 0) crosses the planes c + k d with
+    z < c + k d <= z + dz; their number is floor((z + dz - c)/d) - floor((z - c)/d).
+    """
+    d = face.d
+    G = np.asarray(face.hkl, dtype=float) @ crystal.reciprocal
+    gnorm = np.linalg.norm(G)
+    z_conv = (crystal.positions @ np.asarray(face.hkl, dtype=float)) / gnorm % d
+    dz = graph.vector @ (G / gnorm)
+    up = dz > 1e-9
+    z0 = z_conv[graph.source[up]][:, None]
+    z1 = z0 + dz[up][:, None]
+    c = cut_heights[None, :]
+    n = np.floor((z1 - c) / d) - np.floor((z0 - c) / d)
+    per_cell = 1.0 / len(crystal.centring)
+    counts = n.sum(axis=0) * per_cell
+    weighted = (n * graph.weight[up][:, None]).sum(axis=0) * per_cell
+    unit = (n * graph.unit[up][:, None]).sum(axis=0) * per_cell
+    return counts, weighted, unit
+
+
+def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
+    """Classes of symmetry-equivalent allowed cuts and the relating operation."""
+    keep = keeps_face(crystal, face)
+    # Identity first, then proper rotations, then improper ones (stable, so
+    # spglib's order is kept within each group): the first operation that
+    # matches a pair is the simplest description of their relation.
+    order = np.argsort(operation_tables(crystal)[1][keep], kind="stable")
+    rots, trans = crystal.rotations[keep][order], crystal.translations[keep][order]
+    G = np.asarray(face.hkl, dtype=float) @ crystal.reciprocal
+    shifts = (trans @ np.asarray(face.hkl, dtype=float)) / np.linalg.norm(G) % d
+    parent = {k: k for k in allowed_layers}
+
+    def find(k):
+        while parent[k] != k:
+            k = parent[k]
+        return k
+
+    relations = {}
+    allowed = np.asarray(allowed_layers, dtype=int)
+    reach = max(tol, 1e-6)
+    for i in allowed_layers:
+        target = (cut_heights[i] + shifts) % d  # (M,)
+        diff = (cut_heights[allowed][None, :] - target[:, None] + d / 2) % d - d / 2
+        match = np.abs(diff) <= reach  # (M, A)
+        for col in np.flatnonzero(match.any(axis=0)):
+            j = int(allowed[col])
+            if j == i:
+                continue
+            if (i, j) not in relations:
+                relations[(i, j)] = describe_operation(crystal, face, rots[int(np.argmax(match[:, col]))])
+            ri, rj = find(i), find(j)
+            if ri != rj:
+                parent[max(ri, rj)] = min(ri, rj)
+    classes = {k: find(k) for k in allowed_layers}
+    return classes, relations

@@ -1,0 +1,142 @@
+"""`termination image`: table, JSON, measurement file, overwrite refusal, bad input."""
+
+import json
+import re
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from termination import cli
+from termination.testing import synthetic_heightmap
+from termination.identification.measurement import read_measurement, read_steps
+
+runner = CliRunner()
+
+# known geometry of the synthetic topograph (heights stored in nm, pixels 0.05 nm)
+TILT, A, STEP = 5.0, 4.0, 1.25
+
+
+def numbers(line):
+    return [float(v) for v in re.findall(r"-?\d+\.\d+", line)]
+
+
+def invoke(*args):
+    return runner.invoke(cli.app, [str(a) for a in args])
+
+
+@pytest.fixture(scope="module")
+def scan(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("image")
+    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=TILT, azimuth_deg=30.0, step_heights=[STEP] * 3,
+                            step_azimuth_deg=10.0, lattice=(A, A, 90.0, 15.0), noise_angstrom=0.05, seed=1)
+    path = folder / "scan.npy"
+    np.save(path, z / 10.0)
+    return path
+
+
+def test_table_shows_tilt_lattice_and_steps(scan):
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm")
+    assert r.exit_code == 0, r.output
+    assert "256 × 256 px" in r.output
+    lines = r.output.splitlines()
+    terrace = next(ln for ln in lines if "terrace (identifies the face)" in ln)
+    assert abs(numbers(terrace)[0] - TILT) <= 0.3
+    lattice = next(ln for ln in lines if "±" in ln and "90." in ln)
+    a, sigma_a, b = numbers(lattice)[:3]
+    assert abs(a - A) <= 0.02 * A and abs(b - A) <= 0.02 * A and 0 < sigma_a < 0.1
+    heights = [numbers(ln)[0] for ln in lines if re.match(r"^│ [123] │", ln)]
+    assert len(heights) == 3 and all(abs(h - STEP) <= 0.05 * STEP for h in heights)
+    assert "drift-free" in r.output
+
+
+def test_json_has_the_documented_fields(scan):
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--json")
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    assert {"tilt", "lattice", "steps", "terraces"} <= set(data)
+    assert {"macroscopic", "terrace", "azimuth"} <= set(data["tilt"])
+    assert {"a", "b", "gamma", "sigma_a", "sigma_b"} <= set(data["lattice"])
+    assert abs(data["tilt"]["terrace"] - TILT) <= 0.3
+    assert abs(data["lattice"]["a"] - A) <= 0.02 * A
+    assert abs(data["lattice"]["gamma"] - 90.0) <= 1.0
+    assert data["terraces"] == 4
+    assert [set(s) for s in data["steps"]] == [{"height", "sigma"}] * 3
+    assert all(abs(s["height"] - STEP) <= 0.05 * STEP for s in data["steps"])
+
+
+def test_out_writes_a_measurement_file_that_reads_back(scan, tmp_path):
+    out = tmp_path / "measurement.toml"
+    steps = tmp_path / "steps.txt"
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", out, "--steps-out", steps,
+               "--mount", 0, 0, 1)
+    assert r.exit_code == 0, r.output
+    m = read_measurement(out)
+    assert m.mount == (0, 0, 1)
+    assert abs(m.tilt.value - TILT) <= 0.3
+    assert [abs(v.value - A) <= 0.02 * A for v in m.spacings] == [True, True]
+    assert abs(m.row_angle.value - 90.0) <= 1.0
+    assert len(m.steps) == 3 and all(abs(v.value - STEP) <= 0.05 * STEP for v in m.steps)
+    assert read_steps(steps) == m.steps
+    assert "drift-free" in out.read_text(encoding="utf-8")
+
+
+def test_existing_output_is_not_overwritten_without_force(scan, tmp_path):
+    out = tmp_path / "measurement.toml"
+    out.write_text("keep\n")
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", out)
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "exists" in lines[0] and "--force" in lines[0]
+    assert out.read_text() == "keep\n"
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", out, "--force")
+    assert r.exit_code == 0, r.output
+    assert read_measurement(out).tilt is not None
+
+
+def test_sidecar_calibration_is_used(scan, tmp_path):
+    local = tmp_path / "side.npy"
+    local.write_bytes(scan.read_bytes())
+    (tmp_path / "side.toml").write_text('pixel_size = "0.05nm"\nz_unit = "nm"\n', encoding="utf-8")
+    r = invoke("image", local, "--json")
+    assert r.exit_code == 0, r.output
+    assert abs(json.loads(r.stdout)["lattice"]["a"] - A) <= 0.02 * A
+
+
+def test_bad_inputs_give_one_line_and_exit_code_2(scan, tmp_path):
+    nan = tmp_path / "nan.npy"
+    np.save(nan, np.full((32, 32), np.nan))
+    cases = [
+        (["image", scan, "--z-unit", "nm"], "--pixel-size"),
+        (["image", scan, "--pixel-size", "0.05", "--z-unit", "nm"], "needs a unit"),
+        (["image", scan, "--pixel-size", "0.05nm", "--z-unit", "furlong"], "furlong"),
+        (["image", nan, "--pixel-size", "0.05nm", "--z-unit", "nm"], "only NaN"),
+        (["image", tmp_path / "missing.npy", "--pixel-size", "0.05nm", "--z-unit", "nm"], "missing.npy"),
+        (["image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", scan, "--force"], "input file"),
+    ]
+    for args, text in cases:
+        r = invoke(*args)
+        assert r.exit_code == 2, (args, r.output)
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and text in lines[0] and "Traceback" not in r.output, (args, r.stderr)
+    assert np.load(scan).shape == (256, 256)  # the input is untouched
+
+
+def test_out_and_steps_out_naming_one_file_is_refused_before_writing(scan, tmp_path):
+    # Before, the measurement file was written and then the step list failed on it.
+    target = tmp_path / "both.toml"
+    for extra in ([], ["--force"]):
+        r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", target,
+                   "--steps-out", tmp_path / "." / "both.toml", *extra)
+        assert r.exit_code == 2, r.output
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and "same file" in lines[0], lines
+        assert not target.exists()
+
+
+def test_bad_mount_is_an_error_even_without_out(scan):
+    # --mount only ends up in the --out file, but a (0 0 0) mount is bad input either way.
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--mount", 0, 0, 0)
+    assert r.exit_code == 2, r.output
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "0 0 0" in lines[0], lines

@@ -1,0 +1,192 @@
+import numpy as np
+import pytest
+
+from termination.testing import random_rotation
+from termination import StructureError, build_crystal
+from termination.surface.terminations import face_terminations
+
+
+def steps_between(ft, a, b):
+    for s in ft.steps:
+        if (s.from_label, s.to_label) == (a, b):
+            return np.array(s.heights)
+    raise KeyError((a, b))
+
+
+def test_diamond_001_single_and_double_steps(proto):
+    c = proto("diamond:Si")  # a = 5.431 Å (from memory)
+    ft = face_terminations(c, (0, 0, 1))
+    a = c.cell_parameters[0]
+    assert len(ft.terminations) == 2
+    t1, t2 = ft.terminations
+    # The two Si(001) layers are related by the 4_2 screw: equivalent, same label,
+    # rotated 90° (dimer rows turn by 90° across a single-layer step; common practice).
+    assert t1.label == t2.label == "Si" and t2.equivalent_to == t1.id and "90" in t2.relation
+    h = steps_between(ft, "Si", "Si")
+    # single-layer steps a/4 = 1.358 Å, double steps a/2 (Chadi, Phys. Rev. Lett. 59, 1691 (1987))
+    assert h[0] == pytest.approx(a / 4, abs=1e-4) and h[0] == pytest.approx(1.358, abs=1e-3)
+    assert h[1] == pytest.approx(a / 2, abs=1e-4)
+
+
+def test_si_111_bilayer_step(proto):
+    ft = face_terminations(proto("diamond:Si"), (1, 1, 1))
+    assert len(ft.terminations) == 1 and ft.terminations[0].composition == {"Si": 2}  # bilayer (common practice)
+    assert ft.smallest_step == pytest.approx(5.431 / np.sqrt(3), abs=1e-4)  # 3.135 Å
+    assert ft.smallest_step == pytest.approx(3.135, abs=1e-3)
+
+
+@pytest.mark.parametrize("hkl, step_over_a", [((1, 1, 1), 1 / np.sqrt(3)), ((0, 0, 1), 0.5), ((0, 1, 1), 1 / (2 * np.sqrt(2)))])
+def test_fcc_monatomic_steps(proto, hkl, step_over_a):
+    # monatomic fcc steps: (111) a/sqrt3, (001) a/2, (110) a/(2 sqrt2) (common practice)
+    for spec in ("fcc:Cu", "fcc:Pt"):
+        c = proto(spec)
+        ft = face_terminations(c, hkl)
+        assert len(ft.terminations) == 1
+        assert ft.smallest_step == pytest.approx(step_over_a * c.cell_parameters[0], rel=1e-9)
+
+
+def test_rocksalt_001_one_mixed_termination(proto):
+    c = proto("rocksalt:Na,Cl")
+    ft = face_terminations(c, (0, 0, 1))
+    assert [t.composition for t in ft.terminations] == [{"Na": 1, "Cl": 1}]
+    assert ft.smallest_step == pytest.approx(5.64 / 2)  # NaCl(001) steps a/2 = 2.82 Å (common practice)
+
+
+def test_rocksalt_111_has_two_single_species_terminations(proto):
+    ft = face_terminations(proto("rocksalt:Mg,O"), (1, 1, 1))
+    assert sorted(t.label for t in ft.terminations) == ["Mg", "O"]  # polar MgO(111) (Tasker 1979)
+
+
+def test_fluorite_111_triple_layer_unit(proto):
+    c = proto("fluorite:Ca,F")
+    ft = face_terminations(c, (1, 1, 1))
+    assert len(ft.terminations) == 1
+    t = ft.terminations[0]
+    assert t.composition == {"Ca": 1, "F": 2} and len(t.layers) == 3  # F-Ca-F unit (Tasker 1979)
+    assert ft.layers[t.layers[0]].composition == {"F": 1}  # F on top
+    # CaF2(111) steps a/sqrt3 = 3.15 Å (common practice)
+    assert ft.smallest_step == pytest.approx(5.463 / np.sqrt(3), abs=1e-3)
+    assert ft.smallest_step == pytest.approx(3.15, abs=0.01)
+
+
+def test_perovskite_001_half_unit_cell_steps(proto):
+    c = proto("perovskite:Sr,Ti,O")
+    ft = face_terminations(c, (0, 0, 1))
+    assert sorted(t.label for t in ft.terminations) == ["SrO", "TiO2"]
+    a = c.cell_parameters[0]
+    # SrTiO3(001): half-unit-cell steps a/2 = 1.95 Å between SrO and TiO2 (common practice)
+    assert steps_between(ft, "SrO", "TiO2")[0] == pytest.approx(a / 2)
+    assert steps_between(ft, "TiO2", "TiO2")[0] == pytest.approx(a)
+
+
+def test_hexaboride_001_metal_and_intact_b6(proto):
+    ft = face_terminations(proto("hexaboride:La,B"), (0, 0, 1))
+    labels = sorted(t.label for t in ft.terminations)
+    # LaB6(001): La-terminated or B6-terminated, octahedra intact (common practice)
+    assert labels == ["B6", "La"]
+    b6 = ft.termination("B6")
+    assert len(b6.layers) == 3
+    assert all(not c.allowed for c in ft.cuts if c.unit_bonds > min(x.unit_bonds for x in ft.cuts))
+
+
+def test_half_heusler_111_three_terminations_and_reverse_order(proto):
+    c = proto("half-heusler:Ti,Ni,Sn")
+    up = face_terminations(c, (1, 1, 1))
+    down = face_terminations(c, (-1, -1, -1))
+    assert sorted(t.label for t in up.terminations) == ["Ni", "Sn", "Ti"]
+    d = up.d
+    # Layer stacking along [111] Sn(4a) - Ti(4b) at d/2 - Ni(4c) at 3d/4 (Wyckoff positions, International Tables):
+    # steps between different terminations are d/4, d/2 and 3d/4.
+    deltas = sorted({round(s.heights[0] / d, 6) for s in up.steps if s.from_label != s.to_label})
+    assert deltas == pytest.approx([0.25, 0.5, 0.75])
+    seq_up = [l.composition for l in up.layers]
+    seq_down = [l.composition for l in down.layers]
+    # reading the stack from the other side reverses the order of the layers
+    assert [list(c)[0] for c in seq_up] != [list(c)[0] for c in seq_down]
+    assert steps_between(up, "Sn", "Ni")[0] == pytest.approx(steps_between(down, "Ni", "Sn")[0])
+
+
+@pytest.mark.parametrize("spec, hkl", [("half-heusler:Ti,Ni,Sn", (1, 1, 3)), ("perovskite:Sr,Ti,O", (0, 1, 2)), ("hexaboride:La,B", (1, 1, 1))])
+def test_steps_close_the_period(proto, spec, hkl):
+    ft = face_terminations(proto(spec), hkl)
+    first = {(s.from_label, s.to_label): s.heights[0] for s in ft.steps}
+    for (a, b), h in first.items():
+        if a != b:
+            # up from a to b, then up from b to a again: one period d (invariant)
+            assert h + first[(b, a)] == pytest.approx(ft.d, abs=1e-5)
+        else:
+            assert h == pytest.approx(ft.d, abs=1e-5)
+
+
+@pytest.mark.parametrize("spec", ["half-heusler:Ti,Ni,Sn", "perovskite:Sr,Ti,O", "hexaboride:La,B"])
+def test_layers_hold_one_primitive_cell(proto, spec):
+    c = proto(spec)
+    ft = face_terminations(c, (1, 1, 0))
+    total = {}
+    for layer in ft.layers:
+        for el, n in layer.composition.items():
+            total[el] = total.get(el, 0) + n
+    per_prim = {el: c.species.count(el) // len(c.centring) for el in set(c.species)}
+    assert total == per_prim
+
+
+def _signature(ft):
+    return (
+        round(ft.d, 6),
+        tuple((round(l.depth, 4), tuple(sorted(l.composition.items()))) for l in ft.layers),
+        tuple((t.label, round(t.broken_bonds_per_nm2, 4)) for t in ft.terminations),
+        tuple((s.from_label, s.to_label, tuple(round(h, 4) for h in s.heights)) for s in ft.steps),
+    )
+
+
+def test_symmetry_equivalent_faces_give_identical_results(proto):
+    c = proto("half-heusler:Ti,Ni,Sn")
+    ref = _signature(face_terminations(c, (1, 1, 1)))
+    for v in [(1, -1, -1), (-1, 1, -1), (-1, -1, 1)]:  # Td variants of (111)
+        assert _signature(face_terminations(c, v)) == ref
+
+
+def test_rotated_shifted_input_gives_same_terminations(proto):
+    c = proto("perovskite:Sr,Ti,O")
+    rng = np.random.default_rng(3)
+    R = random_rotation(rng)
+    moved = build_crystal(c.lattice @ R.T, (c.positions + rng.random(3)) % 1, c.species)
+    for hkl in [(0, 0, 1), (1, 1, 0), (1, 1, 1)]:
+        assert _signature(face_terminations(moved, hkl)) == _signature(face_terminations(c, hkl))
+
+
+def test_surface_atoms_start_at_top_layer(proto):
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    s = ft.surface_atoms("SrO", 2.5)
+    top = s.depth < 1e-6
+    assert sorted(np.array(s.species)[top]) == ["O", "Sr"]
+    assert np.all(s.unit[top] == 0) and np.all(s.unit[s.depth > 1.0] == 1)
+    r = ft.repeat_unit("SrO")
+    assert sorted(r.species) == ["O", "O", "O", "Sr", "Ti"]  # one formula unit per period
+
+
+@pytest.mark.parametrize(
+    "kwargs, message",
+    [({"layer_tol_angstrom": -0.1}, "layer tolerance"), ({"unit_ratio": 0.5}, "unit ratio"),
+     ({"bond_cutoff_angstrom": float("nan")}, "bond cutoff"), ({"max_multiple": -1}, "max multiple")],
+)
+def test_bad_options_are_rejected(proto, kwargs, message):
+    with pytest.raises(StructureError, match=message):
+        face_terminations(proto("fcc:Cu"), (1, 1, 1), **kwargs)
+
+
+def test_unknown_termination_names_the_choices(proto):
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    with pytest.raises(StructureError, match="SrO"):
+        ft.termination("LaO")
+
+
+def test_max_multiple_has_a_ceiling(proto):
+    with pytest.raises(StructureError, match="0 to 50"):
+        face_terminations(proto("fcc:Cu"), (1, 1, 1), max_multiple=100000)
+
+
+def test_unknown_termination_message_prints_miller_index_plainly(proto):
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    with pytest.raises(StructureError, match=r"face \(1 1 1\) has no termination"):
+        ft.termination("Xx")
