@@ -8,7 +8,7 @@ exit code 2; ``--traceback`` (anywhere on the command line) shows the trace.
 import functools
 import json
 import sys
-from typing import Annotated, List, Optional, Tuple
+from typing import Annotated
 
 import typer
 
@@ -30,9 +30,7 @@ HYPOTHESIS_NOTE = (
     "An identification is a ranked hypothesis from a model, not proof: confirm it with an "
     "independent probe (diffraction, spectroscopy)."
 )
-SAFETY_NOTE = (
-    "Cleaving, vacuum work and cryogens can hurt people: follow your lab's safety rules."
-)
+SAFETY_NOTE = "Cleaving, vacuum work and cryogens can hurt people: follow your lab's safety rules."
 
 # Shared option types -----------------------------------------------------------------
 StructureArg = Annotated[
@@ -43,13 +41,13 @@ StructureArg = Annotated[
         show_default=False,
     ),
 ]
-LatticeOpt = Annotated[Optional[float], typer.Option("--a", help="Lattice constant of a prototype, Å.")]
-XOpt = Annotated[Optional[float], typer.Option("--x", help="Free positional parameter of a prototype.")]
+LatticeOpt = Annotated[float | None, typer.Option("--a", help="Lattice constant of a prototype, Å.")]
+XOpt = Annotated[float | None, typer.Option("--x", help="Free positional parameter of a prototype.")]
 SymprecOpt = Annotated[float, typer.Option("--symprec", help="Symmetry tolerance, Å.")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print the result as JSON on stdout.")]
 MaxIndexOpt = Annotated[int, typer.Option("--max-index", help="Largest |h|, |k|, |l| (1 to 12).")]
 PlaneOpt = Annotated[
-    Optional[Tuple[int, int, int]],
+    tuple[int, int, int] | None,
     typer.Option("--plane", help="Face H K L (three integers).", show_default=False),
 ]
 LayerTolOpt = Annotated[float, typer.Option("--layer-tol", help="Atoms within this height form one layer, Å.")]
@@ -57,24 +55,25 @@ BondFactorOpt = Annotated[
     float, typer.Option("--bond-factor", help="Bonded if closer than this times the sum of covalent radii.")
 ]
 BondCutoffOpt = Annotated[
-    Optional[float], typer.Option("--bond-cutoff", help="Fixed bond cutoff, Å (replaces --bond-factor).")
+    float | None, typer.Option("--bond-cutoff", help="Fixed bond cutoff, Å (replaces --bond-factor).")
 ]
 UnitRatioOpt = Annotated[
     float,
     typer.Option("--unit-ratio", help="Cuts costing more than this times the cheapest lie inside a unit."),
 ]
 VisibleOpt = Annotated[
-    Optional[List[str]], typer.Option("--visible", help="Only this species images in the corrugation; repeatable.")
+    list[str] | None, typer.Option("--visible", help="Only this species images in the corrugation; repeatable.")
 ]
-WeightOpt = Annotated[Optional[List[str]], typer.Option("--weight", help="Visibility weight EL=W; repeatable.")]
+WeightOpt = Annotated[list[str] | None, typer.Option("--weight", help="Visibility weight EL=W; repeatable.")]
 MountOpt = Annotated[
-    Optional[Tuple[int, int, int]],
+    tuple[int, int, int] | None,
     typer.Option("--mount", help="Mount face H K L (three integers).", show_default=False),
 ]
 ChargeOpt = Annotated[
-    Optional[List[str]],
-    typer.Option("--charge", help="Formal charge EL=Q (3, -0.5, -1/3); repeatable. Default: file or guess.",
-                 show_default=False),
+    list[str] | None,
+    typer.Option(
+        "--charge", help="Formal charge EL=Q (3, -0.5, -1/3); repeatable. Default: file or guess.", show_default=False
+    ),
 ]
 
 
@@ -88,9 +87,9 @@ def handle_errors(fn):
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
-        from termination.errors import TerminationError
-
         import warnings
+
+        from termination.errors import TerminationError
 
         try:
             with warnings.catch_warnings():
@@ -223,8 +222,9 @@ def planes(
     from termination.reports import planes_report
 
     crystal = load(structure, a, x, symprec)
-    report = planes_report(crystal, max_index=max_index, mount=triple(mount),
-                           charges=parse_charge_options(charge) or None)
+    report = planes_report(
+        crystal, max_index=max_index, mount=triple(mount), charges=parse_charge_options(charge) or None
+    )
     if json_out:
         emit_json(report)
         return
@@ -253,16 +253,26 @@ def planes(
                 "—" if p.tilt_axis is None else uvw_text(p.tilt_axis),
             ]
         m = p.mesh
-        cells += [f"{m.a:.4f}", f"{m.b:.4f}", f"{m.gamma:.2f}", f"{m.area:.3f}", str(p.terminations),
-                  f"{p.smallest_step:.3f}", "—" if p.polar is None else ("yes" if p.polar else "no")]
+        cells += [
+            f"{m.a:.4f}",
+            f"{m.b:.4f}",
+            f"{m.gamma:.2f}",
+            f"{m.area:.3f}",
+            str(p.terminations),
+            f"{p.smallest_step:.3f}",
+            "—" if p.polar is None else ("yes" if p.polar else "no"),
+        ]
         table.add_row(*cells)
     console.print(table)
     if report.charges is None:
-        console.print("[dim]polar: unknown without formal charges; give --charge EL=Q "
-                      "(see `termination polarity`).[/dim]")
+        console.print(
+            "[dim]polar: unknown without formal charges; give --charge EL=Q (see `termination polarity`).[/dim]"
+        )
     else:
-        console.print(f"[dim]polar: every termination Tasker type III; charges {report.charges.text} "
-                      f"({report.charges.method}).[/dim]")
+        console.print(
+            f"[dim]polar: every termination Tasker type III; charges {report.charges.text} "
+            f"({report.charges.method}).[/dim]"
+        )
         if report.charges.caution:
             console.print(f"[dim]Note: {report.charges.caution}.[/dim]")
     print_cautions(console, report.structure)
@@ -320,7 +330,9 @@ def terminations(
     bond_factor: BondFactorOpt = 1.15,
     bond_cutoff: BondCutoffOpt = None,
     unit_ratio: UnitRatioOpt = 1.8,
-    max_multiple: Annotated[int, typer.Option("--max-multiple", help="Steps listed up to this many extra periods d.")] = 3,
+    max_multiple: Annotated[
+        int, typer.Option("--max-multiple", help="Steps listed up to this many extra periods d.")
+    ] = 3,
     symprec: SymprecOpt = 1e-3,
     json_out: JsonOpt = False,
 ):
@@ -356,16 +368,34 @@ def terminations(
         lt.add_row(str(i), f"{layer.depth:.4f}", composition_text(layer.composition))
     console.print(lt)
     tt = Table(title="Terminations (top layer or unit), by broken-bond density")
-    for col in ("id", "label", "layers", "depth (Å)", "broken bonds/nm²", "weighted/nm²", "equivalent to",
-                "apparent lattice"):
+    for col in (
+        "id",
+        "label",
+        "layers",
+        "depth (Å)",
+        "broken bonds/nm²",
+        "weighted/nm²",
+        "equivalent to",
+        "apparent lattice",
+    ):
         tt.add_column(col, justify="right")
     for t, lat in zip(report.terminations, report.apparent_lattices):
         eq = "—" if t.equivalent_to is None else f"{t.equivalent_to} ({t.relation})"
-        tt.add_row(t.id, t.label, ",".join(map(str, t.layers)), f"{t.depth:.4f}",
-                   f"{t.broken_bonds_per_nm2:.2f}", f"{t.weighted_bonds_per_nm2:.2f}", eq, lattice_text(lat))
+        tt.add_row(
+            t.id,
+            t.label,
+            ",".join(map(str, t.layers)),
+            f"{t.depth:.4f}",
+            f"{t.broken_bonds_per_nm2:.2f}",
+            f"{t.weighted_bonds_per_nm2:.2f}",
+            eq,
+            lattice_text(lat),
+        )
     console.print(tt)
-    console.print("[dim]Apparent lattice: what a topograph shows in the default corrugation model (all species "
-                  "alike, top unit, λ = 0.5 Å); see `termination corrugation`.[/dim]")
+    console.print(
+        "[dim]Apparent lattice: what a topograph shows in the default corrugation model (all species "
+        "alike, top unit, λ = 0.5 Å); see `termination corrugation`.[/dim]"
+    )
     st = Table(title="Allowed step heights, lower terrace → upper terrace (Å)")
     for col in ("from", "to", "heights"):
         st.add_column(col, justify="right" if col != "heights" else "left")
@@ -434,22 +464,44 @@ def _steps_summary(steps):
 @app.command()
 @handle_errors
 def match(
-    structure: Annotated[Optional[str], typer.Argument(help="Structure file or prototype spec (omit with --demo).", show_default=False)] = None,
-    demo: Annotated[bool, typer.Option("--demo", help="Run the built-in scenario: a TiNiSn crystal cleaved from a (001) mount.")] = False,
-    measurement: Annotated[Optional[str], typer.Option("--measurement", help="Measurement file (TOML); options override it.")] = None,
+    structure: Annotated[
+        str | None, typer.Argument(help="Structure file or prototype spec (omit with --demo).", show_default=False)
+    ] = None,
+    demo: Annotated[
+        bool, typer.Option("--demo", help="Run the built-in scenario: a TiNiSn crystal cleaved from a (001) mount.")
+    ] = False,
+    measurement: Annotated[
+        str | None, typer.Option("--measurement", help="Measurement file (TOML); options override it.")
+    ] = None,
     mount: MountOpt = None,
-    tilt: Annotated[Optional[str], typer.Option("--tilt", help="Terrace inclination to the mount face, e.g. 30+-3 (°).")] = None,
-    spacing: Annotated[Optional[List[str]], typer.Option("--spacing", help="Corrugation periodicity, e.g. 4.6+-0.2 (Å); repeatable.")] = None,
-    row_angle: Annotated[Optional[str], typer.Option("--row-angle", help="Angle between corrugation rows, e.g. 60+-3 (°).")] = None,
-    step: Annotated[Optional[List[str]], typer.Option("--step", help="Step height, e.g. 1.25+-0.1 (Å); repeatable.")] = None,
-    steps: Annotated[Optional[str], typer.Option("--steps", help="File of step heights, one per line (optional sigma column).")] = None,
-    max_index: Annotated[Optional[int], typer.Option("--max-index", help="Largest Miller index of the candidates (default 3).")] = None,
+    tilt: Annotated[
+        str | None, typer.Option("--tilt", help="Terrace inclination to the mount face, e.g. 30+-3 (°).")
+    ] = None,
+    spacing: Annotated[
+        list[str] | None, typer.Option("--spacing", help="Corrugation periodicity, e.g. 4.6+-0.2 (Å); repeatable.")
+    ] = None,
+    row_angle: Annotated[
+        str | None, typer.Option("--row-angle", help="Angle between corrugation rows, e.g. 60+-3 (°).")
+    ] = None,
+    step: Annotated[
+        list[str] | None, typer.Option("--step", help="Step height, e.g. 1.25+-0.1 (Å); repeatable.")
+    ] = None,
+    steps: Annotated[
+        str | None, typer.Option("--steps", help="File of step heights, one per line (optional sigma column).")
+    ] = None,
+    max_index: Annotated[
+        int | None, typer.Option("--max-index", help="Largest Miller index of the candidates (default 3).")
+    ] = None,
     visible: VisibleOpt = None,
     weight: WeightOpt = None,
-    decay_length: Annotated[Optional[float], typer.Option("--decay-length", help="Decay of visibility with depth, Å.")] = None,
+    decay_length: Annotated[
+        float | None, typer.Option("--decay-length", help="Decay of visibility with depth, Å.")
+    ] = None,
     charge: ChargeOpt = None,
     flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
-    no_reconstructions: Annotated[bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")] = False,
+    no_reconstructions: Annotated[
+        bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")
+    ] = False,
     top: Annotated[int, typer.Option("--top", help="Show this many candidates.")] = 10,
     a: LatticeOpt = None,
     x: XOpt = None,
@@ -459,8 +511,8 @@ def match(
     """Rank which face and termination match the measured tilt, corrugation and steps."""
     from termination.errors import MeasurementError
     from termination.identification.likelihood import match as run_match
-    from termination.identification.model import MatchModel
     from termination.identification.measurement import Measurement, merge, read_measurement
+    from termination.identification.model import MatchModel
 
     if demo:
         from termination.structures import bundled
@@ -472,8 +524,9 @@ def match(
     if structure is None:
         raise MeasurementError("give a STRUCTURE (file or prototype spec), or --demo")
     base = read_measurement(measurement) if measurement else Measurement()
-    cli_values = _measurement_from_options(mount, max_index, tilt, spacing, row_angle, step, steps, visible, weight,
-                                           decay_length)
+    cli_values = _measurement_from_options(
+        mount, max_index, tilt, spacing, row_angle, step, steps, visible, weight, decay_length
+    )
     meas = merge(base, cli_values)
     crystal = load(structure, a, x, symprec)
     from termination.bulk.charges import parse_charge_options
@@ -513,14 +566,26 @@ def match(
     for r in report.candidates:
         sp = ", ".join(_fmt_criterion(c, "") for c in r.spacings) or "—"
         st = _steps_summary(r.steps)
-        table.add_row(str(r.rank), hkl_text(r.hkl), r.termination, r.cell or "1×1", f"{r.probability:.3f}",
-                      _fmt_criterion(r.tilt, "", 1), sp, _fmt_criterion(r.row_angle, "", 1), st)
+        table.add_row(
+            str(r.rank),
+            hkl_text(r.hkl),
+            r.termination,
+            r.cell or "1×1",
+            f"{r.probability:.3f}",
+            _fmt_criterion(r.tilt, "", 1),
+            sp,
+            _fmt_criterion(r.row_angle, "", 1),
+            st,
+        )
     console.print(table)
-    console.print("[dim]Each cell: predicted value (residual in σ); steps: measured heights explained within 2σ. "
-                  "--json gives every criterion.[/dim]")
-    console.print("Faces, over their terminations: " + ", ".join(
-        f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in report.faces[:4] if f.probability >= 0.005
-    ))
+    console.print(
+        "[dim]Each cell: predicted value (residual in σ); steps: measured heights explained within 2σ. "
+        "--json gives every criterion.[/dim]"
+    )
+    console.print(
+        "Faces, over their terminations: "
+        + ", ".join(f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in report.faces[:4] if f.probability >= 0.005)
+    )
     console.print(f"[bold]{report.verdict}[/bold]")
     if report.warning:
         console.print(f"[yellow]{report.warning}[/yellow]")
@@ -555,7 +620,7 @@ def corrugation(
     structure: StructureArg,
     plane: PlaneOpt = None,
     termination: Annotated[
-        Optional[str], typer.Option("--termination", help="Termination id (T2) or label (SrO); default all.")
+        str | None, typer.Option("--termination", help="Termination id (T2) or label (SrO); default all.")
     ] = None,
     visible: VisibleOpt = None,
     weight: WeightOpt = None,
@@ -563,17 +628,23 @@ def corrugation(
         float, typer.Option("--decay-length", help="Decay length λ of the depth weight exp(-depth/λ), Å.")
     ] = 0.5,
     depth: Annotated[
-        Optional[float],
+        float | None,
         typer.Option("--depth", help="Atoms down to this depth below the top layer image, Å (default: the top unit)."),
     ] = None,
-    threshold: Annotated[float, typer.Option("--threshold", help="A spot is visible when |F(G)|/F(0) exceeds this.")] = 0.05,
+    threshold: Annotated[
+        float, typer.Option("--threshold", help="A spot is visible when |F(G)|/F(0) exceeds this.")
+    ] = 0.05,
     reconstructions: Annotated[
         bool,
-        typer.Option("--reconstructions/--no-reconstructions",
-                     help="Add the reconstruction cells of polar terminations (polarity step)."),
+        typer.Option(
+            "--reconstructions/--no-reconstructions",
+            help="Add the reconstruction cells of polar terminations (polarity step).",
+        ),
     ] = True,
     charge: ChargeOpt = None,
-    max_cell: Annotated[int, typer.Option("--max-cell", help="Largest reconstruction cell, in 1×1 cells (1 to 12).")] = 4,
+    max_cell: Annotated[
+        int, typer.Option("--max-cell", help="Largest reconstruction cell, in 1×1 cells (1 to 12).")
+    ] = 4,
     a: LatticeOpt = None,
     x: XOpt = None,
     symprec: SymprecOpt = 1e-3,
@@ -586,8 +657,13 @@ def corrugation(
     crystal = load(structure, a, x, symprec)
     from termination.surface.corrugation import Visibility
 
-    visibility = Visibility(visible=visible or None, weights=parse_assignments(weight, "--weight", "StructureError"),
-                            decay_length_angstrom=decay_length, max_depth_angstrom=depth, threshold=threshold)
+    visibility = Visibility(
+        visible=visible or None,
+        weights=parse_assignments(weight, "--weight", "StructureError"),
+        decay_length_angstrom=decay_length,
+        max_depth_angstrom=depth,
+        threshold=threshold,
+    )
     report = corrugation_report(
         crystal,
         require_plane(plane),
@@ -623,9 +699,15 @@ def corrugation(
         for p in (t,) + t.reconstructions:
             lat = p.apparent_lattice
             table.add_row(
-                t.id if p is t else "", t.label if p is t else "", p.cell or "1×1",
-                length_text(lat.a), length_text(lat.b), f"{lat.gamma:.1f}", p.lattice_type,
-                length_text(p.neighbour_distance), " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
+                t.id if p is t else "",
+                t.label if p is t else "",
+                p.cell or "1×1",
+                length_text(lat.a),
+                length_text(lat.b),
+                f"{lat.gamma:.1f}",
+                p.lattice_type,
+                length_text(p.neighbour_distance),
+                " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
                 " ".join(f"{v:.0f}" for v in p.row_angles) or "—",
             )
     console.print(table)
@@ -642,8 +724,10 @@ def corrugation(
     console.print(spots)
     for note in report.notes:
         console.print(f"[dim]{note}[/dim]")
-    console.print("[dim]A geometric model: which species images at a given bias is not predicted; "
-                  "try --visible and --weight. --json lists every spot.[/dim]")
+    console.print(
+        "[dim]A geometric model: which species images at a given bias is not predicted; "
+        "try --visible and --weight. --json lists every spot.[/dim]"
+    )
     print_cautions(console, report.structure)
 
 
@@ -671,8 +755,8 @@ def polarity(
     structure: StructureArg,
     plane: PlaneOpt = None,
     max_index: Annotated[
-        Optional[int], typer.Option("--max-index", help="All faces up to this index (1 to 12; default 2).",
-                                    show_default=False)
+        int | None,
+        typer.Option("--max-index", help="All faces up to this index (1 to 12; default 2).", show_default=False),
     ] = None,
     charge: ChargeOpt = None,
     max_cell: Annotated[
@@ -688,8 +772,13 @@ def polarity(
     from termination.reports import polarity_report
 
     crystal = load(structure, a, x, symprec)
-    report = polarity_report(crystal, plane=triple(plane), max_index=max_index,
-                             charges=parse_charge_options(charge) or None, max_cell=max_cell)
+    report = polarity_report(
+        crystal,
+        plane=triple(plane),
+        max_index=max_index,
+        charges=parse_charge_options(charge) or None,
+        max_cell=max_cell,
+    )
     if json_out:
         emit_json(report)
         return
@@ -703,18 +792,35 @@ def polarity(
         console.print(f"[yellow]Note: {q.caution}.[/yellow]")
     shown = 6
     for f in report.faces:
-        table = Table(title=f"{hkl_text(f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, "
-                            + ("polar" if f.polar else "not polar"))
-        for col in ("id", "label", "Tasker", "layer charges (e/cell, top first)", "μ/A (e/Å)", "Δq (e/cell)",
-                    "compensation", "cells (best first)"):
+        table = Table(
+            title=f"{hkl_text(f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, "
+            + ("polar" if f.polar else "not polar")
+        )
+        for col in (
+            "id",
+            "label",
+            "Tasker",
+            "layer charges (e/cell, top first)",
+            "μ/A (e/Å)",
+            "Δq (e/cell)",
+            "compensation",
+            "cells (best first)",
+        ):
             table.add_column(col, justify="right" if col not in ("compensation", "cells (best first)") else "left")
         for t in f.terminations:
             cells = ", ".join(r.wood or matrix_text(r.matrix) for r in t.reconstructions[:3])
             if len(t.reconstructions) > 3:
                 cells += f", … ({len(t.reconstructions)})"
-            table.add_row(t.id, t.label, t.tasker_type, "  ".join(charge_text(L.charge) for L in t.layers),
-                          f"{t.dipole_per_area:+.4f}", f"{t.compensating_charge:+.3f}", compensation_text(t),
-                          cells or (t.note or "—") if t.tasker_type == "III" else "—")
+            table.add_row(
+                t.id,
+                t.label,
+                t.tasker_type,
+                "  ".join(charge_text(L.charge) for L in t.layers),
+                f"{t.dipole_per_area:+.4f}",
+                f"{t.compensating_charge:+.3f}",
+                compensation_text(t),
+                cells or (t.note or "—") if t.tasker_type == "III" else "—",
+            )
         console.print(table)
         for t in f.terminations:
             if not t.reconstructions:
@@ -723,14 +829,23 @@ def polarity(
             for col in ("cell", "matrix", "sites", "changed", "patterns", "energy (eV/site)"):
                 rt.add_column(col, justify="right")
             for r in t.reconstructions[:shown]:
-                rt.add_row(r.wood or "—", matrix_text(r.matrix), str(r.sites), f"{r.changed} ({r.mode})",
-                           str(r.patterns), f"{r.score:.3f}")
+                rt.add_row(
+                    r.wood or "—",
+                    matrix_text(r.matrix),
+                    str(r.sites),
+                    f"{r.changed} ({r.mode})",
+                    str(r.patterns),
+                    f"{r.score:.3f}",
+                )
             console.print(rt)
             if len(t.reconstructions) > shown:
-                console.print(f"[dim]… {len(t.reconstructions) - shown} more cells up to index {report.max_cell} "
-                              "in --json.[/dim]")
-    console.print(f"[dim]μ = Σ q z over the repeat unit, z the depth below the top layer; Δq = μ/d is the charge "
-                  f"the top layer must gain (> 0) or lose (< 0). Patterns ranked by: {report.criterion}.[/dim]")
+                console.print(
+                    f"[dim]… {len(t.reconstructions) - shown} more cells up to index {report.max_cell} in --json.[/dim]"
+                )
+    console.print(
+        f"[dim]μ = Σ q z over the repeat unit, z the depth below the top layer; Δq = μ/d is the charge "
+        f"the top layer must gain (> 0) or lose (< 0). Patterns ranked by: {report.criterion}.[/dim]"
+    )
     print_cautions(console, report.structure, hypothesis=True)
 
 
@@ -768,8 +883,9 @@ def _image_progress(shape):
     from rich.console import Console
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
-    return Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(),
-                    console=Console(stderr=True), transient=True)
+    return Progress(
+        TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(), console=Console(stderr=True), transient=True
+    )
 
 
 def pm_text(value, sigma, digits=3):
@@ -784,35 +900,42 @@ def pm_text(value, sigma, digits=3):
 def image(
     file: Annotated[str, typer.Argument(help="Height map: .npy, .tif/.tiff, or a text matrix.", show_default=False)],
     pixel_size: Annotated[
-        Optional[str],
-        typer.Option("--pixel-size", help="Pixel size with unit, e.g. 0.05nm, or x,y: 0.05nm,0.06nm "
-                     "(default: pixel_size in the sidecar FILE.toml)."),
+        str | None,
+        typer.Option(
+            "--pixel-size",
+            help="Pixel size with unit, e.g. 0.05nm, or x,y: 0.05nm,0.06nm "
+            "(default: pixel_size in the sidecar FILE.toml).",
+        ),
     ] = None,
     z_unit: Annotated[
-        Optional[str],
-        typer.Option("--z-unit", help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm "
-                     "(default: z_unit in the sidecar)."),
+        str | None,
+        typer.Option(
+            "--z-unit",
+            help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm (default: z_unit in the sidecar).",
+        ),
     ] = None,
-    out: Annotated[Optional[str], typer.Option("--out", help="Write a measurement file (TOML) for `match --measurement`.")] = None,
-    steps_out: Annotated[Optional[str], typer.Option("--steps-out", help="Write the step heights for `match --steps`.")] = None,
+    out: Annotated[
+        str | None, typer.Option("--out", help="Write a measurement file (TOML) for `match --measurement`.")
+    ] = None,
+    steps_out: Annotated[
+        str | None, typer.Option("--steps-out", help="Write the step heights for `match --steps`.")
+    ] = None,
     force: Annotated[bool, typer.Option("--force", help="Overwrite existing output files.")] = False,
     mount: MountOpt = None,
     min_step: Annotated[float, typer.Option("--min-step", help="Smallest step height to resolve, Å.")] = 0.5,
     json_out: JsonOpt = False,
 ):
     """Tilt, lattice and step heights of a topograph (height map)."""
-    import numpy as np
-
-    from termination.imaging.analysis import analyse_heightmap
-    from termination.imaging.fourier import DRIFT_NOTE
-    from termination.identification.measurement import measurement_from_image as to_measurement
-    from termination.imaging.reading import read_heightmap, sidecar_path
-    from termination.identification.measurement import write_measurement, write_steps
-
     from pathlib import Path
 
+    import numpy as np
+
     from termination.errors import MeasurementError
-    from termination.identification.measurement import Measurement
+    from termination.identification.measurement import Measurement, write_measurement, write_steps
+    from termination.identification.measurement import measurement_from_image as to_measurement
+    from termination.imaging.analysis import analyse_heightmap
+    from termination.imaging.fourier import DRIFT_NOTE
+    from termination.imaging.reading import read_heightmap, sidecar_path
 
     inputs = (file, sidecar_path(file))
     if out and steps_out and Path(out).resolve() == Path(steps_out).resolve():
@@ -845,15 +968,20 @@ def image(
     from rich.table import Table
 
     console = _console()
-    console.print(f"[bold]{file}[/bold]: {nx} × {ny} px, pixel {hm.pixel_size[0]:g} × {hm.pixel_size[1]:g} Å, "
-                  f"heights {float(np.nanmin(hm.heights)):.2f} to {float(np.nanmax(hm.heights)):.2f} Å")
+    console.print(
+        f"[bold]{file}[/bold]: {nx} × {ny} px, pixel {hm.pixel_size[0]:g} × {hm.pixel_size[1]:g} Å, "
+        f"heights {float(np.nanmin(hm.heights)):.2f} to {float(np.nanmax(hm.heights)):.2f} Å"
+    )
     t = result.tilt
     table = Table(title="Tilt relative to the scanner plane")
     for col in ("plane", "tilt (°)", "azimuth (°)"):
         table.add_column(col, justify="right")
     table.add_row("macroscopic (all pixels)", f"{t.macroscopic:.3f}", f"{t.azimuth:.1f}")
-    table.add_row("terrace (identifies the face)", pm_text(t.terrace, t.terrace_sigma),
-                  "—" if t.terrace_azimuth is None else f"{t.terrace_azimuth:.1f}")
+    table.add_row(
+        "terrace (identifies the face)",
+        pm_text(t.terrace, t.terrace_sigma),
+        "—" if t.terrace_azimuth is None else f"{t.terrace_azimuth:.1f}",
+    )
     console.print(table)
     lat = result.lattice
     lt = Table(title="Lattice (two shortest periodicities, in the terrace plane)")
@@ -862,8 +990,13 @@ def image(
     if lat is None:
         lt.add_row("not found", "—", "—", "—", "—")
     else:
-        lt.add_row(pm_text(lat.a, lat.sigma_a), pm_text(lat.b, lat.sigma_b), pm_text(lat.gamma, lat.sigma_gamma, 2),
-                   f"{lat.direction:.1f}", str(lat.peaks))
+        lt.add_row(
+            pm_text(lat.a, lat.sigma_a),
+            pm_text(lat.b, lat.sigma_b),
+            pm_text(lat.gamma, lat.sigma_gamma, 2),
+            f"{lat.direction:.1f}",
+            str(lat.peaks),
+        )
     console.print(lt)
     st = Table(title=f"Steps ({result.terraces} terraces)")
     st.add_column("#", justify="right")

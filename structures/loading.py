@@ -13,7 +13,7 @@ from termination.errors import StructureError
 
 from .prototypes import PROTOTYPES, build_prototype
 
-__all__ = ["load_structure", "read_structure_file", "bundled"]
+__all__ = ["bundled", "load_structure", "read_structure_file"]
 
 _DATA = os.path.join(os.path.dirname(__file__), "data")
 
@@ -51,7 +51,9 @@ def _read_cif(path):
             parser = CifParser(path, occupancy_tolerance=1.0)
             structures = parser.parse_structures(primitive=False)
     except Exception as exc:  # pymatgen raises many types for malformed files
-        raise StructureError(f"cannot read CIF {base}: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}") from None
+        raise StructureError(
+            f"cannot read CIF {base}: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}"
+        ) from None
     if not structures:
         raise StructureError(f"cannot read CIF {base}: no structure found")
     s = structures[0]
@@ -106,6 +108,4 @@ def load_structure(spec, a=None, x=None, symprec=SYMPREC_ANGSTROM):
     name = spec.partition(":")[0].strip().lower()
     if ":" in spec or name in PROTOTYPES:
         return build_prototype(spec, a=a, x=x, symprec=symprec)
-    raise StructureError(
-        f"{spec!r} is neither a structure file nor a prototype spec such as rocksalt:Na,Cl"
-    )
+    raise StructureError(f"{spec!r} is neither a structure file nor a prototype spec such as rocksalt:Na,Cl")

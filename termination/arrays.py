@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["FloatArray", "IntArray", "BoolArray", "ComplexArray", "AnyArray"]
+__all__ = ["AnyArray", "BoolArray", "ComplexArray", "FloatArray", "IntArray"]
 
 #: Array of float64.
 FloatArray = NDArray[np.float64]

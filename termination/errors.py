@@ -5,12 +5,12 @@ exits with code 2.  Messages name the bad value and say what would be valid.
 """
 
 __all__ = [
-    "TerminationError",
-    "StructureError",
-    "PlaneError",
-    "MeasurementError",
     "ChargeError",
     "ImageError",
+    "MeasurementError",
+    "PlaneError",
+    "StructureError",
+    "TerminationError",
 ]
 
 

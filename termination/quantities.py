@@ -12,7 +12,7 @@ import math
 import re
 from decimal import Decimal, InvalidOperation
 
-__all__ = ["NUMBER_PATTERN", "LENGTH_UNITS_ANGSTROM", "parse_number", "scaled"]
+__all__ = ["LENGTH_UNITS_ANGSTROM", "NUMBER_PATTERN", "parse_number", "scaled"]
 
 #: A decimal number with optional sign and exponent (``-1.5e-3``, ``.5``, ``12``).
 NUMBER_PATTERN = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"

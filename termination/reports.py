@@ -32,19 +32,19 @@ from termination.surface.steps import StepHeights
 from termination.surface.terminations import Termination, face_terminations
 
 __all__ = [
-    "StructureSummary",
-    "summarise_structure",
+    "CorrugationReport",
+    "LayerRow",
     "PlaneRow",
     "PlanesReport",
-    "planes_report",
-    "LayerRow",
-    "TerminationsReport",
-    "terminations_report",
     "PolarityReport",
-    "polarity_report",
+    "StructureSummary",
     "TerminationCorrugation",
-    "CorrugationReport",
+    "TerminationsReport",
     "corrugation_report",
+    "planes_report",
+    "polarity_report",
+    "summarise_structure",
+    "terminations_report",
 ]
 
 
@@ -212,8 +212,17 @@ class PolarityReport:
     faces: tuple[FacePolarity, ...]
 
 
-def polarity_report(crystal, plane=None, max_index=None, *, charges=None, max_cell=MAX_CELL,
-                    use_pymatgen=True, termination_options=None, **tolerances):
+def polarity_report(
+    crystal,
+    plane=None,
+    max_index=None,
+    *,
+    charges=None,
+    max_cell=MAX_CELL,
+    use_pymatgen=True,
+    termination_options=None,
+    **tolerances,
+):
     """Polarity of one face or of all distinct faces up to ``max_index``.
 
     Parameters
@@ -251,8 +260,13 @@ def polarity_report(crystal, plane=None, max_index=None, *, charges=None, max_ce
     for face in faces:
         ft = face_terminations(charged, face.hkl, face=face, **dict(termination_options or {}))
         rows.append(face_polarity(charged, ft, max_cell=max_cell, **tolerances))
-    return PolarityReport(structure=summarise_structure(crystal), charges=assignment, max_cell=max_cell,
-                          criterion=CRITERION, faces=tuple(rows))
+    return PolarityReport(
+        structure=summarise_structure(crystal),
+        charges=assignment,
+        max_cell=max_cell,
+        criterion=CRITERION,
+        faces=tuple(rows),
+    )
 
 
 # --------------------------------------------------------------------------- corrugation
@@ -310,8 +324,9 @@ class CorrugationReport:
     notes: tuple[str, ...]
 
 
-def corrugation_report(crystal, hkl, termination=None, *, visibility=None, reconstructions=True, charges=None,
-                       max_cell=MAX_CELL):
+def corrugation_report(
+    crystal, hkl, termination=None, *, visibility=None, reconstructions=True, charges=None, max_cell=MAX_CELL
+):
     """Corrugation of every termination of ``hkl`` (or of one) as a :class:`CorrugationReport`.
 
     Parameters
@@ -364,4 +379,3 @@ def corrugation_report(crystal, hkl, termination=None, *, visibility=None, recon
         terminations=tuple(rows),
         notes=tuple(notes),
     )
-

@@ -21,9 +21,7 @@ def to_jsonable(obj: Any) -> Any:
     """
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         return {
-            f.metadata.get("json", f.name): to_jsonable(getattr(obj, f.name))
-            for f in dataclasses.fields(obj)
-            if f.repr
+            f.metadata.get("json", f.name): to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if f.repr
         }
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items()}

@@ -21,7 +21,7 @@ from termination.errors import ImageError
 from termination.identification.measurement import Measurement, Value
 from termination.imaging.reading import parse_pixel_size
 
-__all__ = ["synthetic_heightmap", "reciprocal_shell", "synthetic_measurement", "random_rotation", "pa3_structure"]
+__all__ = ["pa3_structure", "random_rotation", "reciprocal_shell", "synthetic_heightmap", "synthetic_measurement"]
 
 
 def reciprocal_shell(a, b, gamma_deg, direction_deg=0.0):
@@ -164,8 +164,18 @@ def synthetic_heightmap(
     return Z
 
 
-def synthetic_measurement(table, index, rng, *, tilt_sigma=1.5, spacing_sigma=0.1, row_angle_sigma=3.0,
-                          step_sigma=0.08, n_spacings=2, n_steps=5):
+def synthetic_measurement(
+    table,
+    index,
+    rng,
+    *,
+    tilt_sigma=1.5,
+    spacing_sigma=0.1,
+    row_angle_sigma=3.0,
+    step_sigma=0.08,
+    n_spacings=2,
+    n_steps=5,
+):
     """Draw a measurement from the likelihood model of candidate ``index``.
 
     Used to test recovery and calibration: tilt from a random upward variant,

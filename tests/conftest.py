@@ -1,6 +1,5 @@
 """Shared fixtures: built-in prototypes at handbook lattice constants."""
 
-import numpy as np
 import pytest
 
 from termination.structures import build_prototype

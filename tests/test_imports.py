@@ -45,11 +45,12 @@ except SystemExit as exc:
 
 def heavy_modules_after(code):
     env = {**os.environ, "PYTHONPATH": ROOT + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    proc = subprocess.run([sys.executable, "-c", code + REPORT], cwd=ROOT, env=env, capture_output=True,
-                          text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-c", code + REPORT], cwd=ROOT, env=env, capture_output=True, text=True, timeout=120
+    )
     assert proc.returncode == 0, proc.stderr[-2000:]
     line = next(v for v in proc.stdout.splitlines() if v.startswith("HEAVY="))
-    return json.loads(line[len("HEAVY="):])
+    return json.loads(line[len("HEAVY=") :])
 
 
 def test_prototype_faces_and_terminations_import_no_heavy_library():

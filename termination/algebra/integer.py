@@ -13,9 +13,9 @@ import numpy as np
 __all__ = [
     "gcd_vector",
     "primitive_index",
+    "rationalise",
     "row_basis",
     "unimodular_completion",
-    "rationalise",
 ]
 
 
@@ -49,7 +49,7 @@ def rationalise(values, denominator=12):
     scaled = np.asarray(values, dtype=float) * denominator
     out = np.rint(scaled).astype(np.int64)
     if np.max(np.abs(scaled - out), initial=0.0) > 1e-6:
-        raise ValueError("values are not multiples of 1/%d" % denominator)
+        raise ValueError(f"values are not multiples of 1/{denominator}")
     return out
 
 

@@ -21,18 +21,18 @@ import numpy as np
 from .integer import row_basis
 
 __all__ = [
-    "gauss_reduce",
-    "reduced_obtuse",
-    "hnf_matrices",
-    "canonical_hnf",
-    "supercell_classes",
     "Wood",
-    "wood_notation",
-    "matrix_text",
+    "canonical_hnf",
     "cell_notation",
-    "coset_representatives",
     "coset_index",
+    "coset_representatives",
+    "gauss_reduce",
+    "hnf_matrices",
+    "matrix_text",
+    "reduced_obtuse",
+    "supercell_classes",
     "translation_permutations",
+    "wood_notation",
 ]
 
 
@@ -271,8 +271,16 @@ def wood_notation(matrix, mesh_inplane, *, angle_tol_degrees=0.5, length_rel_tol
                 continue
             theta = float(th1[i])
             rotated = abs(theta) > angle_tol_degrees
-            key = (rotated, centred, round(abs(theta), 3), theta < 0, round(m * n, 6), -round(m, 6),
-                   tuple(u[i]), tuple(u[j]))
+            key = (
+                rotated,
+                centred,
+                round(abs(theta), 3),
+                theta < 0,
+                round(m * n, 6),
+                -round(m, 6),
+                tuple(u[i]),
+                tuple(u[j]),
+            )
             if best is None or key < best[0]:
                 label = ("c" if centred else "") + f"({mt}×{nt})"
                 if rotated:

@@ -31,16 +31,16 @@ from termination.defaults import NEUTRALITY_TOL_E
 from termination.errors import ChargeError
 
 __all__ = [
-    "COMMON_OXIDATION_STATES",
     "ANION_FORMERS",
+    "COMMON_OXIDATION_STATES",
     "METAL_CAUTION",
     "ChargeAssignment",
-    "parse_charge_options",
-    "light_guess",
-    "pymatgen_guess",
     "assign_charges",
-    "with_formal_charges",
     "is_metallic",
+    "light_guess",
+    "parse_charge_options",
+    "pymatgen_guess",
+    "with_formal_charges",
 ]
 
 # Common oxidation states, most common first (from memory of N. N. Greenwood and
@@ -262,11 +262,9 @@ def _neutralise(per_atom, species, tol, what):
     comp = count_species(species)
     formula_units = math.gcd(*comp.values())
     if abs(total) / formula_units > tol:
-        parts = ", ".join(f"{el}={_format_charge(float(np.mean(per_atom[[s == el for s in species]])))}"
-                          for el in comp)
+        parts = ", ".join(f"{el}={_format_charge(float(np.mean(per_atom[[s == el for s in species]])))}" for el in comp)
         raise ChargeError(
-            f"{what} charges {parts} are not neutral: they sum to {total / formula_units:+.4g} e "
-            "per formula unit"
+            f"{what} charges {parts} are not neutral: they sum to {total / formula_units:+.4g} e per formula unit"
         )
     neg = per_atom < 0
     if neg.any() and abs(total) > 0:
@@ -358,8 +356,9 @@ def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e
         return ChargeAssignment(_by_element(per_atom, species), "option", method, caution, per_atom)
     if crystal.charges is not None:
         per_atom = _neutralise(np.asarray(crystal.charges, dtype=float), species, tol, "file")
-        return ChargeAssignment(_by_element(per_atom, species), "file", "oxidation states from the structure file",
-                                caution, per_atom)
+        return ChargeAssignment(
+            _by_element(per_atom, species), "file", "oxidation states from the structure file", caution, per_atom
+        )
     guess = light_guess(species)
     if guess is not None:
         values, how = guess
@@ -371,8 +370,13 @@ def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e
         if values is not None:
             per_atom = np.array([values[s] for s in species], dtype=float)
             per_atom = _neutralise(per_atom, species, tol, "guessed")
-            return ChargeAssignment(_by_element(per_atom, species), "pymatgen",
-                                    "guessed by pymatgen (Composition.oxi_state_guesses)", caution, per_atom)
+            return ChargeAssignment(
+                _by_element(per_atom, species),
+                "pymatgen",
+                "guessed by pymatgen (Composition.oxi_state_guesses)",
+                caution,
+                per_atom,
+            )
     if not required:
         return None
     hint = f" ({METAL_CAUTION})" if is_metallic(species) else ""

@@ -118,7 +118,7 @@ def _step_mixture(ft, t, model):
     """Allowed heights from termination t (up and down) with weights rho^n."""
     tops = {x.id: ft.layers[x.layers[0]].height for x in ft.terminations}
     allowed = steps_from(t.id, tops, ft.d, model.max_multiple, ft.layer_tol_angstrom)
-    w = np.array([model.step_decay ** s.multiple for s in allowed])
+    w = np.array([model.step_decay**s.multiple for s in allowed])
     heights = tuple(s.height for s in allowed)
     labels = tuple(f"{s.lower}->{s.upper} {'up' if s.lower == t.id else 'down'}" for s in allowed)
     return heights, tuple(w / w.sum()), labels
@@ -187,8 +187,15 @@ def candidate_table(
             lat = pattern.apparent_lattice
             heights, sw, labels = _step_mixture(ft, t, model)
             base = dict(
-                hkl=f.hkl, termination=t.label, termination_id=t.id, d=ft.d, tilts=tilts, tilt_variants=variants,
-                step_heights=heights, step_weights=sw, step_labels=labels,
+                hkl=f.hkl,
+                termination=t.label,
+                termination_id=t.id,
+                d=ft.d,
+                tilts=tilts,
+                tilt_variants=variants,
+                step_heights=heights,
+                step_weights=sw,
+                step_labels=labels,
             )
             polar, recon = polar_info(ft, t) if polar_info else (None, ())
             share = np.log(1 - RECONSTRUCTED_SHARE) if recon else 0.0
@@ -239,10 +246,12 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
     """
     charged, found = with_formal_charges(crystal, charges)
     if found is None:
-        return crystal, None, ["no formal charges known (give --charge EL=Q): polarity not assessed, "
-                               "no reconstruction candidates"]
-    notes = [f"formal charges {found.method}: "
-             + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
+        return (
+            crystal,
+            None,
+            ["no formal charges known (give --charge EL=Q): polarity not assessed, no reconstruction candidates"],
+        )
+    notes = [f"formal charges {found.method}: " + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
     if found.caution:
         notes.append(found.caution)
 

@@ -59,7 +59,7 @@ import numpy as np
 
 from termination.defaults import MAX_INDEX
 from termination.errors import MeasurementError
-from termination.identification.candidates import Candidate, CandidateTable, candidate_table, logsumexp
+from termination.identification.candidates import candidate_table, logsumexp
 from termination.identification.measurement import Measurement
 from termination.reports import StructureSummary
 from termination.surface.corrugation import Visibility
@@ -67,13 +67,13 @@ from termination.surface.miller import hkl_text as _hkl
 
 __all__ = [
     "Criterion",
-    "MatchRow",
-    "MatchReport",
     "FaceProbability",
+    "MatchReport",
+    "MatchRow",
     "effective_measurement",
-    "score",
     "match",
     "measurement_visibility",
+    "score",
 ]
 
 
@@ -242,10 +242,15 @@ def score(table, measurement, top=None):
     prob = np.exp(post - logsumexp(post))
     order = np.lexsort((np.arange(len(prob)), -np.round(prob, 12)))
     shown = order if top is None else order[: int(top)]
-    rows = tuple(_row(rank + 1, table.candidates[i], prob[i], loglik[i], eff, table.model) for rank, i in enumerate(shown))
+    rows = tuple(
+        _row(rank + 1, table.candidates[i], prob[i], loglik[i], eff, table.model) for rank, i in enumerate(shown)
+    )
     faces = _face_marginals(table.candidates, prob)
-    second = None if len(order) < 2 else _row(2, table.candidates[order[1]], prob[order[1]], loglik[order[1]], eff,
-                                               table.model)
+    second = (
+        None
+        if len(order) < 2
+        else _row(2, table.candidates[order[1]], prob[order[1]], loglik[order[1]], eff, table.model)
+    )
     verdict, warning = _verdict(rows[0], second, len(table.candidates), faces)
     notes = table.notes + (
         "An identification is a ranked hypothesis from a model, not proof: confirm it with an independent probe.",
@@ -348,9 +353,7 @@ def _verdict(best, second, n_candidates, faces):
             f"(p = {second.probability:.2f}); measure more (steps, a second spacing, the tilt) to separate them."
         )
         if len(faces) > 1 and faces[1].probability > 0 and faces[0].probability / faces[1].probability < 2.0:
-            warning += (
-                f" The faces {_hkl(faces[0].hkl)} and {_hkl(faces[1].hkl)} are themselves within a factor of 2."
-            )
+            warning += f" The faces {_hkl(faces[0].hkl)} and {_hkl(faces[1].hkl)} are themselves within a factor of 2."
     return verdict, warning
 
 

@@ -42,22 +42,20 @@ from termination.errors import MeasurementError
 from termination.quantities import NUMBER_PATTERN
 
 __all__ = [
-    "Value",
     "Measurement",
+    "Value",
+    "format_measurement",
+    "format_steps",
+    "measurement_from_image",
+    "merge",
     "parse_value",
     "read_measurement",
-    "write_measurement",
-    "format_measurement",
     "read_steps",
+    "write_measurement",
     "write_steps",
-    "format_steps",
-    "merge",
-    "measurement_from_image",
 ]
 
-_VALUE_RE = re.compile(
-    rf"^\s*(?P<value>{NUMBER_PATTERN})\s*(?:(?:\+-|\+/-|±)\s*(?P<sigma>{NUMBER_PATTERN}))?\s*$"
-)
+_VALUE_RE = re.compile(rf"^\s*(?P<value>{NUMBER_PATTERN})\s*(?:(?:\+-|\+/-|±)\s*(?P<sigma>{NUMBER_PATTERN}))?\s*$")
 _SYMBOL_RE = re.compile(r"^[A-Z][a-z]{0,2}$")
 _BARE_KEY_RE = re.compile(r"^[A-Za-z0-9_-]+$")
 
@@ -254,9 +252,7 @@ def parse_value(text):
         raise MeasurementError(f"a measured value must be text like '30+-3', got {text!r}")
     match = _VALUE_RE.match(text)
     if match is None:
-        raise MeasurementError(
-            f"cannot read {text!r} as a measured value; write e.g. '30', '30+-3' or '30±3'"
-        )
+        raise MeasurementError(f"cannot read {text!r} as a measured value; write e.g. '30', '30+-3' or '30±3'")
     value = float(match["value"])
     sigma = match["sigma"]
     if sigma is not None:

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 from termination.defaults import MAX_MULTIPLE
 
-__all__ = ["MatchModel", "RECONSTRUCTED_SHARE"]
+__all__ = ["RECONSTRUCTED_SHARE", "MatchModel"]
 
 #: Prior mass of a polar termination given to its reconstruction cells together.
 RECONSTRUCTED_SHARE = 0.5

@@ -43,7 +43,7 @@ from termination.imaging.terraces import (
     tilt_azimuth,
 )
 
-__all__ = ["Tilt", "HeightMapAnalysis", "analyse_heightmap"]
+__all__ = ["HeightMapAnalysis", "Tilt", "analyse_heightmap"]
 
 
 @dataclass(frozen=True)
@@ -71,8 +71,6 @@ class Tilt:
     azimuth: float
     terrace_azimuth: float | None
     terrace_sigma: float | None
-
-
 
 
 @dataclass(frozen=True)
@@ -196,7 +194,7 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     report(0.6, "steps")
     structure = _structure_ratio(z.shape, terr, params.structure_smooth_px, params.bin)
     dist, near = terr.dist, terr.near
-    steps, f, cov_ab = _steps(terr, z.shape, dist, near, params)
+    steps, _f, cov_ab = _steps(terr, z.shape, dist, near, params)
     n_levels = len(set(terr.level_of.tolist()))
     slope = math.hypot(a, b)
     if cov_ab is not None and slope > 0:

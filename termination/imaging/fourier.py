@@ -13,13 +13,11 @@ from scipy import fft as sp_fft
 from scipy import ndimage
 
 from termination.algebra.lattice2d import gauss_reduce
-from termination.imaging.parameters import ImageParameters
 
 __all__ = ["DRIFT_NOTE", "Lattice", "fourier_lattice"]
 
 DRIFT_NOTE = (
-    "lattice assumes a drift-free, linear scanner: drift, creep or a wrong x/y "
-    "calibration distort a, b and gamma"
+    "lattice assumes a drift-free, linear scanner: drift, creep or a wrong x/y calibration distort a, b and gamma"
 )
 
 
@@ -165,9 +163,7 @@ def fourier_lattice(resid, px, slope, p, notes):
     usable[[0, -1], :] = False
     usable[:, -1] = False
     if not usable.any():
-        notes.append(
-            f"no lattice: the image is too small for a periodicity to repeat {p.min_periods} times"
-        )
+        notes.append(f"no lattice: the image is too small for a periodicity to repeat {p.min_periods} times")
         return None
     bg_img = np.full(power.shape, np.inf)
     bg_img[half] = _radial_background(power[half], kr[half], max(dkx, dky))
@@ -178,10 +174,7 @@ def fourier_lattice(resid, px, slope, p, notes):
         cand &= power == ndimage.maximum_filter(power, size=3, mode="nearest")
     rows, cols = np.nonzero(cand)
     if rows.size == 0:
-        notes.append(
-            "no lattice: no Fourier peak above the noise "
-            f"(false-alarm probability {p.lattice_false_alarm:g})"
-        )
+        notes.append(f"no lattice: no Fourier peak above the noise (false-alarm probability {p.lattice_false_alarm:g})")
         return None
     order = np.argsort(power[rows, cols])[::-1]
     rows, cols = rows[order], cols[order]
@@ -202,9 +195,7 @@ def fourier_lattice(resid, px, slope, p, notes):
     dy, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
     g = np.stack([(cols - cx + dx) * dkx, (rows - cy + dy) * dky], axis=1)
     # FFT grid resolution (uniform over a bin) with the interpolation noise, times broadening
-    sig = np.stack(
-        [dkx * np.sqrt(1 / 12 + sx**2) * bx, dky * np.sqrt(1 / 12 + sy**2) * by], axis=1
-    )
+    sig = np.stack([dkx * np.sqrt(1 / 12 + sx**2) * bx, dky * np.sqrt(1 / 12 + sy**2) * by], axis=1)
     basis, hk = _index_peaks(g, p.index_tol)
     if basis is None:
         glen = np.hypot(g[:, 0], g[:, 1])

@@ -105,8 +105,15 @@ class ImageParameters:
     workers: int = -1
 
     def __post_init__(self) -> None:
-        positive = ("min_step_angstrom", "edge_smooth_px", "level_smooth_px", "max_step_width_px", "slope_tol_deg",
-                    "index_tol", "structure_smooth_px")
+        positive = (
+            "min_step_angstrom",
+            "edge_smooth_px",
+            "level_smooth_px",
+            "max_step_width_px",
+            "slope_tol_deg",
+            "index_tol",
+            "structure_smooth_px",
+        )
         for name in positive:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:

@@ -46,16 +46,16 @@ from termination.errors import ImageError
 from termination.quantities import LENGTH_UNITS_ANGSTROM, NUMBER_PATTERN, scaled
 
 __all__ = [
+    "MIN_PIXELS",
     "HeightMap",
+    "check_heights",
+    "load_array",
     "parse_length",
     "parse_pixel_size",
     "parse_z_unit",
-    "sidecar_path",
-    "read_sidecar",
-    "load_array",
     "read_heightmap",
-    "check_heights",
-    "MIN_PIXELS",
+    "read_sidecar",
+    "sidecar_path",
 ]
 
 #: Smallest accepted image side, pixels.
@@ -282,8 +282,10 @@ def read_sidecar(path):
         # A bare TOML number has no unit; the file must say it, as --pixel-size and --z-unit do.
         values = data.get(key) if isinstance(data.get(key), list) else [data.get(key)]
         if any(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
-            raise ImageError(f"{path}: {key} = {data[key]!r} needs a unit, written as text, e.g. "
-                             + ('"0.05nm"' if key == "pixel_size" else '"nm"'))
+            raise ImageError(
+                f"{path}: {key} = {data[key]!r} needs a unit, written as text, e.g. "
+                + ('"0.05nm"' if key == "pixel_size" else '"nm"')
+            )
     try:
         if "pixel_size" in data:
             out["pixel_size"] = parse_pixel_size(data["pixel_size"])
@@ -319,9 +321,7 @@ def check_heights(heights, *, what="height map"):
     while arr.ndim > 2 and arr.shape[0] == 1:
         arr = arr[0]
     if arr.ndim != 2:
-        raise ImageError(
-            f"{what} must be a 2-D array (one channel), got {arr.ndim} dimensions, shape {arr.shape}"
-        )
+        raise ImageError(f"{what} must be a 2-D array (one channel), got {arr.ndim} dimensions, shape {arr.shape}")
     if arr.dtype.kind not in "iuf":
         raise ImageError(f"{what} must hold real numbers, got dtype {arr.dtype}")
     if min(arr.shape) < MIN_PIXELS:
@@ -394,9 +394,7 @@ def _load_text(path):
     width = len(rows[0])
     for i, row in enumerate(rows):
         if len(row) != width:
-            raise ImageError(
-                f"{str(path)!r}: row {i + 1} has {len(row)} values, the first row has {width}"
-            )
+            raise ImageError(f"{str(path)!r}: row {i + 1} has {len(row)} values, the first row has {width}")
     try:
         return np.array([[float(v) for v in row] for row in rows], dtype=np.float64)
     except ValueError as exc:
@@ -441,12 +439,9 @@ def read_heightmap(path, *, pixel_size=None, z_unit=None):
     zu = parse_z_unit(z_unit) if z_unit is not None else cal.get("z_unit")
     if px is None:
         raise ImageError(
-            f"pixel size of {path.name} unknown: pass --pixel-size (e.g. 0.05nm) "
-            f"or set pixel_size in {side.name}"
+            f"pixel size of {path.name} unknown: pass --pixel-size (e.g. 0.05nm) or set pixel_size in {side.name}"
         )
     if zu is None:
-        raise ImageError(
-            f"height unit of {path.name} unknown: pass --z-unit nm|A|pm or set z_unit in {side.name}"
-        )
+        raise ImageError(f"height unit of {path.name} unknown: pass --z-unit nm|A|pm or set z_unit in {side.name}")
     heights = check_heights(raw, what=path.name) * zu
     return HeightMap(heights=heights, pixel_size=px, path=str(path))

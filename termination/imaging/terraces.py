@@ -13,7 +13,6 @@ import numpy as np
 from scipy import ndimage
 from scipy.signal import find_peaks
 
-from termination.imaging.parameters import ImageParameters
 from termination.imaging.reading import check_heights, parse_pixel_size
 
 __all__ = ["Step", "plane_fit", "tilt_azimuth"]
@@ -278,7 +277,7 @@ def _level_bounds(h, min_step, min_contrast, min_count):
     peaks = peaks[ok]
     while peaks.size > 1:
         # boundaries at the histogram minimum between neighbouring levels
-        mins = np.array([p + int(np.argmin(smooth[p:q + 1])) for p, q in zip(peaks[:-1], peaks[1:])])
+        mins = np.array([p + int(np.argmin(smooth[p : q + 1])) for p, q in zip(peaks[:-1], peaks[1:])])
         cum = np.concatenate([[0], np.cumsum(counts)])
         cuts = np.concatenate([[0], mins, [counts.size]])
         mass = cum[cuts[1:]] - cum[cuts[:-1]]

@@ -17,12 +17,12 @@ fractional-order spots (a 2x1 vacancy row: half-order spots).
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
-from termination.algebra.lattice2d import cell_notation, coset_representatives, reduced_obtuse
 from termination.algebra.integer import row_basis
+from termination.algebra.lattice2d import cell_notation, coset_representatives, reduced_obtuse
 from termination.bulk.elements import check_symbol
 from termination.defaults import (
     DECAY_LENGTH_ANGSTROM,
@@ -33,21 +33,20 @@ from termination.defaults import (
     SPOT_THRESHOLD,
 )
 from termination.errors import StructureError
-from termination.surface.terminations import FaceTerminations
 
 __all__ = [
-    "Visibility",
-    "Spot",
     "ApparentLattice",
     "CorrugationPattern",
-    "structure_factor",
-    "reciprocal_points",
-    "pattern_from_sites",
+    "Spot",
+    "Visibility",
     "lattice_type",
-    "species_weights",
-    "termination_corrugation",
-    "supercell_corrugation",
+    "pattern_from_sites",
+    "reciprocal_points",
     "reconstruction_corrugation",
+    "species_weights",
+    "structure_factor",
+    "supercell_corrugation",
+    "termination_corrugation",
 ]
 
 # Relative |F|/F(0) below this is rounding noise, whatever the threshold.
@@ -438,8 +437,7 @@ class Visibility:
         st = float(self.site_tol_angstrom)
         if not (np.isfinite(st) and st > 0):
             raise StructureError(f"site tolerance must be a positive length in Å, got {self.site_tol_angstrom}")
-        for name, value in (("threshold", th), ("max_order", mo), ("maximum_fraction", mf),
-                            ("site_tol_angstrom", st)):
+        for name, value in (("threshold", th), ("max_order", mo), ("maximum_fraction", mf), ("site_tol_angstrom", st)):
             set_(self, name, value)
 
     @property
@@ -466,9 +464,7 @@ class Visibility:
 def species_weights(species, visible, weights):
     """w(species): 1, or 0 outside ``visible``; ``weights`` override."""
     uniq, inverse = np.unique(np.asarray(species, dtype=object).astype(str), return_inverse=True)
-    w = np.array(
-        [weights.get(el, 1.0 if visible is None or el in visible else 0.0) for el in uniq], dtype=float
-    )
+    w = np.array([weights.get(el, 1.0 if visible is None or el in visible else 0.0) for el in uniq], dtype=float)
     return w[inverse]
 
 
@@ -544,8 +540,16 @@ def termination_corrugation(face_terminations, key, visibility=None):
 
 def _pattern(inplane, amplitudes, cell, mesh, v, label, cell_name):
     return pattern_from_sites(
-        inplane, amplitudes, cell, mesh, threshold=v.threshold, max_order=v.max_order,
-        maximum_fraction=v.maximum_fraction, site_tol_angstrom=v.site_tol_angstrom, label=label, cell=cell_name,
+        inplane,
+        amplitudes,
+        cell,
+        mesh,
+        threshold=v.threshold,
+        max_order=v.max_order,
+        maximum_fraction=v.maximum_fraction,
+        site_tol_angstrom=v.site_tol_angstrom,
+        label=label,
+        cell=cell_name,
     )
 
 
@@ -713,8 +717,9 @@ def supercell_corrugation(
     if len(dep) == 0:
         raise StructureError(f"the supercell {M.tolist()} of termination {key!r} has no atoms left")
     t = face_terminations.termination(key)
-    return _pattern(pos, v.amplitudes(spc, dep), super_cell, mesh, v, t.label,
-                    cell_notation(M, mesh) if cell is None else str(cell))
+    return _pattern(
+        pos, v.amplitudes(spc, dep), super_cell, mesh, v, t.label, cell_notation(M, mesh) if cell is None else str(cell)
+    )
 
 
 def reconstruction_corrugation(face_terminations, key, reconstruction, visibility=None):
@@ -747,6 +752,13 @@ def reconstruction_corrugation(face_terminations, key, reconstruction, visibilit
     if r.mode == "remove":
         species = None  # vacancies are matched to the atoms themselves
     return supercell_corrugation(
-        face_terminations, key, r.matrix, inplane, depth, r.mode, changed_species=species,
-        cell=getattr(r, "wood", None), visibility=visibility,
+        face_terminations,
+        key,
+        r.matrix,
+        inplane,
+        depth,
+        r.mode,
+        changed_species=species,
+        cell=getattr(r, "wood", None),
+        visibility=visibility,
     )

@@ -20,14 +20,14 @@ from termination.errors import PlaneError
 from termination.surface.miller import check_hkl
 
 __all__ = [
-    "Mesh",
     "Face",
-    "face_variants",
-    "face_geometry",
+    "Mesh",
     "distinct_faces",
+    "face_geometry",
+    "face_variants",
     "interplanar_angle",
-    "variant_tilts",
     "tilt_to_mount",
+    "variant_tilts",
 ]
 
 

@@ -17,7 +17,7 @@ from termination.errors import StructureError
 from termination.surface.faces import Face
 from termination.surface.miller import hkl_text
 
-__all__ = ["FaceAtoms", "Layer", "face_atoms", "cluster_layers"]
+__all__ = ["FaceAtoms", "Layer", "cluster_layers", "face_atoms"]
 
 
 @dataclass(frozen=True, eq=False)

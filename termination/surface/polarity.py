@@ -36,21 +36,19 @@ from termination.errors import ChargeError
 from termination.surface.layers import cluster_layers
 from termination.surface.miller import hkl_text
 from termination.surface.reconstructions import (
-    Reconstruction,
     _reconstructions,
     check_max_cell,
     compensation_sites,
 )
-from termination.surface.terminations import FaceTerminations
 
 __all__ = [
+    "FacePolarity",
     "LayerCharge",
     "TerminationPolarity",
-    "FacePolarity",
+    "face_is_polar",
+    "face_polarity",
     "layer_charges",
     "termination_polarity",
-    "face_polarity",
-    "face_is_polar",
 ]
 
 
@@ -150,9 +148,18 @@ def _fraction_text(f):
     return f"{fr.numerator}/{fr.denominator}" if abs(float(fr) - abs(f)) < 1e-6 else f"{abs(f):.4g}"
 
 
-def termination_polarity(crystal, face_terminations, termination_key, *, max_cell=MAX_CELL,
-                         charge_tol_e=CHARGE_TOL_E, dipole_tol_e_per_angstrom=DIPOLE_TOL_E_PER_ANGSTROM, fraction_tol=FRACTION_TOL,
-                         max_patterns=MAX_PATTERNS, with_reconstructions=True):
+def termination_polarity(
+    crystal,
+    face_terminations,
+    termination_key,
+    *,
+    max_cell=MAX_CELL,
+    charge_tol_e=CHARGE_TOL_E,
+    dipole_tol_e_per_angstrom=DIPOLE_TOL_E_PER_ANGSTROM,
+    fraction_tol=FRACTION_TOL,
+    max_patterns=MAX_PATTERNS,
+    with_reconstructions=True,
+):
     """Layer charges, dipole, Tasker type, compensation and reconstructions of one termination.
 
     Parameters
@@ -206,8 +213,10 @@ def termination_polarity(crystal, face_terminations, termination_key, *, max_cel
     area = ft.face.mesh.area
     d = ft.d
     if ru.charges is None:
-        raise ChargeError(f"face {hkl_text(ft.face.hkl)}: the atoms carry no charges; build the terminations from a "
-                          "crystal with charges (Crystal.with_charges)")
+        raise ChargeError(
+            f"face {hkl_text(ft.face.hkl)}: the atoms carry no charges; build the terminations from a "
+            "crystal with charges (Crystal.with_charges)"
+        )
     q = np.asarray(ru.charges, dtype=float)
     mu = float(q @ ru.depth)
     dq = mu / d
@@ -233,11 +242,14 @@ def termination_polarity(crystal, face_terminations, termination_key, *, max_cel
         else:
             compensation = round(dq / Q, 12)  # drop float noise: -0.25, not -0.24999999999999997
             if abs(compensation) >= 1 - fraction_tol:
-                note = (f"compensation needs {_fraction_text(compensation)} of the {sites_kind}: more than "
-                        "these sites can give")
+                note = (
+                    f"compensation needs {_fraction_text(compensation)} of the {sites_kind}: more than "
+                    "these sites can give"
+                )
             elif with_reconstructions:
-                recs = _reconstructions(crystal, ft, t.id, compensation, int(max_cell), group, fraction_tol,
-                                        max_patterns)
+                recs = _reconstructions(
+                    crystal, ft, t.id, compensation, int(max_cell), group, fraction_tol, max_patterns
+                )
                 if not recs:
                     note = f"no supercell up to index {max_cell} realises {_fraction_text(compensation)} of the sites"
     return TerminationPolarity(
@@ -278,13 +290,19 @@ def face_polarity(crystal, face_terminations, *, max_cell=MAX_CELL, with_reconst
     """
     ft = face_terminations
     rows = tuple(
-        termination_polarity(crystal, ft, t.id, max_cell=max_cell, with_reconstructions=with_reconstructions,
-                             **tolerances)
+        termination_polarity(
+            crystal, ft, t.id, max_cell=max_cell, with_reconstructions=with_reconstructions, **tolerances
+        )
         for t in ft.terminations
         if t.equivalent_to is None
     )
-    return FacePolarity(hkl=ft.face.hkl, d=ft.d, area=ft.face.mesh.area,
-                        polar=all(r.tasker_type == "III" for r in rows), terminations=rows)
+    return FacePolarity(
+        hkl=ft.face.hkl,
+        d=ft.d,
+        area=ft.face.mesh.area,
+        polar=all(r.tasker_type == "III" for r in rows),
+        terminations=rows,
+    )
 
 
 def face_is_polar(face_terminations, **tolerances):

@@ -17,7 +17,6 @@ from math import comb
 import numpy as np
 
 from termination.algebra.lattice2d import (
-    Wood,
     coset_representatives,
     gauss_reduce,
     supercell_classes,
@@ -29,18 +28,18 @@ from termination.defaults import CHARGE_TOL_E, FRACTION_TOL, LENGTH_EPS_ANGSTROM
 from termination.errors import PlaneError
 from termination.surface.electrostatics import COULOMB_EV_ANGSTROM, ewald_pair_matrix
 from termination.surface.symmetry import termination_operations
-from termination.surface.terminations import FaceTerminations, SurfaceAtoms
+from termination.surface.terminations import SurfaceAtoms
 
 __all__ = [
     "CRITERION",
-    "Reconstruction",
     "CompensationSites",
-    "compensation_sites",
-    "supercell_sites",
     "PatternRanking",
-    "rank_patterns",
+    "Reconstruction",
     "check_max_cell",
+    "compensation_sites",
+    "rank_patterns",
     "reconstructions",
+    "supercell_sites",
 ]
 
 CRITERION = (
@@ -214,7 +213,6 @@ def supercell_sites(hnf, mesh_inplane, base_inplane):
     return positions, hnf @ mesh
 
 
-
 @dataclass(frozen=True, eq=False)
 class PatternRanking:
     """Occupation patterns of one supercell, ranked by electrostatic energy.
@@ -319,8 +317,8 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
     energy = np.empty(len(combos))
     chunk = max(1, 2_000_000 // (k * k))
     for s in range(0, len(combos), chunk):
-        c = combos[s:s + chunk]
-        energy[s:s + chunk] = phi[c[:, :, None], c[:, None, :]].sum(axis=(1, 2))
+        c = combos[s : s + chunk]
+        energy[s : s + chunk] = phi[c[:, :, None], c[:, None, :]].sum(axis=(1, 2))
     energy *= 0.5 * charge * charge * COULOMB_EV_ANGSTROM / k
     order = np.lexsort((np.arange(len(combos)), np.round(energy, 9)))
     return PatternRanking(combos[order], energy[order], len(combos), total)
@@ -362,8 +360,18 @@ def _reduced_basis(hnf, mesh):
     return min(options, key=lambda o: (round(angle(o), 6), tuple(o.ravel())))
 
 
-def reconstructions(crystal, face_terminations, termination_key, fraction, max_cell=MAX_CELL, *,
-                    sites="auto", fraction_tol=FRACTION_TOL, charge_tol_e=CHARGE_TOL_E, max_patterns=MAX_PATTERNS):
+def reconstructions(
+    crystal,
+    face_terminations,
+    termination_key,
+    fraction,
+    max_cell=MAX_CELL,
+    *,
+    sites="auto",
+    fraction_tol=FRACTION_TOL,
+    charge_tol_e=CHARGE_TOL_E,
+    max_patterns=MAX_PATTERNS,
+):
     """Supercells in which a termination's top sites can be removed or added by ``fraction``.
 
     Parameters
@@ -461,8 +469,9 @@ def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_pat
         pick = min(range(len(members)), key=lambda i: (_wood_rank(woods[i]), tuple(members[i].ravel())))
         hnf, wood = members[pick], woods[pick]
         positions, cell = supercell_sites(hnf, mesh, base)
-        ranking = rank_patterns(cell, positions, k, translation_permutations(hnf, g), charge=q_site,
-                                max_patterns=max_patterns)
+        ranking = rank_patterns(
+            cell, positions, k, translation_permutations(hnf, g), charge=q_site, max_patterns=max_patterns
+        )
         if ranking is None:
             continue
         best = ranking.patterns[0]

@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 
 from termination.defaults import LENGTH_EPS_ANGSTROM
 
-__all__ = ["StepHeights", "AllowedStep", "step_offset", "allowed_heights", "steps_from", "class_steps"]
+__all__ = ["AllowedStep", "StepHeights", "allowed_heights", "class_steps", "step_offset", "steps_from"]
 
 
 @dataclass(frozen=True)

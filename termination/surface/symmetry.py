@@ -13,7 +13,7 @@ from functools import lru_cache
 
 import numpy as np
 
-__all__ = ["operation_tables", "keeps_face", "face_operations", "describe_operation", "termination_operations"]
+__all__ = ["describe_operation", "face_operations", "keeps_face", "operation_tables", "termination_operations"]
 
 
 @lru_cache(maxsize=32)

@@ -35,7 +35,6 @@ from termination.bulk.elements import composition_label
 from termination.defaults import (
     BOND_FACTOR,
     LAYER_TOL_ANGSTROM,
-    LENGTH_EPS_ANGSTROM,
     MAX_MULTIPLE,
     MAX_MULTIPLE_LIMIT,
     UNIT_RATIO,
@@ -49,9 +48,9 @@ from termination.surface.symmetry import describe_operation, keeps_face, operati
 
 __all__ = [
     "Cut",
-    "Termination",
-    "SurfaceAtoms",
     "FaceTerminations",
+    "SurfaceAtoms",
+    "Termination",
     "face_terminations",
 ]
 
@@ -292,8 +291,14 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
         comp = {}
         for i in members:
             comp[atoms.species[i]] = comp.get(atoms.species[i], 0) + 1
-        layers.append(Layer(height=float(centres[k]), depth=float(centres[0] - centres[k]), composition=comp,
-                            atoms=tuple(int(i) for i in members)))
+        layers.append(
+            Layer(
+                height=float(centres[k]),
+                depth=float(centres[0] - centres[k]),
+                composition=comp,
+                atoms=tuple(int(i) for i in members),
+            )
+        )
 
     # Gaps: below layer k (top-first) lies layer k+1; the gap above layer k is
     # between layer k and the layer above it (k-1, or the last one one period up).
@@ -312,8 +317,15 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
     else:
         allowed &= weighted <= ratio * wmin * (1 + 1e-9)
     cuts = tuple(
-        Cut(height=float(cut_heights[k]), below=k, above=above_of[k], broken_bonds=float(counts[k]),
-            weighted_bonds=float(weighted[k]), unit_bonds=float(unit[k]), allowed=bool(allowed[k]))
+        Cut(
+            height=float(cut_heights[k]),
+            below=k,
+            above=above_of[k],
+            broken_bonds=float(counts[k]),
+            weighted_bonds=float(weighted[k]),
+            unit_bonds=float(unit[k]),
+            allowed=bool(allowed[k]),
+        )
         for k in range(nl)
     )
 
@@ -337,14 +349,23 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
             for el, n in layers[m].composition.items():
                 comp[el] = comp.get(el, 0) + n
         raw.append(
-            dict(k=k, comp=comp, depth=layers[k].depth, layers=units[k], cut=float(cut_heights[k]),
-                 bb=float(counts[k] / area_nm2), wb=float(weighted[k] / area_nm2))
+            dict(
+                k=k,
+                comp=comp,
+                depth=layers[k].depth,
+                layers=units[k],
+                cut=float(cut_heights[k]),
+                bb=float(counts[k] / area_nm2),
+                wb=float(weighted[k] / area_nm2),
+            )
         )
     order = sorted(range(len(raw)), key=lambda i: (round(raw[i]["bb"], 6), round(raw[i]["wb"], 6), raw[i]["depth"]))
     ids = {raw[i]["k"]: f"T{n + 1}" for n, i in enumerate(order)}
 
     # Labels: equivalent terminations share one; inequivalent namesakes get primes.
-    rep_of = {k: min((j for j in allowed_layers if classes[j] == classes[k]), key=lambda j: ids[j]) for k in allowed_layers}
+    rep_of = {
+        k: min((j for j in allowed_layers if classes[j] == classes[k]), key=lambda j: ids[j]) for k in allowed_layers
+    }
     label_of, used = {}, {}
     for i in order:
         k = raw[i]["k"]
@@ -374,11 +395,22 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
         )
     terminations = tuple(terminations)
     tops = {t.id: layers[t.layers[0]].height for t in terminations}
-    members = [(t.label, tuple(u.id for u in terminations if (u.equivalent_to or u.id) == t.id))
-               for t in terminations if t.equivalent_to is None]
+    members = [
+        (t.label, tuple(u.id for u in terminations if (u.equivalent_to or u.id) == t.id))
+        for t in terminations
+        if t.equivalent_to is None
+    ]
     steps = class_steps(members, tops, d, max_multiple, tol)
-    return FaceTerminations(face=face, atoms=atoms, layers=tuple(layers), cuts=cuts, terminations=terminations,
-                            steps=steps, layer_tol_angstrom=tol, unit_ratio=ratio)
+    return FaceTerminations(
+        face=face,
+        atoms=atoms,
+        layers=tuple(layers),
+        cuts=cuts,
+        terminations=terminations,
+        steps=steps,
+        layer_tol_angstrom=tol,
+        unit_ratio=ratio,
+    )
 
 
 def _crossings(crystal, face, graph, cut_heights):

@@ -16,8 +16,18 @@ from termination.surface.reconstructions import rank_patterns, supercell_sites
 
 SQUARE = 3.0 * np.eye(2)
 HEXAGONAL = 3.0 * np.array([[1.0, 0.0], [-0.5, np.sqrt(3) / 2]])
-C4V = np.array([[[1, 0], [0, 1]], [[0, 1], [-1, 0]], [[-1, 0], [0, -1]], [[0, -1], [1, 0]],
-                [[1, 0], [0, -1]], [[-1, 0], [0, 1]], [[0, 1], [1, 0]], [[0, -1], [-1, 0]]])
+C4V = np.array(
+    [
+        [[1, 0], [0, 1]],
+        [[0, 1], [-1, 0]],
+        [[-1, 0], [0, -1]],
+        [[0, -1], [1, 0]],
+        [[1, 0], [0, -1]],
+        [[-1, 0], [0, 1]],
+        [[0, 1], [1, 0]],
+        [[0, -1], [-1, 0]],
+    ]
+)
 
 
 def _sigma(n):
@@ -40,8 +50,11 @@ def test_canonical_hnf_is_basis_independent():
         m = rng.integers(-4, 5, size=(2, 2))
         if round(np.linalg.det(m)) == 0:
             continue
-        u = np.array([[1, int(rng.integers(-3, 4))], [0, 1]]) @ np.array([[0, 1], [1, 0]]) @ np.array(
-            [[1, 0], [int(rng.integers(-3, 4)), 1]])  # unimodular
+        u = (
+            np.array([[1, int(rng.integers(-3, 4))], [0, 1]])
+            @ np.array([[0, 1], [1, 0]])
+            @ np.array([[1, 0], [int(rng.integers(-3, 4)), 1]])
+        )  # unimodular
         assert np.array_equal(canonical_hnf(u @ m), canonical_hnf(m))
         assert np.array_equal(canonical_hnf(canonical_hnf(m)), canonical_hnf(m))  # idempotent
 
@@ -158,11 +171,14 @@ def test_pattern_ranking_is_deterministic_and_sorted():
     assert rank_patterns(cell, pos, 3, perms, max_patterns=5) is None
 
 
-@pytest.mark.parametrize("mesh, matrix, base, k", [
-    (HEXAGONAL, [[3, 0], [0, 2]], [[0.0, 0.0]], 3),
-    (SQUARE, [[2, 1], [0, 3]], [[0.0, 0.0], [1.5, 1.5]], 6),
-    (SQUARE, [[4, 0], [0, 1]], [[0.0, 0.0], [1.5, 0.0]], 3),
-])
+@pytest.mark.parametrize(
+    "mesh, matrix, base, k",
+    [
+        (HEXAGONAL, [[3, 0], [0, 2]], [[0.0, 0.0]], 3),
+        (SQUARE, [[2, 1], [0, 3]], [[0.0, 0.0], [1.5, 1.5]], 6),
+        (SQUARE, [[4, 0], [0, 1]], [[0.0, 0.0], [1.5, 0.0]], 3),
+    ],
+)
 def test_translation_classes_match_brute_force(mesh, matrix, base, k):
     # Independent check: enumerate every k-subset, keep those with the full
     # period, group them by translation, and take the lowest energy directly.

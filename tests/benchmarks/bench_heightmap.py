@@ -19,8 +19,8 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from termination.imaging.analysis import analyse_heightmap  # noqa: E402
-from termination.testing import synthetic_heightmap  # noqa: E402
+from termination.imaging.analysis import analyse_heightmap
+from termination.testing import synthetic_heightmap
 
 
 def main():
@@ -47,11 +47,16 @@ def main():
         result = analyse_heightmap(z, 0.25)
         times.append(time.perf_counter() - t0)
     lat = result.lattice
-    print(f"{args.size}x{args.size}: median {statistics.median(times):.2f} s over {args.runs} runs "
-          f"(min {min(times):.2f} s, max {max(times):.2f} s)")
-    print(f"  terrace tilt {result.tilt.terrace:.3f}° (true 3), lattice {lat.a:.4f} x {lat.b:.4f} Å "
-          f"gamma {lat.gamma:.2f}° (true 3.9, 90), steps "
-          + ", ".join(f"{s.height:.4f}" for s in result.steps) + " Å (true 1.25)")
+    print(
+        f"{args.size}x{args.size}: median {statistics.median(times):.2f} s over {args.runs} runs "
+        f"(min {min(times):.2f} s, max {max(times):.2f} s)"
+    )
+    print(
+        f"  terrace tilt {result.tilt.terrace:.3f}° (true 3), lattice {lat.a:.4f} x {lat.b:.4f} Å "
+        f"gamma {lat.gamma:.2f}° (true 3.9, 90), steps "
+        + ", ".join(f"{s.height:.4f}" for s in result.steps)
+        + " Å (true 1.25)"
+    )
 
 
 if __name__ == "__main__":

@@ -51,8 +51,14 @@ def wall_times(commands, repeats):
 
 def heavy_imports(argv):
     """{heavy top-level package: module that first imported it} from -X importtime."""
-    proc = subprocess.run([argv[0], "-X", "importtime", *argv[1:]], cwd=ROOT, stdout=subprocess.DEVNULL,
-                          stderr=subprocess.PIPE, text=True, check=True)
+    proc = subprocess.run(
+        [argv[0], "-X", "importtime", *argv[1:]],
+        cwd=ROOT,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+        text=True,
+        check=True,
+    )
     rows = []
     for line in proc.stderr.splitlines():
         m = re.match(r"import time:\s+\d+ \|\s+\d+ \|( *)(\S+)", line)
@@ -64,7 +70,7 @@ def heavy_imports(argv):
     for k, (indent, name) in enumerate(rows):
         top = name.split(".")[0]
         if top in HEAVY and top not in found:
-            parent = next((n for i, n in rows[k + 1:] if i < indent and n.split(".")[0] != top), "__main__")
+            parent = next((n for i, n in rows[k + 1 :] if i < indent and n.split(".")[0] != top), "__main__")
             found[top] = parent
     return found
 

@@ -100,8 +100,18 @@ def time_theirs_once(spec, max_index, slab_angstrom, vacuum_angstrom):
     pymatgen's job gets slower when repeated in one process (LaB6 here: about
     15 s the first time, 45 s after), so each run starts clean.
     """
-    argv = [sys.executable, os.path.abspath(__file__), "--pymatgen-child", spec, "--max-index", str(max_index),
-            "--slab-angstrom", repr(slab_angstrom), "--vacuum-angstrom", repr(vacuum_angstrom)]
+    argv = [
+        sys.executable,
+        os.path.abspath(__file__),
+        "--pymatgen-child",
+        spec,
+        "--max-index",
+        str(max_index),
+        "--slab-angstrom",
+        repr(slab_angstrom),
+        "--vacuum-angstrom",
+        repr(vacuum_angstrom),
+    ]
     out = subprocess.run(argv, check=True, capture_output=True, text=True).stdout.split()
     return float(out[0]), (int(out[1]), int(out[2]))
 
@@ -137,20 +147,29 @@ def main(argv=None):
         pymatgen_child(args.pymatgen_child, args.max_index, args.slab_angstrom, args.vacuum_angstrom)
         return
 
-    print(f"max index {args.max_index}; this project: median of {args.repeats} runs in-process, fresh Crystal each; "
-          f"pymatgen: median of {args.pymatgen_repeats} run(s), each in a fresh interpreter after imports and a max-index-1 warm-up, "
-          f"SlabGenerator(min_slab_size={args.slab_angstrom:g} Å, min_vacuum_size={args.vacuum_angstrom:g} Å)"
-          ".get_slabs()")
-    header = f"{'structure':<10} {'faces ours/pmg':>15} {'terms/slabs':>12} {'ours (ms)':>10} {'pymatgen (s)':>13} {'ratio':>8}"
+    print(
+        f"max index {args.max_index}; this project: median of {args.repeats} runs in-process, fresh Crystal each; "
+        f"pymatgen: median of {args.pymatgen_repeats} run(s), each in a fresh interpreter after imports "
+        "and a max-index-1 warm-up, "
+        f"SlabGenerator(min_slab_size={args.slab_angstrom:g} Å, min_vacuum_size={args.vacuum_angstrom:g} Å)"
+        ".get_slabs()"
+    )
+    header = (
+        f"{'structure':<10} {'faces ours/pmg':>15} {'terms/slabs':>12} {'ours (ms)':>10} "
+        f"{'pymatgen (s)':>13} {'ratio':>8}"
+    )
     print(header)
     ratios = []
     for label, spec in STRUCTURES:
-        t_ours, (nf, nt), t_theirs, (pf, ps) = time_both(spec, args.max_index, args.repeats, args.pymatgen_repeats,
-                                                          args.slab_angstrom, args.vacuum_angstrom)
+        t_ours, (nf, nt), t_theirs, (pf, ps) = time_both(
+            spec, args.max_index, args.repeats, args.pymatgen_repeats, args.slab_angstrom, args.vacuum_angstrom
+        )
         ratio = t_theirs / t_ours
         ratios.append(ratio)
-        print(f"{label:<10} {f'{nf}/{pf}':>15} {f'{nt}/{ps}':>12} {1e3 * t_ours:10.2f} {t_theirs:13.2f} "
-              f"{ratio:7.0f}x", flush=True)
+        print(
+            f"{label:<10} {f'{nf}/{pf}':>15} {f'{nt}/{ps}':>12} {1e3 * t_ours:10.2f} {t_theirs:13.2f} {ratio:7.0f}x",
+            flush=True,
+        )
     gmean = float(np.exp(np.mean(np.log(ratios))))
     print(f"speedup: {gmean:.0f}x")
 

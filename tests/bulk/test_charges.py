@@ -39,8 +39,27 @@ def test_parse_charge_options_rejects_duplicates():
 
 # Compounds whose textbook formal charges pymatgen's guess also gives
 # (pymatgen Composition.oxi_state_guesses, first guess).
-IONIC = ["NaCl", "MgO", "SrTiO3", "BaTiO3", "KTaO3", "CaF2", "BaF2", "Li2O", "CeO2", "GaAs", "InP", "ZnS",
-         "CdTe", "CsCl", "NiO", "LaAlO3", "PbTiO3", "KBr", "LiF"]
+IONIC = [
+    "NaCl",
+    "MgO",
+    "SrTiO3",
+    "BaTiO3",
+    "KTaO3",
+    "CaF2",
+    "BaF2",
+    "Li2O",
+    "CeO2",
+    "GaAs",
+    "InP",
+    "ZnS",
+    "CdTe",
+    "CsCl",
+    "NiO",
+    "LaAlO3",
+    "PbTiO3",
+    "KBr",
+    "LiF",
+]
 
 
 @pytest.mark.parametrize("formula", IONIC)
@@ -157,7 +176,8 @@ def test_elemental_crystal_is_uncharged(proto):
 
 def test_light_guess_does_not_import_pymatgen():
     code = (
-        "import sys; from termination.structures import build_prototype; from termination.bulk.charges import assign_charges; "
+        "import sys; from termination.structures import build_prototype; "
+        "from termination.bulk.charges import assign_charges; "
         "a = assign_charges(build_prototype('perovskite:Sr,Ti,O'), use_pymatgen=False); "
         "print(a.text, 'pymatgen' in sys.modules)"
     )

@@ -1,9 +1,9 @@
 import numpy as np
 import pytest
 
-from termination.structures import load_structure
 from termination import StructureError
 from termination.reports import planes_report
+from termination.structures import load_structure
 
 PARTIAL_CIF = """data_partial
 _symmetry_space_group_name_H-M 'P 1'

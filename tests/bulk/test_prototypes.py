@@ -1,21 +1,43 @@
 import numpy as np
 import pytest
 
-from termination.structures import PROTOTYPES, KNOWN_LATTICE_CONSTANTS, build_prototype, load_structure
 from termination import StructureError
+from termination.structures import KNOWN_LATTICE_CONSTANTS, PROTOTYPES, build_prototype, load_structure
 
 # Intended space groups: International Tables for Crystallography Vol. A;
 # structure types as in Pearson's Handbook (from memory).
 EXPECTED = {
-    "fcc": 225, "bcc": 229, "sc": 221, "diamond": 227, "rocksalt": 225, "cesium-chloride": 221,
-    "zincblende": 216, "fluorite": 225, "antifluorite": 225, "perovskite": 221,
-    "half-heusler": 216, "heusler": 225, "inverse-heusler": 216, "hexaboride": 221,
+    "fcc": 225,
+    "bcc": 229,
+    "sc": 221,
+    "diamond": 227,
+    "rocksalt": 225,
+    "cesium-chloride": 221,
+    "zincblende": 216,
+    "fluorite": 225,
+    "antifluorite": 225,
+    "perovskite": 221,
+    "half-heusler": 216,
+    "heusler": 225,
+    "inverse-heusler": 216,
+    "hexaboride": 221,
 }
 # Atoms per conventional cell (Z times atoms per formula unit), from the Wyckoff multiplicities.
 NATOMS = {
-    "fcc": 4, "bcc": 2, "sc": 1, "diamond": 8, "rocksalt": 8, "cesium-chloride": 2, "zincblende": 8,
-    "fluorite": 12, "antifluorite": 12, "perovskite": 5, "half-heusler": 12, "heusler": 16,
-    "inverse-heusler": 16, "hexaboride": 7,
+    "fcc": 4,
+    "bcc": 2,
+    "sc": 1,
+    "diamond": 8,
+    "rocksalt": 8,
+    "cesium-chloride": 2,
+    "zincblende": 8,
+    "fluorite": 12,
+    "antifluorite": 12,
+    "perovskite": 5,
+    "half-heusler": 12,
+    "heusler": 16,
+    "inverse-heusler": 16,
+    "hexaboride": 7,
 }
 
 

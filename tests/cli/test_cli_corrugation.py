@@ -57,8 +57,23 @@ def test_corrugation_json_has_the_issue_fields():
         assert t["lattice_type"] == "hexagonal"
         assert {"g", "length", "intensity"} == set(t["spots"][0])
     # One termination, a weight and a depth: the JSON records the settings.
-    r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--a", "5.64", "--termination", "T1",
-               "--weight", "Na=0.2", "--depth", "3", "--json")
+    r = invoke(
+        "corrugation",
+        "rocksalt:Na,Cl",
+        "--plane",
+        "0",
+        "0",
+        "1",
+        "--a",
+        "5.64",
+        "--termination",
+        "T1",
+        "--weight",
+        "Na=0.2",
+        "--depth",
+        "3",
+        "--json",
+    )
     data = json.loads(r.stdout)
     assert data["weights"] == {"Na": 0.2} and data["max_depth_angstrom"] == 3.0
     (t,) = data["terminations"]
@@ -70,8 +85,21 @@ def test_corrugation_flat_pattern_renders_without_error():
     r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na")
     assert r.exit_code == 0, r.output
     assert "flat" in r.output and "—" in r.output
-    data = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl",
-                             "--termination", "Na", "--json").stdout)
+    data = json.loads(
+        invoke(
+            "corrugation",
+            "rocksalt:Na,Cl",
+            "--plane",
+            "1",
+            "1",
+            "1",
+            "--visible",
+            "Cl",
+            "--termination",
+            "Na",
+            "--json",
+        ).stdout
+    )
     assert data["terminations"][0]["apparent_lattice"]["a"] is None  # inf is not JSON
 
 
@@ -98,8 +126,7 @@ def test_corrugation_bad_inputs_give_one_line_and_exit_code_2():
 def test_corrugation_depth_beyond_the_bound_is_an_error_not_a_runaway():
     # --depth 1e300 used to overflow the image range and exhaust memory.
     for depth, shown in (("1e300", "1e+300"), ("1001", "1001")):
-        r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--depth", depth,
-                   "--no-reconstructions")
+        r = invoke("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--depth", depth, "--no-reconstructions")
         assert r.exit_code == 2, r.output
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and "at most 1000" in lines[0] and shown in lines[0], lines
@@ -122,9 +149,13 @@ def test_terminations_table_shows_the_apparent_lattice_column():
 def test_weight_overrides_visible_as_the_readme_says():
     # rock salt (001), a = 5.64 Å: Na alone images the a/sqrt 2 = 3.988 Å mesh; Na and Cl
     # equally weighted cancel the (1 0) spots, a/2 = 2.82 Å (two-site structure factor, common practice).
-    only_na = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na",
-                                "--json").stdout)
-    both = json.loads(invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na",
-                             "--weight", "Cl=1", "--json").stdout)
+    only_na = json.loads(
+        invoke("corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na", "--json").stdout
+    )
+    both = json.loads(
+        invoke(
+            "corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na", "--weight", "Cl=1", "--json"
+        ).stdout
+    )
     assert abs(only_na["terminations"][0]["apparent_lattice"]["a"] - 3.988) < 1e-3
     assert abs(both["terminations"][0]["apparent_lattice"]["a"] - 2.820) < 1e-3

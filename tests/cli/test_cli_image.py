@@ -8,8 +8,8 @@ import pytest
 from typer.testing import CliRunner
 
 from termination import cli
-from termination.testing import synthetic_heightmap
 from termination.identification.measurement import read_measurement, read_steps
+from termination.testing import synthetic_heightmap
 
 runner = CliRunner()
 
@@ -28,8 +28,17 @@ def invoke(*args):
 @pytest.fixture(scope="module")
 def scan(tmp_path_factory):
     folder = tmp_path_factory.mktemp("image")
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=TILT, azimuth_deg=30.0, step_heights=[STEP] * 3,
-                            step_azimuth_deg=10.0, lattice=(A, A, 90.0, 15.0), noise_angstrom=0.05, seed=1)
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=TILT,
+        azimuth_deg=30.0,
+        step_heights=[STEP] * 3,
+        step_azimuth_deg=10.0,
+        lattice=(A, A, 90.0, 15.0),
+        noise_angstrom=0.05,
+        seed=1,
+    )
     path = folder / "scan.npy"
     np.save(path, z / 10.0)
     return path
@@ -68,8 +77,22 @@ def test_json_has_the_documented_fields(scan):
 def test_out_writes_a_measurement_file_that_reads_back(scan, tmp_path):
     out = tmp_path / "measurement.toml"
     steps = tmp_path / "steps.txt"
-    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", out, "--steps-out", steps,
-               "--mount", 0, 0, 1)
+    r = invoke(
+        "image",
+        scan,
+        "--pixel-size",
+        "0.05nm",
+        "--z-unit",
+        "nm",
+        "--out",
+        out,
+        "--steps-out",
+        steps,
+        "--mount",
+        0,
+        0,
+        1,
+    )
     assert r.exit_code == 0, r.output
     m = read_measurement(out)
     assert m.mount == (0, 0, 1)
@@ -126,8 +149,19 @@ def test_out_and_steps_out_naming_one_file_is_refused_before_writing(scan, tmp_p
     # Before, the measurement file was written and then the step list failed on it.
     target = tmp_path / "both.toml"
     for extra in ([], ["--force"]):
-        r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", target,
-                   "--steps-out", tmp_path / "." / "both.toml", *extra)
+        r = invoke(
+            "image",
+            scan,
+            "--pixel-size",
+            "0.05nm",
+            "--z-unit",
+            "nm",
+            "--out",
+            target,
+            "--steps-out",
+            tmp_path / "." / "both.toml",
+            *extra,
+        )
         assert r.exit_code == 2, r.output
         lines = r.stderr.strip().splitlines()
         assert len(lines) == 1 and "same file" in lines[0], lines

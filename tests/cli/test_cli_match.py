@@ -18,9 +18,28 @@ def test_demo_runs_and_states_the_hypothesis_caution():
 
 
 def test_match_json_fields():
-    r = runner.invoke(cli.app, ["match", "rocksalt:Na,Cl", "--mount", "0", "0", "1", "--tilt", "0+-1",
-                                "--spacing", "3.99±0.15", "--step", "2.82+-0.1", "--visible", "Cl", "--top", "3",
-                                "--json"])
+    r = runner.invoke(
+        cli.app,
+        [
+            "match",
+            "rocksalt:Na,Cl",
+            "--mount",
+            "0",
+            "0",
+            "1",
+            "--tilt",
+            "0+-1",
+            "--spacing",
+            "3.99±0.15",
+            "--step",
+            "2.82+-0.1",
+            "--visible",
+            "Cl",
+            "--top",
+            "3",
+            "--json",
+        ],
+    )
     assert r.exit_code == 0, r.output
     data = json.loads(r.stdout)
     assert len(data["candidates"]) == 3
@@ -44,8 +63,9 @@ def test_command_line_overrides_the_measurement_file(tmp_path):
 def test_steps_file(tmp_path):
     f = tmp_path / "steps.txt"
     f.write_text("# height sigma\n3.13 0.1\n3.16\n6.27 0.15\n")
-    r = runner.invoke(cli.app, ["match", "diamond:Si", "--mount", "1", "1", "1", "--tilt", "0+-1", "--steps", str(f),
-                                "--json"])
+    r = runner.invoke(
+        cli.app, ["match", "diamond:Si", "--mount", "1", "1", "1", "--tilt", "0+-1", "--steps", str(f), "--json"]
+    )
     assert r.exit_code == 0, r.output
     assert json.loads(r.stdout)["candidates"][0]["hkl"] == [1, 1, 1]
 
@@ -124,8 +144,26 @@ def test_demo_takes_no_structure():
 
 
 def test_lower_case_visible_species_is_normalised():
-    r = runner.invoke(cli.app, ["match", "rocksalt:Na,Cl", "--mount", "0", "0", "1", "--tilt", "0+-1",
-                                "--spacing", "3.99+-0.15", "--visible", "cl", "--json", "--top", "1"])
+    r = runner.invoke(
+        cli.app,
+        [
+            "match",
+            "rocksalt:Na,Cl",
+            "--mount",
+            "0",
+            "0",
+            "1",
+            "--tilt",
+            "0+-1",
+            "--spacing",
+            "3.99+-0.15",
+            "--visible",
+            "cl",
+            "--json",
+            "--top",
+            "1",
+        ],
+    )
     assert r.exit_code == 0, r.output
     assert json.loads(r.stdout)["candidates"][0]["hkl"] == [0, 0, 1]
 

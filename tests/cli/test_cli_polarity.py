@@ -69,8 +69,7 @@ def test_planes_marks_polar_faces():
 def test_planes_polar_unknown_without_charges_and_with_given_charges():
     r = invoke("planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1", "--json")
     assert all(p["polar"] is None for p in json.loads(r.stdout)["planes"])
-    r = invoke("planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1", "--charge", "Ti=4", "--charge", "Ni=0",
-               "--json")
+    r = invoke("planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1", "--charge", "Ti=4", "--charge", "Ni=0", "--json")
     polar = {tuple(p["hkl"]): p["polar"] for p in json.loads(r.stdout)["planes"]}
     assert polar[(1, 1, 1)] is True  # Ti4+ / Sn4- planes along [111]
 
@@ -85,8 +84,9 @@ def test_planes_and_polarity_on_a_prototype_do_not_import_pymatgen():
         "assert r.exit_code == 0, r.output\n"
         "print('pymatgen' in sys.modules)\n"
     )
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=cli.__file__
-                         .rsplit("/", 1)[0]).stdout
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=cli.__file__.rsplit("/", 1)[0]
+    ).stdout
     assert out.strip() == "False"
 
 

@@ -4,10 +4,10 @@ import pytest
 from termination import MeasurementError
 from termination.identification.candidates import candidate_table
 from termination.identification.likelihood import match, score
+from termination.identification.measurement import Measurement, Value
 from termination.identification.model import MatchModel
 from termination.surface.corrugation import Visibility
 from termination.testing import synthetic_measurement
-from termination.identification.measurement import Measurement, Value
 
 
 @pytest.fixture(scope="module")
@@ -81,32 +81,86 @@ def V(value, sigma):
 LITERATURE = [
     # Cu(110) cut from a (001)-oriented crystal: 45° away, rectangular 1x1 mesh a/sqrt2 x a = 2.56 x 3.61 Å,
     # monatomic steps a/(2 sqrt2) = 1.28 Å (common practice; e.g. Zangwill, Physics at Surfaces, ch. 2).
-    ("fcc:Cu", Measurement(mount=(0, 0, 1), tilt=V(45, 2), spacings=(V(2.56, 0.1), V(3.6, 0.15)),
-                           row_angle=V(90, 3), steps=(V(1.28, 0.08), V(1.3, 0.08), V(2.55, 0.1))),
-     {}, (0, 1, 1), None),
+    (
+        "fcc:Cu",
+        Measurement(
+            mount=(0, 0, 1),
+            tilt=V(45, 2),
+            spacings=(V(2.56, 0.1), V(3.6, 0.15)),
+            row_angle=V(90, 3),
+            steps=(V(1.28, 0.08), V(1.3, 0.08), V(2.55, 0.1)),
+        ),
+        {},
+        (0, 1, 1),
+        None,
+    ),
     # Si(111) wafer: bilayer steps a/sqrt3 = 3.14 Å (common practice)
-    ("diamond:Si", Measurement(mount=(1, 1, 1), tilt=V(0.5, 1), steps=(V(3.12, 0.1), V(3.16, 0.1), V(6.3, 0.15))),
-     {}, (1, 1, 1), None),
+    (
+        "diamond:Si",
+        Measurement(mount=(1, 1, 1), tilt=V(0.5, 1), steps=(V(3.12, 0.1), V(3.16, 0.1), V(6.3, 0.15))),
+        {},
+        (1, 1, 1),
+        None,
+    ),
     # NaCl(001) cleaved in vacuum: one ion species imaged, square lattice a/sqrt2 = 3.99 Å, steps a/2 = 2.82 Å
     # (common practice in AFM of alkali halides)
-    ("rocksalt:Na,Cl", Measurement(mount=(0, 0, 1), tilt=V(0.3, 1), spacings=(V(3.98, 0.15), V(4.0, 0.15)),
-                                   row_angle=V(90, 3), steps=(V(2.8, 0.1), V(2.84, 0.1), V(5.6, 0.15))),
-     {"visible": ("Cl",)}, (0, 0, 1), None),
+    (
+        "rocksalt:Na,Cl",
+        Measurement(
+            mount=(0, 0, 1),
+            tilt=V(0.3, 1),
+            spacings=(V(3.98, 0.15), V(4.0, 0.15)),
+            row_angle=V(90, 3),
+            steps=(V(2.8, 0.1), V(2.84, 0.1), V(5.6, 0.15)),
+        ),
+        {"visible": ("Cl",)},
+        (0, 0, 1),
+        None,
+    ),
     # SrTiO3(001) with mixed SrO/TiO2 terraces: half-unit-cell steps a/2 = 1.95 Å, 1x1 a = 3.905 Å
     # (common practice; unit-cell steps on single-terminated substrates: Kawasaki et al., Science 266, 1540 (1994))
-    ("perovskite:Sr,Ti,O", Measurement(mount=(0, 0, 1), tilt=V(0.2, 1), spacings=(V(3.9, 0.15),),
-                                       steps=(V(1.95, 0.1), V(1.97, 0.1), V(3.9, 0.12), V(1.93, 0.1))),
-     {"visible": ("Ti",)}, (0, 0, 1), None),
+    (
+        "perovskite:Sr,Ti,O",
+        Measurement(
+            mount=(0, 0, 1),
+            tilt=V(0.2, 1),
+            spacings=(V(3.9, 0.15),),
+            steps=(V(1.95, 0.1), V(1.97, 0.1), V(3.9, 0.12), V(1.93, 0.1)),
+        ),
+        {"visible": ("Ti",)},
+        (0, 0, 1),
+        None,
+    ),
     # GaAs(110) cleaved from a (001) wafer (90° tilt); filled-state STM shows the As sublattice,
     # rectangular a x a/sqrt2 = 5.65 x 4.00 Å; monolayer steps a/(2 sqrt2) = 2.0 Å
     # (Feenstra, Stroscio, Tersoff, Fein, Phys. Rev. Lett. 58, 1192 (1987))
-    ("zincblende:Ga,As", Measurement(mount=(0, 0, 1), tilt=V(89, 2), spacings=(V(4.0, 0.15), V(5.6, 0.2)),
-                                     row_angle=V(90, 3), steps=(V(2.0, 0.1), V(2.02, 0.1), V(4.0, 0.15))),
-     {"visible": ("As",)}, (0, 1, 1), None),
+    (
+        "zincblende:Ga,As",
+        Measurement(
+            mount=(0, 0, 1),
+            tilt=V(89, 2),
+            spacings=(V(4.0, 0.15), V(5.6, 0.2)),
+            row_angle=V(90, 3),
+            steps=(V(2.0, 0.1), V(2.02, 0.1), V(4.0, 0.15)),
+        ),
+        {"visible": ("As",)},
+        (0, 1, 1),
+        None,
+    ),
     # CaF2(111): F-Ca-F triple-layer steps a/sqrt3 = 3.15 Å, hexagonal F lattice a/sqrt2 = 3.86 Å (common practice)
-    ("fluorite:Ca,F", Measurement(mount=(1, 1, 1), tilt=V(0.5, 1), spacings=(V(3.85, 0.15),), row_angle=V(60, 3),
-                                  steps=(V(3.14, 0.1), V(3.17, 0.1), V(6.3, 0.15))),
-     {"visible": ("F",)}, (1, 1, 1), "CaF2"),
+    (
+        "fluorite:Ca,F",
+        Measurement(
+            mount=(1, 1, 1),
+            tilt=V(0.5, 1),
+            spacings=(V(3.85, 0.15),),
+            row_angle=V(60, 3),
+            steps=(V(3.14, 0.1), V(3.17, 0.1), V(6.3, 0.15)),
+        ),
+        {"visible": ("F",)},
+        (1, 1, 1),
+        "CaF2",
+    ),
 ]
 
 
@@ -124,8 +178,13 @@ def test_measured_supercell_spacing_selects_a_reconstruction(proto):
     # SmB6(001) cleaved: (2x1) rows of the half-occupied top layer seen by STM
     # (Rößler et al., PNAS 111, 4798 (2014), from memory); the metal-terminated (001) face
     # needs half its top layer removed whatever the valence (Tasker 1979).
-    m = Measurement(mount=(0, 0, 1), tilt=V(0.5, 1), spacings=(V(4.13, 0.15), V(8.2, 0.3)), row_angle=V(90, 3),
-                    steps=(V(4.1, 0.15),))
+    m = Measurement(
+        mount=(0, 0, 1),
+        tilt=V(0.5, 1),
+        spacings=(V(4.13, 0.15), V(8.2, 0.3)),
+        row_angle=V(90, 3),
+        steps=(V(4.1, 0.15),),
+    )
     report = match(proto("hexaboride:Sm,B", a=4.133), m, top=4)
     best = report.candidates[0]
     assert best.hkl == (0, 0, 1) and best.cell == "(2×1)"
@@ -142,8 +201,13 @@ def test_flat_prior_changes_the_prior_only(tables):
 def candidate_table_flat(table):
     from termination.structures import build_prototype
 
-    t = candidate_table(build_prototype("perovskite:Sr,Ti,O"), mount=(0, 0, 1), max_index=3,
-                        model=MatchModel(flat_prior=True), reconstructions=False)
+    t = candidate_table(
+        build_prototype("perovskite:Sr,Ti,O"),
+        mount=(0, 0, 1),
+        max_index=3,
+        model=MatchModel(flat_prior=True),
+        reconstructions=False,
+    )
     assert len(t.candidates) == len(table.candidates)
     return t.candidates
 

@@ -124,7 +124,7 @@ def test_round_trip_of_an_empty_measurement(tmp_path):
 
 def test_missing_sigma_reads_as_none(tmp_path):
     path = tmp_path / "m.toml"
-    path.write_text("tilt = { value = 12.5 }\nsteps = [ { value = 2.0 }, 3.1, \"4.2+-0.3\" ]\n")
+    path.write_text('tilt = { value = 12.5 }\nsteps = [ { value = 2.0 }, 3.1, "4.2+-0.3" ]\n')
     m = read_measurement(path)
     assert m.tilt == Value(12.5, None)
     assert m.steps == (Value(2.0), Value(3.1), Value(4.2, 0.3))
@@ -233,13 +233,7 @@ def test_measurement_checks_fields_when_built_in_code():
 def test_read_steps_reads_the_plain_list_format(tmp_path):
     path = tmp_path / "steps.txt"
     path.write_text(
-        "# heights from line profiles\n"
-        "1.25\n"
-        "\n"
-        "2.50 0.05   # with sigma\n"
-        "3.75, 0.1\n"
-        "   1.3±0.2\n"
-        "1.4 +- 0.1\n",
+        "# heights from line profiles\n1.25\n\n2.50 0.05   # with sigma\n3.75, 0.1\n   1.3±0.2\n1.4 +- 0.1\n",
         encoding="utf-8",
     )
     assert read_steps(path) == (

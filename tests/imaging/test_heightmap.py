@@ -13,8 +13,8 @@ import pytest
 
 from termination.errors import ImageError
 from termination.identification.measurement import measurement_from_image as to_measurement
+from termination.identification.measurement import read_measurement, write_measurement
 from termination.imaging.analysis import analyse_heightmap
-from termination.imaging.terraces import plane_fit
 from termination.imaging.reading import (
     check_heights,
     parse_length,
@@ -23,8 +23,8 @@ from termination.imaging.reading import (
     read_heightmap,
     sidecar_path,
 )
+from termination.imaging.terraces import plane_fit
 from termination.testing import reciprocal_shell, synthetic_heightmap
-from termination.identification.measurement import read_measurement, write_measurement
 
 SPACING_REL = 0.02  # the tolerances
 STEP_REL = 0.05
@@ -84,8 +84,10 @@ def test_parse_length_converts_units_to_angstrom(text, angstrom):
     assert math.isclose(parse_length(text), angstrom, rel_tol=1e-12)
 
 
-@pytest.mark.parametrize("text, fragment", [("0.05", "needs a unit"), ("nm", "needs a number"),
-                                            ("-1nm", "positive"), ("3 furlong", "furlong")])
+@pytest.mark.parametrize(
+    "text, fragment",
+    [("0.05", "needs a unit"), ("nm", "needs a number"), ("-1nm", "positive"), ("3 furlong", "furlong")],
+)
 def test_parse_length_rejects_bad_text(text, fragment):
     with pytest.raises(ImageError, match=fragment):
         parse_length(text)
@@ -184,7 +186,9 @@ def test_tiff_reader_for_integer_and_float_samples(tmp_path, dtype):
 def test_multi_page_and_rgb_tiff_are_refused(tmp_path):
     tifffile = pytest.importorskip("tifffile")
     pages = tmp_path / "stack.tif"
-    tifffile.imwrite(pages, np.ones((3, 16, 16), dtype=np.float32) * np.arange(3)[:, None, None], photometric="minisblack")
+    tifffile.imwrite(
+        pages, np.ones((3, 16, 16), dtype=np.float32) * np.arange(3)[:, None, None], photometric="minisblack"
+    )
     with pytest.raises(ImageError, match="2-D"):
         read_heightmap(pages, pixel_size="0.5A", z_unit="A")
     rgb = tmp_path / "rgb.tif"
@@ -283,8 +287,9 @@ def test_single_leading_axis_is_dropped():
 
 def test_synthetic_generator_puts_steps_where_asked():
     # no lattice, no noise: far from the steps the plane-removed height is the step sum / cos(tilt)
-    z = synthetic_heightmap((64, 256), 0.5, tilt_deg=10, azimuth_deg=0, step_heights=[1.5, 1.5],
-                            step_azimuth_deg=0, step_width_px=0.5)
+    z = synthetic_heightmap(
+        (64, 256), 0.5, tilt_deg=10, azimuth_deg=0, step_heights=[1.5, 1.5], step_azimuth_deg=0, step_width_px=0.5
+    )
     x = (np.arange(256) - 127.5) * 0.5
     flat = z - math.tan(math.radians(10)) * x[None, :]
     assert math.isclose(flat[0, -1] - flat[0, 0], 3.0 / math.cos(math.radians(10)), rel_tol=1e-6)
@@ -302,8 +307,9 @@ def test_reciprocal_shell_of_square_and_hexagonal_lattices():
 
 
 def test_plane_fit_matches_least_squares_of_numpy():
-    z = synthetic_heightmap((64, 96), (0.5, 0.4), tilt_deg=7, azimuth_deg=130, step_heights=[2.0],
-                            noise_angstrom=0.1, seed=4)
+    z = synthetic_heightmap(
+        (64, 96), (0.5, 0.4), tilt_deg=7, azimuth_deg=130, step_heights=[2.0], noise_angstrom=0.1, seed=4
+    )
     ny, nx = z.shape
     y, x = np.mgrid[0:ny, 0:nx]
     A = np.column_stack([(x.ravel() - (nx - 1) / 2) * 0.5, (y.ravel() - (ny - 1) / 2) * 0.4, np.ones(z.size)])
@@ -317,9 +323,16 @@ def test_plane_fit_matches_least_squares_of_numpy():
 
 def test_square_lattice_steps_and_tilt_round_trip():
     # truth: the parameters the synthetic topograph is built with
-    truth = dict(tilt_deg=5.0, azimuth_deg=30.0, step_heights=[1.25] * 3, step_azimuth_deg=10.0,
-                 step_wave_angstrom=4.0, lattice=(4.0, 4.0, 90.0, 15.0), corrugation_angstrom=0.1,
-                 noise_angstrom=0.05)
+    truth = dict(
+        tilt_deg=5.0,
+        azimuth_deg=30.0,
+        step_heights=[1.25] * 3,
+        step_azimuth_deg=10.0,
+        step_wave_angstrom=4.0,
+        lattice=(4.0, 4.0, 90.0, 15.0),
+        corrugation_angstrom=0.1,
+        noise_angstrom=0.05,
+    )
     r = analyse_heightmap(synthetic_heightmap((256, 256), 0.5, seed=1, **truth), 0.5)
     assert abs(r.tilt.terrace - 5.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 30.0) <= 2.0
@@ -335,9 +348,16 @@ def test_square_lattice_steps_and_tilt_round_trip():
 def test_hexagonal_lattice_on_a_strongly_tilted_terrace():
     # truth: the synthetic parameters
     # at 20° the image shows the lattice foreshortened by cos 20°; a, b, gamma are in the terrace plane
-    truth = dict(tilt_deg=20.0, azimuth_deg=-40.0, step_heights=[2.0, -2.0, 2.0], step_azimuth_deg=100.0,
-                 step_wave_angstrom=5.0, lattice=(3.0, 3.0, 60.0, 5.0), corrugation_angstrom=0.1,
-                 noise_angstrom=0.05)
+    truth = dict(
+        tilt_deg=20.0,
+        azimuth_deg=-40.0,
+        step_heights=[2.0, -2.0, 2.0],
+        step_azimuth_deg=100.0,
+        step_wave_angstrom=5.0,
+        lattice=(3.0, 3.0, 60.0, 5.0),
+        corrugation_angstrom=0.1,
+        noise_angstrom=0.05,
+    )
     r = analyse_heightmap(synthetic_heightmap((256, 256), 0.5, seed=1, **truth), 0.5)
     assert abs(r.tilt.terrace - 20.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 320.0) <= 1.0
@@ -348,8 +368,15 @@ def test_hexagonal_lattice_on_a_strongly_tilted_terrace():
 
 def test_oblique_lattice_with_non_square_pixels():
     # truth: the synthetic parameters; the expected a, b, gamma are those of the Gauss-reduced basis
-    truth = dict(tilt_deg=3.0, azimuth_deg=200.0, lattice=(3.6, 5.1, 70.0, 40.0), corrugation_angstrom=0.15,
-                 noise_angstrom=0.05, step_heights=[1.8], step_azimuth_deg=60.0)
+    truth = dict(
+        tilt_deg=3.0,
+        azimuth_deg=200.0,
+        lattice=(3.6, 5.1, 70.0, 40.0),
+        corrugation_angstrom=0.15,
+        noise_angstrom=0.05,
+        step_heights=[1.8],
+        step_azimuth_deg=60.0,
+    )
     px = (0.4, 0.5)
     r = analyse_heightmap(synthetic_heightmap((300, 256), px, seed=2, **truth), px)
     assert_lattice(r.lattice, 3.6, 5.1, 70.0)
@@ -359,8 +386,9 @@ def test_oblique_lattice_with_non_square_pixels():
 
 def test_single_terrace_has_no_steps_and_says_so():
     # truth: one terrace, tilt 2°, hexagonal 3 Å corrugation (synthetic)
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=2.0, azimuth_deg=75.0, lattice=(3.0, 3.0, 60.0, 5.0),
-                            noise_angstrom=0.05, seed=3)
+    z = synthetic_heightmap(
+        (256, 256), 0.5, tilt_deg=2.0, azimuth_deg=75.0, lattice=(3.0, 3.0, 60.0, 5.0), noise_angstrom=0.05, seed=3
+    )
     r = analyse_heightmap(z, 0.5)
     assert r.steps == () and r.terraces == 1
     assert any("one terrace" in n for n in r.notes)
@@ -369,8 +397,9 @@ def test_single_terrace_has_no_steps_and_says_so():
 
 
 def test_no_corrugation_gives_no_lattice():
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=2.0, step_heights=[1.25, 1.25], corrugation_angstrom=0.0,
-                            noise_angstrom=0.05, seed=4)
+    z = synthetic_heightmap(
+        (256, 256), 0.5, tilt_deg=2.0, step_heights=[1.25, 1.25], corrugation_angstrom=0.0, noise_angstrom=0.05, seed=4
+    )
     r = analyse_heightmap(z, 0.5)
     assert r.lattice is None
     assert any(n.startswith("no lattice") for n in r.notes)
@@ -379,8 +408,16 @@ def test_no_corrugation_gives_no_lattice():
 
 def test_strong_noise_is_an_honest_not_found():
     # noise of 5 Å per pixel hides 1.25 Å steps and a 0.1 Å corrugation
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=2.0, step_heights=[1.25] * 2, lattice=(3.0, 3.0, 60.0, 5.0),
-                            corrugation_angstrom=0.1, noise_angstrom=5.0, seed=5)
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=2.0,
+        step_heights=[1.25] * 2,
+        lattice=(3.0, 3.0, 60.0, 5.0),
+        corrugation_angstrom=0.1,
+        noise_angstrom=5.0,
+        seed=5,
+    )
     r = analyse_heightmap(z, 0.5)
     assert r.lattice is None
     assert r.steps == ()
@@ -407,9 +444,19 @@ def test_every_reported_number_is_right_or_absent(seed):
     a = rng.uniform(3.0, 5.0)
     lat = (a, a, 90.0 if kind == "square" else 60.0, rng.uniform(0, 180)) if kind else None
     noise = 10 ** rng.uniform(-2, 0.5)
-    z = synthetic_heightmap((256, 256), px, tilt_deg=tilt, azimuth_deg=az, step_heights=[h] * n,
-                            step_azimuth_deg=rng.uniform(0, 360), step_wave_angstrom=3.0, lattice=lat,
-                            corrugation_angstrom=rng.uniform(0.05, 0.2), noise_angstrom=noise, seed=seed)
+    z = synthetic_heightmap(
+        (256, 256),
+        px,
+        tilt_deg=tilt,
+        azimuth_deg=az,
+        step_heights=[h] * n,
+        step_azimuth_deg=rng.uniform(0, 360),
+        step_wave_angstrom=3.0,
+        lattice=lat,
+        corrugation_angstrom=rng.uniform(0.05, 0.2),
+        noise_angstrom=noise,
+        seed=seed,
+    )
     r = analyse_heightmap(z, px)
     if r.tilt.terrace is not None:
         assert abs(r.tilt.terrace - tilt) <= max(TILT_DEG, 3 * r.tilt.terrace_sigma)
@@ -424,8 +471,17 @@ def test_every_reported_number_is_right_or_absent(seed):
 
 
 def test_step_uncertainty_covers_the_error_under_noise():
-    z = synthetic_heightmap((384, 384), 0.5, tilt_deg=4.0, azimuth_deg=10.0, step_heights=[1.5] * 3,
-                            step_azimuth_deg=-20.0, lattice=(3.5, 3.5, 90.0, 0.0), noise_angstrom=1.0, seed=7)
+    z = synthetic_heightmap(
+        (384, 384),
+        0.5,
+        tilt_deg=4.0,
+        azimuth_deg=10.0,
+        step_heights=[1.5] * 3,
+        step_azimuth_deg=-20.0,
+        lattice=(3.5, 3.5, 90.0, 0.0),
+        noise_angstrom=1.0,
+        seed=7,
+    )
     r = analyse_heightmap(z, 0.5)
     assert len(r.steps) == 3
     for s in r.steps:
@@ -434,8 +490,16 @@ def test_step_uncertainty_covers_the_error_under_noise():
 
 def test_missing_pixels_are_ignored():
     # truth: the synthetic parameters; NaN blocks must not change the answer
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=6.0, azimuth_deg=250.0, step_heights=[1.6, 1.6],
-                            lattice=(4.2, 4.2, 90.0, 30.0), noise_angstrom=0.05, seed=8)
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=6.0,
+        azimuth_deg=250.0,
+        step_heights=[1.6, 1.6],
+        lattice=(4.2, 4.2, 90.0, 30.0),
+        noise_angstrom=0.05,
+        seed=8,
+    )
     z[100:130, 40:90] = np.nan
     z[:, :3] = np.nan
     r = analyse_heightmap(z, 0.5)
@@ -445,8 +509,17 @@ def test_missing_pixels_are_ignored():
 
 
 def test_results_do_not_depend_on_height_offset_or_a_quarter_turn():
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=4.0, azimuth_deg=20.0, step_heights=[1.4, 1.4],
-                            step_azimuth_deg=45.0, lattice=(3.3, 3.3, 60.0, 12.0), noise_angstrom=0.05, seed=9)
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=4.0,
+        azimuth_deg=20.0,
+        step_heights=[1.4, 1.4],
+        step_azimuth_deg=45.0,
+        lattice=(3.3, 3.3, 60.0, 12.0),
+        noise_angstrom=0.05,
+        seed=9,
+    )
     r0 = analyse_heightmap(z, 0.5)
     r1 = analyse_heightmap(z + 123.0, 0.5)
     assert math.isclose(r0.tilt.terrace, r1.tilt.terrace, abs_tol=1e-9)
@@ -461,8 +534,9 @@ def test_results_do_not_depend_on_height_offset_or_a_quarter_turn():
 
 
 def test_analysis_is_deterministic():
-    z = synthetic_heightmap((256, 256), 0.5, step_heights=[1.2], lattice=(3.0, 3.0, 60.0, 0.0),
-                            noise_angstrom=0.2, seed=10)
+    z = synthetic_heightmap(
+        (256, 256), 0.5, step_heights=[1.2], lattice=(3.0, 3.0, 60.0, 0.0), noise_angstrom=0.2, seed=10
+    )
     assert analyse_heightmap(z, 0.5) == analyse_heightmap(z.copy(), 0.5)
 
 
@@ -497,8 +571,15 @@ def test_bad_pixel_size_is_an_image_error():
 
 
 def test_measurement_from_an_analysis_round_trips_through_the_file(tmp_path):
-    z = synthetic_heightmap((256, 256), 0.5, tilt_deg=5.0, step_heights=[1.25] * 2, lattice=(4.0, 4.0, 90.0, 0.0),
-                            noise_angstrom=0.05, seed=12)
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=5.0,
+        step_heights=[1.25] * 2,
+        lattice=(4.0, 4.0, 90.0, 0.0),
+        noise_angstrom=0.05,
+        seed=12,
+    )
     r = analyse_heightmap(z, 0.5)
     m = to_measurement(r, mount=(0, 0, 1), max_index=3)
     assert m.mount == (0, 0, 1) and m.max_index == 3

@@ -3,7 +3,8 @@
 import numpy as np
 import pytest
 
-from termination.algebra.lattice2d import cell_notation
+from termination.algebra.lattice2d import cell_notation, gauss_reduce
+from termination.errors import StructureError
 from termination.surface.corrugation import (
     ApparentLattice,
     Visibility,
@@ -12,8 +13,6 @@ from termination.surface.corrugation import (
     supercell_corrugation,
     termination_corrugation,
 )
-from termination.errors import StructureError
-from termination.algebra.lattice2d import gauss_reduce
 from termination.surface.terminations import face_terminations
 
 R2, R3 = np.sqrt(2.0), np.sqrt(3.0)
@@ -101,7 +100,9 @@ def test_subsurface_layers_enter_with_the_decay_length(faces):
     # with only Na visible the two Na layers look equal (period a/2); with the
     # default decay (0.5 Å, exp(-2.82/0.5) = 0.0036) the top layer dominates.
     ft = faces("rocksalt:Na,Cl", (0, 0, 1), 5.64)
-    flat = termination_corrugation(ft, "NaCl", visibility=Visibility(visible=["Na"], max_depth_angstrom=3.0, decay_length_angstrom=float("inf")))
+    flat = termination_corrugation(
+        ft, "NaCl", visibility=Visibility(visible=["Na"], max_depth_angstrom=3.0, decay_length_angstrom=float("inf"))
+    )
     assert flat.apparent_lattice.a == pytest.approx(2.82)
     decayed = termination_corrugation(ft, "NaCl", visibility=Visibility(visible=["Na"], max_depth_angstrom=3.0))
     assert decayed.apparent_lattice.a == pytest.approx(5.64 / R2)
@@ -143,7 +144,8 @@ def test_diamond_001_is_1x1_of_a_over_root2_with_half_order_2x1(faces):
     for t in ft.terminations:  # two terminations related by a 90° rotation
         p = termination_corrugation(ft, t.id)
         assert (p.apparent_lattice.a, p.apparent_lattice.b, p.apparent_lattice.gamma) == pytest.approx(
-            (5.431 / R2, 5.431 / R2, 90.0))
+            (5.431 / R2, 5.431 / R2, 90.0)
+        )
         assert p.cell is None and all(float(v).is_integer() for s in p.spots for v in s.g)
     cell = ase.build.diamond100("Si", size=(1, 1, 4), a=5.431).cell[:2, :2]  # ase.build.diamond100
     assert (p.apparent_lattice.a, p.apparent_lattice.b) == pytest.approx(reduced_metric(*cell)[:2])
@@ -202,8 +204,12 @@ def test_perovskite_tio2_layer_maxima_and_oxygen_sublattice(faces):
 
 @pytest.mark.parametrize(
     "spec,a,visible",
-    [("rocksalt:Na,Cl", 5.64, ["Cl"]), ("bcc:Fe", 2.8665, None), ("half-heusler:Ti,Ni,Sn", 6.65, None),
-     ("perovskite:Sr,Ti,O", 3.905, ["O"])],
+    [
+        ("rocksalt:Na,Cl", 5.64, ["Cl"]),
+        ("bcc:Fe", 2.8665, None),
+        ("half-heusler:Ti,Ni,Sn", 6.65, None),
+        ("perovskite:Sr,Ti,O", 3.905, ["O"]),
+    ],
 )
 def test_equivalent_faces_give_the_same_apparent_lattice(proto, spec, a, visible):
     # Symmetry-equivalent faces are the same surface (DEVELOPERS.md invariant).
@@ -214,8 +220,13 @@ def test_equivalent_faces_give_the_same_apparent_lattice(proto, spec, a, visible
         for v in variants:
             ft = face_terminations(crystal, v)
             got = sorted(
-                (t.label, round(p.apparent_lattice.a, 6), round(p.apparent_lattice.b, 6),
-                 round(p.apparent_lattice.gamma, 4), round(p.neighbour_distance, 6))
+                (
+                    t.label,
+                    round(p.apparent_lattice.a, 6),
+                    round(p.apparent_lattice.b, 6),
+                    round(p.apparent_lattice.gamma, 4),
+                    round(p.neighbour_distance, 6),
+                )
                 for t in ft.terminations
                 for p in [termination_corrugation(ft, t.id, visibility=Visibility(visible=visible))]
             )
@@ -252,9 +263,16 @@ def _real_space_period_area(inplane, amp, mesh, tol=1e-6):
 
 @pytest.mark.parametrize(
     "spec,hkl",
-    [("rocksalt:Na,Cl", (0, 0, 1)), ("rocksalt:Na,Cl", (1, 1, 0)), ("perovskite:Sr,Ti,O", (0, 0, 1)),
-     ("perovskite:Sr,Ti,O", (1, 1, 0)), ("fluorite:Ca,F", (0, 0, 1)), ("cesium-chloride:Cs,Cl", (1, 1, 0)),
-     ("hexaboride:La,B", (0, 0, 1)), ("half-heusler:Ti,Ni,Sn", (1, 1, 0))],
+    [
+        ("rocksalt:Na,Cl", (0, 0, 1)),
+        ("rocksalt:Na,Cl", (1, 1, 0)),
+        ("perovskite:Sr,Ti,O", (0, 0, 1)),
+        ("perovskite:Sr,Ti,O", (1, 1, 0)),
+        ("fluorite:Ca,F", (0, 0, 1)),
+        ("cesium-chloride:Cs,Cl", (1, 1, 0)),
+        ("hexaboride:La,B", (0, 0, 1)),
+        ("half-heusler:Ti,Ni,Sn", (1, 1, 0)),
+    ],
 )
 def test_apparent_cell_equals_the_real_space_period_at_a_tiny_threshold(faces, spec, hkl):
     # Fourier analysis and a direct real-space symmetry search must agree: the
@@ -361,8 +379,16 @@ def test_adatom_takes_the_bulk_continuation_species(faces):
     assert spot(hidden, (0.5, 0.5)) == 0.0
     with pytest.raises(StructureError, match="no bulk site"):
         supercell_corrugation(ft, "NaCl", [[2, 0], [0, 1]], [[1.0, 0.0]], [-1.0], mode="add")
-    named = supercell_corrugation(ft, "NaCl", [[2, 0], [0, 1]], [[1.0, 0.0]], [-1.0], mode="add",
-                                  changed_species="Na", visibility=Visibility(visible=["Na"]))
+    named = supercell_corrugation(
+        ft,
+        "NaCl",
+        [[2, 0], [0, 1]],
+        [[1.0, 0.0]],
+        [-1.0],
+        mode="add",
+        changed_species="Na",
+        visibility=Visibility(visible=["Na"]),
+    )
     assert spot(named, (0.5, 0)) > 0.05
 
 
@@ -457,5 +483,10 @@ def test_reconstruction_records_of_the_polarity_step(proto):
     assert p.cell == "c(2×2)" and spot(p, (0.5, 0.5)) > 0.5
     assert p.apparent_lattice.a == pytest.approx(4.157 * R2)
     # Only La imaging (it lies below the B6 unit): the vacancies do not show.
-    q = reconstruction_corrugation(ft, "B6", recs["c(2×2)"], visibility=Visibility(visible=["La"], max_depth_angstrom=4.0, decay_length_angstrom=float("inf")))
+    q = reconstruction_corrugation(
+        ft,
+        "B6",
+        recs["c(2×2)"],
+        visibility=Visibility(visible=["La"], max_depth_angstrom=4.0, decay_length_angstrom=float("inf")),
+    )
     assert spot(q, (0.5, 0.5)) == 0.0 and q.apparent_lattice.a == pytest.approx(4.157)

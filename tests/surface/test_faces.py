@@ -1,17 +1,20 @@
 import numpy as np
 import pytest
 
-from termination.testing import pa3_structure, random_rotation
-from termination.structures import build_prototype
 from termination import PlaneError, build_crystal, distinct_faces, face_geometry, interplanar_angle
 from termination.reports import planes_report
 from termination.serialise import to_jsonable
+from termination.testing import pa3_structure, random_rotation
 
 
 @pytest.mark.parametrize(
     "h1, h2, angle",
     [
-        ((0, 0, 1), (1, 1, 1), 54.74),  # standard cubic interplanar angle tables (Cullity, Elements of X-ray Diffraction)
+        (
+            (0, 0, 1),
+            (1, 1, 1),
+            54.74,
+        ),  # standard cubic interplanar angle tables (Cullity, Elements of X-ray Diffraction)
         ((0, 0, 1), (0, 1, 2), 26.57),  # same table
         ((0, 0, 1), (3, 1, 0), 90.00),  # same table: (001) is perpendicular to (310)
         ((1, 0, 0), (3, 1, 0), 18.43),  # same table
@@ -113,8 +116,16 @@ def test_face_counts_up_to_index_3_in_oh(proto):
 
 def _table(report):
     return [
-        (p.hkl, round(p.d, 6), p.multiplicity, None if p.tilt is None else round(p.tilt, 5),
-         round(p.mesh.a, 6), round(p.mesh.b, 6), round(p.mesh.gamma, 4), round(p.mesh.area, 5))
+        (
+            p.hkl,
+            round(p.d, 6),
+            p.multiplicity,
+            None if p.tilt is None else round(p.tilt, 5),
+            round(p.mesh.a, 6),
+            round(p.mesh.b, 6),
+            round(p.mesh.gamma, 4),
+            round(p.mesh.area, 5),
+        )
         for p in report.planes
     ]
 
@@ -155,7 +166,9 @@ def test_cif_written_by_pymatgen_gives_same_table(proto, tmp_path):
     assert _table(planes_report(loaded, 3, mount=(0, 0, 1))) == _table(planes_report(c, 3, mount=(0, 0, 1)))
 
 
-@pytest.mark.parametrize("bad, message", [((0, 0, 0), r"\(0 0 0\)"), ((1, 0), "three integers"), ((1.5, 0, 0), "three integers")])
+@pytest.mark.parametrize(
+    "bad, message", [((0, 0, 0), r"\(0 0 0\)"), ((1, 0), "three integers"), ((1.5, 0, 0), "three integers")]
+)
 def test_bad_miller_index_is_rejected(proto, bad, message):
     with pytest.raises(PlaneError, match=message):
         face_geometry(proto("fcc:Cu"), bad)

@@ -8,10 +8,10 @@ import pytest
 from termination.bulk.charges import assign_charges
 from termination.errors import PlaneError
 from termination.reports import polarity_report
+from termination.serialise import to_jsonable
 from termination.surface.polarity import face_is_polar, face_polarity, termination_polarity
 from termination.surface.reconstructions import CRITERION, reconstructions
 from termination.surface.symmetry import termination_operations
-from termination.serialise import to_jsonable
 from termination.surface.terminations import face_terminations
 
 
@@ -282,8 +282,10 @@ def test_equivalent_faces_give_identical_results(charged):
     c = charged("rocksalt:Na,Cl")
 
     def summary(hkl):
-        return [(t.label, t.tasker_type, round(t.compensation, 9), tuple(sorted(map(str, woods(t)))))
-                for t in polar_face(c, hkl, max_cell=4).terminations]
+        return [
+            (t.label, t.tasker_type, round(t.compensation, 9), tuple(sorted(map(str, woods(t)))))
+            for t in polar_face(c, hkl, max_cell=4).terminations
+        ]
 
     ref = summary((1, 1, 1))
     for hkl in [(-1, 1, 1), (1, -1, -1), (1, 1, -1)]:
@@ -297,7 +299,7 @@ def test_rotated_and_shifted_input_cell_gives_the_same_polarity():
     from termination.testing import random_rotation
 
     a = 5.64
-    pos = np.array([[0, 0, 0], [0, .5, .5], [.5, 0, .5], [.5, .5, 0]])
+    pos = np.array([[0, 0, 0], [0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]])
     positions = np.vstack([pos, pos + 0.5]) % 1.0
     positions = (positions + rng.random(3)) % 1.0
     lattice = (np.eye(3) * a) @ random_rotation(rng).T

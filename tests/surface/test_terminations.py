@@ -1,9 +1,9 @@
 import numpy as np
 import pytest
 
-from termination.testing import random_rotation
 from termination import StructureError, build_crystal
 from termination.surface.terminations import face_terminations
+from termination.testing import random_rotation
 
 
 def steps_between(ft, a, b):
@@ -35,7 +35,9 @@ def test_si_111_bilayer_step(proto):
     assert ft.smallest_step == pytest.approx(3.135, abs=1e-3)
 
 
-@pytest.mark.parametrize("hkl, step_over_a", [((1, 1, 1), 1 / np.sqrt(3)), ((0, 0, 1), 0.5), ((0, 1, 1), 1 / (2 * np.sqrt(2)))])
+@pytest.mark.parametrize(
+    "hkl, step_over_a", [((1, 1, 1), 1 / np.sqrt(3)), ((0, 0, 1), 0.5), ((0, 1, 1), 1 / (2 * np.sqrt(2)))]
+)
 def test_fcc_monatomic_steps(proto, hkl, step_over_a):
     # monatomic fcc steps: (111) a/sqrt3, (001) a/2, (110) a/(2 sqrt2) (common practice)
     for spec in ("fcc:Cu", "fcc:Pt"):
@@ -106,7 +108,10 @@ def test_half_heusler_111_three_terminations_and_reverse_order(proto):
     assert steps_between(up, "Sn", "Ni")[0] == pytest.approx(steps_between(down, "Ni", "Sn")[0])
 
 
-@pytest.mark.parametrize("spec, hkl", [("half-heusler:Ti,Ni,Sn", (1, 1, 3)), ("perovskite:Sr,Ti,O", (0, 1, 2)), ("hexaboride:La,B", (1, 1, 1))])
+@pytest.mark.parametrize(
+    "spec, hkl",
+    [("half-heusler:Ti,Ni,Sn", (1, 1, 3)), ("perovskite:Sr,Ti,O", (0, 1, 2)), ("hexaboride:La,B", (1, 1, 1))],
+)
 def test_steps_close_the_period(proto, spec, hkl):
     ft = face_terminations(proto(spec), hkl)
     first = {(s.from_label, s.to_label): s.heights[0] for s in ft.steps}
@@ -167,8 +172,12 @@ def test_surface_atoms_start_at_top_layer(proto):
 
 @pytest.mark.parametrize(
     "kwargs, message",
-    [({"layer_tol_angstrom": -0.1}, "layer tolerance"), ({"unit_ratio": 0.5}, "unit ratio"),
-     ({"bond_cutoff_angstrom": float("nan")}, "bond cutoff"), ({"max_multiple": -1}, "max multiple")],
+    [
+        ({"layer_tol_angstrom": -0.1}, "layer tolerance"),
+        ({"unit_ratio": 0.5}, "unit ratio"),
+        ({"bond_cutoff_angstrom": float("nan")}, "bond cutoff"),
+        ({"max_multiple": -1}, "max multiple"),
+    ],
 )
 def test_bad_options_are_rejected(proto, kwargs, message):
     with pytest.raises(StructureError, match=message):

@@ -41,7 +41,7 @@ Slabs are kept small (min_slab_size 5 Å) so the module runs in a few seconds.
 
 import warnings
 from collections import Counter
-from functools import lru_cache
+from functools import cache
 
 import numpy as np
 import pytest
@@ -74,7 +74,7 @@ def _structure(crystal):
     return Structure(Lattice(crystal.lattice), list(crystal.species), crystal.positions)
 
 
-@lru_cache(maxsize=None)
+@cache
 def _generate(spec, a, hkl, bonds=None, max_broken_bonds=0, filtered=False):
     """pymatgen slabs of one face; the Cartesian frame is the crystal's (no reorientation)."""
     from pymatgen.core.surface import SlabGenerator
@@ -85,8 +85,12 @@ def _generate(spec, a, hkl, bonds=None, max_broken_bonds=0, filtered=False):
     gen = SlabGenerator(_structure(crystal), hkl, min_slab_size=5.0, min_vacuum_size=5.0, reorient_lattice=False)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        slabs = gen.get_slabs(bonds=None if bonds is None else dict(bonds), max_broken_bonds=max_broken_bonds,
-                              ftol=FTOL_ANGSTROM, filter_out_sym_slabs=filtered)
+        slabs = gen.get_slabs(
+            bonds=None if bonds is None else dict(bonds),
+            max_broken_bonds=max_broken_bonds,
+            ftol=FTOL_ANGSTROM,
+            filter_out_sym_slabs=filtered,
+        )
     return crystal, gen, tuple(slabs)
 
 
@@ -159,7 +163,7 @@ def test_cut_positions_are_the_slab_generator_shifts(spec, a, hkl):
 
 @pytest.mark.parametrize("spec, a, hkl", CASES, ids=IDS)
 def test_slab_layer_sequence_is_a_window_of_the_periodic_layers(spec, a, hkl):
-    crystal, gen, slabs = _generate(spec, a, hkl)
+    crystal, _gen, slabs = _generate(spec, a, hkl)
     ft = face_terminations(crystal, hkl, layer_tol_angstrom=FTOL_ANGSTROM)
     d = ft.d
     up = sorted(ft.layers, key=lambda layer: layer.height)
@@ -185,7 +189,7 @@ def test_slab_layer_sequence_is_a_window_of_the_periodic_layers(spec, a, hkl):
 
 @pytest.mark.parametrize("spec, a, hkl", CASES, ids=IDS)
 def test_distinct_slabs_are_cut_orbits_under_normal_keeping_and_reversing_operations(spec, a, hkl):
-    crystal, gen, distinct = _generate(spec, a, hkl, filtered=True)
+    crystal, _gen, distinct = _generate(spec, a, hkl, filtered=True)
     ft = face_terminations(crystal, hkl, layer_tol_angstrom=FTOL_ANGSTROM)
     heights = [c.height for c in ft.cuts]
     # pymatgen get_slabs(filter_out_sym_slabs=True): one slab per orbit of cuts under h R = +-h
@@ -198,11 +202,11 @@ def test_distinct_slabs_are_cut_orbits_under_normal_keeping_and_reversing_operat
 
 def test_rock_salt_111_two_terminations_one_pymatgen_slab():
     # The worked example of the module docstring: pymatgen SlabGenerator, NaCl (111)
-    crystal, gen, distinct = _generate("rocksalt:Na,Cl", 5.64, (1, 1, 1), filtered=True)
+    crystal, _gen, distinct = _generate("rocksalt:Na,Cl", 5.64, (1, 1, 1), filtered=True)
     ft = face_terminations(crystal, (1, 1, 1))
     assert sorted(t.label for t in ft.terminations) == ["Cl", "Na"]
     assert len(distinct) == 1
-    z, comps = _slab_layers(distinct[0], ft.face.normal, FTOL_ANGSTROM)
+    _z, comps = _slab_layers(distinct[0], ft.face.normal, FTOL_ANGSTROM)
     assert {tuple(comps[0]), tuple(comps[-1])} == {("Na",), ("Cl",)}  # one surface of each
 
 
