@@ -8,20 +8,23 @@ from typing import Any
 
 import numpy as np
 
+from termination.units import json_key
+
 __all__ = ["to_jsonable"]
 
 
 def to_jsonable(obj: Any) -> Any:
     """Plain JSON-ready form of a result: dataclasses become dicts, arrays lists.
 
-    A field's JSON key is its name, or ``metadata["json"]`` where a name is
-    not a valid identifier (``from``).
+    A field's JSON key is its name with the suffix of its unit
+    (:func:`termination.units.json_key`), or ``metadata["json"]`` where a
+    name is not a valid identifier (``from``).
 
     Non-finite floats become None, so the output is strict JSON.
     """
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         return {
-            f.metadata.get("json", f.name): to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if f.repr
+            json_key(f.name, f.metadata): to_jsonable(getattr(obj, f.name)) for f in dataclasses.fields(obj) if f.repr
         }
     if isinstance(obj, dict):
         return {str(k): to_jsonable(v) for k, v in obj.items()}
