@@ -18,10 +18,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from termination.bulk.charges import with_formal_charges
+from termination.bulk.summary import StructureSummary, summarise_structure
 from termination.defaults import MAX_CELL, MAX_CELLS_PER_TERMINATION, MAX_INDEX
 from termination.errors import MeasurementError, StructureError
 from termination.identification.model import RECONSTRUCTED_SHARE, MatchModel
-from termination.reports import StructureSummary, summarise_structure
 from termination.surface.corrugation import Visibility, reconstruction_corrugation, termination_corrugation
 from termination.surface.faces import distinct_faces, variant_tilts
 from termination.surface.miller import check_hkl

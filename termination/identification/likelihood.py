@@ -53,17 +53,19 @@ prior
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
+from termination.bulk.summary import StructureSummary
 from termination.defaults import MAX_INDEX
 from termination.errors import MeasurementError
 from termination.identification.candidates import candidate_table, logsumexp
-from termination.identification.measurement import Measurement
-from termination.reports import StructureSummary
-from termination.surface.corrugation import Visibility
+from termination.identification.measurement import Measurement, Value
+from termination.surface.corrugation import ApparentLattice, Visibility
 from termination.surface.miller import hkl_text as _hkl
+from termination.surface.terminations import TerminationRef
+from termination.units import ANGSTROM, DEG
 
 __all__ = [
     "Criterion",
@@ -79,7 +81,14 @@ __all__ = [
 
 @dataclass(frozen=True)
 class Criterion:
-    """One measured value against a candidate's prediction."""
+    """One measured value against a candidate's prediction.
+
+    ``predicted`` is the nearest predicted value (None when the candidate
+    predicts none, e.g. no visible lattice) and ``residual`` is
+    (measured - predicted) / sigma, in units of sigma.  The unit of
+    ``measured``, ``sigma`` and ``predicted`` is given by the key that holds
+    the criterion (``tilt_deg``, ``spacings_angstrom``).
+    """
 
     measured: float
     sigma: float
@@ -89,40 +98,46 @@ class Criterion:
 
 @dataclass(frozen=True)
 class MatchRow:
+    """One ranked candidate with its probability and each measured value against its prediction."""
+
     rank: int
-    hkl: tuple
-    termination: str
-    termination_id: str
+    hkl: tuple[int, int, int]
+    termination: TerminationRef
     cell: str | None
     probability: float
     log_likelihood: float
     log_prior: float
-    tilt: Criterion | None
-    spacings: tuple
-    row_angle: Criterion | None
-    steps: tuple
-    apparent_lattice: dict
-    d: float
+    tilt: Criterion | None = field(metadata=DEG)
+    spacings: tuple[Criterion, ...] = field(metadata=ANGSTROM)
+    row_angle: Criterion | None = field(metadata=DEG)
+    steps: tuple[Criterion, ...] = field(metadata=ANGSTROM)
+    apparent_lattice: ApparentLattice
+    d: float = field(metadata=ANGSTROM)
 
 
 @dataclass(frozen=True)
 class FaceProbability:
     """Posterior probability of a face, summed over its terminations and cells."""
 
-    hkl: tuple
+    hkl: tuple[int, int, int]
     probability: float
 
 
 @dataclass(frozen=True)
 class MatchReport:
+    """Result of ``termination match``: the measurement as scored, the ranked candidates and the verdict.
+
+    ``measurement`` is the measurement with the default uncertainties applied.
+    """
+
     structure: StructureSummary
-    mount: tuple | None
-    measurement: dict
-    candidates: tuple
-    faces: tuple
+    mount: tuple[int, int, int] | None
+    measurement: Measurement
+    candidates: tuple[MatchRow, ...]
+    faces: tuple[FaceProbability, ...]
     verdict: str
     warning: str | None
-    notes: tuple
+    notes: tuple[str, ...]
 
 
 def _log_normal(x, mu, s):
@@ -258,7 +273,7 @@ def score(table, measurement, top=None):
     return MatchReport(
         structure=table.structure,
         mount=table.mount,
-        measurement=_echo(eff),
+        measurement=_echo(eff, table.mount, table.max_index),
         candidates=rows,
         faces=faces,
         verdict=verdict,
@@ -267,16 +282,20 @@ def score(table, measurement, top=None):
     )
 
 
-def _echo(eff):
-    def pairs(a):
-        return [{"value": float(v), "sigma": float(s)} for v, s in a]
+def _echo(eff, mount, max_index):
+    """The measurement as scored: values with the uncertainties actually used."""
 
-    return {
-        "tilt": None if eff["tilt"] is None else {"value": eff["tilt"][0], "sigma": eff["tilt"][1]},
-        "row_angle": None if eff["row_angle"] is None else {"value": eff["row_angle"][0], "sigma": eff["row_angle"][1]},
-        "spacings": pairs(eff["spacings"]),
-        "steps": pairs(eff["steps"]),
-    }
+    def values(a):
+        return tuple(Value(float(v), float(sg)) for v, sg in a)
+
+    return Measurement(
+        mount=mount,
+        max_index=max_index,
+        tilt=None if eff["tilt"] is None else Value(*eff["tilt"]),
+        row_angle=None if eff["row_angle"] is None else Value(*eff["row_angle"]),
+        spacings=values(eff["spacings"]),
+        steps=values(eff["steps"]),
+    )
 
 
 def _nearest(value, options, sigma_of):
@@ -314,8 +333,7 @@ def _row(rank, c, p, ll, eff, model):
     return MatchRow(
         rank=rank,
         hkl=c.hkl,
-        termination=c.termination,
-        termination_id=c.termination_id,
+        termination=TerminationRef(c.termination_id, c.termination),
         cell=c.cell,
         probability=float(p),
         log_likelihood=float(ll),
@@ -324,7 +342,7 @@ def _row(rank, c, p, ll, eff, model):
         spacings=spacings,
         row_angle=row_angle,
         steps=steps,
-        apparent_lattice={"a": c.apparent[0], "b": c.apparent[1], "gamma": c.apparent[2]},
+        apparent_lattice=ApparentLattice(*c.apparent),
         d=c.d,
     )
 
@@ -341,14 +359,14 @@ def _face_marginals(candidates, prob):
 def _verdict(best, second, n_candidates, faces):
     cell = "" if best.cell is None else f" {best.cell}"
     verdict = (
-        f"Most likely {_hkl(best.hkl)} {best.termination}-terminated{cell}, probability {best.probability:.2f} "
+        f"Most likely {_hkl(best.hkl)} {best.termination.label}-terminated{cell}, probability {best.probability:.2f} "
         f"among {n_candidates} candidates; face {_hkl(faces[0].hkl)} with probability {faces[0].probability:.2f} "
         "over its terminations (a ranked hypothesis, not proof)."
     )
     warning = None
     if second is not None and second.probability > 0 and best.probability / second.probability < 2.0:
         warning = (
-            f"Ambiguous: the runner-up {_hkl(second.hkl)} {second.termination}"
+            f"Ambiguous: the runner-up {_hkl(second.hkl)} {second.termination.label}"
             f"{'' if second.cell is None else ' ' + second.cell} is within a factor of 2 "
             f"(p = {second.probability:.2f}); measure more (steps, a second spacing, the tilt) to separate them."
         )

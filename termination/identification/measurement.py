@@ -39,7 +39,9 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from termination.errors import MeasurementError
+from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
+from termination.units import ANGSTROM, DEG
 
 __all__ = [
     "Measurement",
@@ -138,13 +140,13 @@ class Measurement:
 
     mount: tuple[int, int, int] | None = None
     max_index: int | None = None
-    tilt: Value | None = None
-    row_angle: Value | None = None
-    spacings: tuple[Value, ...] = ()
-    steps: tuple[Value, ...] = ()
+    tilt: Value | None = field(default=None, metadata=DEG)
+    row_angle: Value | None = field(default=None, metadata=DEG)
+    spacings: tuple[Value, ...] = field(default=(), metadata=ANGSTROM)
+    steps: tuple[Value, ...] = field(default=(), metadata=ANGSTROM)
     visible: tuple[str, ...] = ()
     weights: dict[str, float] = field(default_factory=dict)
-    decay_length: float | None = None
+    decay_length: float | None = field(default=None, metadata=ANGSTROM)
 
     def __post_init__(self):
         _check_measurement(self)
@@ -454,16 +456,7 @@ def format_measurement(measurement, *, comment=None):
 
 
 def _write_new(path, text, force, error):
-    path = Path(path)
-    mode = "w" if force else "x"
-    try:
-        with open(path, mode, encoding="utf-8") as fh:
-            fh.write(text)
-    except FileExistsError:
-        raise error(f"{str(path)!r} exists; pass force=True (--force) to overwrite it") from None
-    except OSError as exc:
-        raise error(f"cannot write {str(path)!r}: {exc.strerror}") from None
-    return path
+    return write_text(path, text, force=force, error=error)
 
 
 def write_measurement(path, measurement, *, force=False, comment=None):

@@ -17,7 +17,7 @@ fractional-order spots (a 2x1 vacancy row: half-order spots).
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -389,7 +389,7 @@ class Visibility:
     """
 
     visible: tuple[str, ...] | None = None
-    weights: tuple[tuple[str, float], ...] = ()
+    weights: tuple[tuple[str, float], ...] = field(default=(), metadata={"mapping": True})
     decay_length_angstrom: float = DECAY_LENGTH_ANGSTROM
     max_depth_angstrom: float | None = None
     threshold: float = SPOT_THRESHOLD

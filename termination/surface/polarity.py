@@ -82,7 +82,7 @@ class TerminationPolarity:
     compensation : float or None
         dq / Q: fraction of the sites to remove (< 0) or add (> 0); 0 when
         non-polar; None when the top unit and top layer are neutral.
-    sites : str or None
+    site_kind : str or None
         'top unit' or 'top layer': which sites ``compensation`` counts.
     site_label : str or None
         One such site ('Na', 'B6').
@@ -99,7 +99,7 @@ class TerminationPolarity:
     dipole_per_area: float
     compensating_charge: float
     compensation: float | None
-    sites: str | None
+    site_kind: str | None
     site_label: str | None
     reconstructions: tuple
     note: str | None
@@ -261,7 +261,7 @@ def termination_polarity(
         dipole_per_area=mu / area,
         compensating_charge=dq,
         compensation=compensation,
-        sites=sites_kind,
+        site_kind=sites_kind,
         site_label=site_label,
         reconstructions=recs,
         note=note,

@@ -471,3 +471,15 @@ def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
                 parent[max(ri, rj)] = min(ri, rj)
     classes = {k: find(k) for k in allowed_layers}
     return classes, relations
+
+
+@dataclass(frozen=True)
+class TerminationRef:
+    """A termination named in a result: its id ('T2') and label ('SrO')."""
+
+    id: str
+    label: str
+
+    @classmethod
+    def of(cls, termination: Termination) -> TerminationRef:
+        return cls(termination.id, termination.label)

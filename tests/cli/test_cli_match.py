@@ -45,8 +45,11 @@ def test_match_json_fields():
     assert len(data["candidates"]) == 3
     best = data["candidates"][0]
     assert best["rank"] == 1 and best["hkl"] == [0, 0, 1]
-    assert {"termination", "probability", "log_likelihood", "tilt", "spacings", "steps"} <= set(best)
-    assert {"measured", "predicted", "residual"} <= set(best["spacings"][0])
+    assert {"termination", "probability", "log_likelihood", "tilt_deg", "spacings_angstrom", "steps_angstrom"} <= set(
+        best
+    )
+    assert set(best["termination"]) == {"id", "label"}
+    assert {"measured", "predicted", "residual"} <= set(best["spacings_angstrom"][0])
     assert abs(sum(c["probability"] for c in data["candidates"]) - 1) < 0.05 or best["probability"] > 0.9
 
 

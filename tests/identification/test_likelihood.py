@@ -50,7 +50,7 @@ def test_synthetic_measurements_are_recovered_at_rank_1(tables):
 
 def _index_of(table, row):
     for i, c in enumerate(table.candidates):
-        if c.hkl == row.hkl and c.termination_id == row.termination_id and c.cell == row.cell:
+        if c.hkl == row.hkl and c.termination_id == row.termination.id and c.cell == row.cell:
             return i
     raise KeyError(row)
 
@@ -170,7 +170,7 @@ def test_literature_surfaces_rank_first(proto, spec, measurement, options, hkl, 
     best = report.candidates[0]
     assert best.hkl == hkl, report.verdict
     if label:
-        assert best.termination == label
+        assert best.termination.label == label
     assert "hypothesis" in report.verdict
 
 

@@ -73,7 +73,7 @@ def test_rocksalt_111_is_type_III_half_the_top_layer(charged):
     by = {t.label: t for t in f.terminations}
     for label, sign in (("Na", 1), ("Cl", -1)):
         t = by[label]
-        assert t.tasker_type == "III" and t.sites == "top layer" and t.site_label == label
+        assert t.tasker_type == "III" and t.site_kind == "top layer" and t.site_label == label
         assert [round(L.charge, 9) for L in t.layers] == [sign, -sign]
         assert t.compensating_charge == pytest.approx(-sign / 2)
         assert t.compensation == pytest.approx(-0.5)
@@ -119,12 +119,12 @@ def test_hexaboride_metal_termination_loses_half_whatever_the_valence(charged, v
     c = charged("hexaboride:La,B", {"La": valence})
     by = polarity(c, (0, 0, 1), max_cell=4)
     la = by["La"]
-    assert la.tasker_type == "III" and la.sites == "top layer"
+    assert la.tasker_type == "III" and la.site_kind == "top layer"
     assert la.compensating_charge == pytest.approx(-valence / 2)
     assert la.compensation == pytest.approx(-0.5)
     assert {"(2×1)", "c(2×2)"} <= set(woods(la))
     b6 = by["B6"]
-    assert b6.sites == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
+    assert b6.site_kind == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
 
 
 def test_hexaboride_reconstruction_records(charged):
@@ -338,11 +338,11 @@ def test_report_json_has_the_documented_fields(charged):
     (face,) = data["faces"]
     assert face["hkl"] == [1, 1, 1]
     t = face["terminations"][0]
-    assert {"label", "tasker_type", "dipole_per_area", "compensation", "reconstructions"} <= set(t)
+    assert {"label", "tasker_type", "dipole_per_area_e_per_angstrom", "compensation", "reconstructions"} <= set(t)
     rec = t["reconstructions"][0]
     assert {"matrix", "wood", "sites", "changed"} <= set(rec)
     assert rec["matrix"] == [[2, 0], [0, 1]] and rec["wood"] == "(2×1)" and rec["changed"] == 1
-    assert data["charges"]["charges"] == {"Na": 1.0, "Cl": -1.0}
+    assert data["charges"]["charges_e"] == {"Na": 1.0, "Cl": -1.0}
 
 
 def test_face_is_polar_needs_charges(proto, charged):
