@@ -287,7 +287,6 @@ KNOWN_LATTICE_CONSTANTS = {
     ("half-heusler", ("Hf", "Ni", "Sn")): 6.080,
     ("half-heusler", ("Ti", "Co", "Sb")): 5.880,
     ("half-heusler", ("Lu", "Pt", "Bi")): 6.577,
-    ("half-heusler", ("Y", "Pt", "Bi")): 6.650,
     ("heusler", ("Cu", "Mn", "Al")): 5.950,
     ("heusler", ("Co", "Mn", "Si")): 5.654,
     ("heusler", ("Fe", "V", "Al")): 5.761,
@@ -295,7 +294,6 @@ KNOWN_LATTICE_CONSTANTS = {
     ("inverse-heusler", ("Mn", "Co", "Ga")): 5.860,
     ("hexaboride", ("La", "B")): 4.157,
     ("hexaboride", ("Ce", "B")): 4.141,
-    ("hexaboride", ("Sm", "B")): 4.133,
     ("hexaboride", ("Ca", "B")): 4.145,
     ("hexaboride", ("Eu", "B")): 4.185,
 }

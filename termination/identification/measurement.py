@@ -11,19 +11,19 @@ File format (TOML, lengths in Å, angles in degrees, every key optional)::
     # termination measurement file
     mount = [0, 0, 1]                            # face the crystal was mounted on
     max_index = 3
-    tilt = { value = 30.0, sigma = 3.0 }         # terrace plane vs mount face, deg
-    row_angle = { value = 60.0, sigma = 3.0 }    # deg
-    spacings = [ { value = 4.6, sigma = 0.2 } ]  # corrugation periodicities, Å
-    steps = [ { value = 1.25, sigma = 0.1 } ]    # step heights, Å
+    tilt = { value = 54.0, sigma = 2.0 }           # terrace plane vs mount face, deg
+    row_angle = { value = 90.0, sigma = 4.0 }      # deg
+    spacings = [ { value = 4.19, sigma = 0.15 } ]  # corrugation periodicities, Å
+    steps = [ { value = 2.97, sigma = 0.12 } ]     # step heights, Å
     [visibility]
     visible = ["Sn"]
     weights = { Na = 0.2 }
     decay_length = 1.0                           # Å
 
-A measured value is written as a table ``{ value = 30.0, sigma = 3.0 }``;
+A measured value is written as a table ``{ value = 54.0, sigma = 2.0 }``;
 ``sigma`` may be left out, and then the consumer applies its documented
-default. A bare number (``tilt = 30.0``) or a string in the command-line
-syntax (``tilt = "30+-3"``) is read too.
+default. A bare number (``tilt = 54.0``) or a string in the command-line
+syntax (``tilt = "54+-2"``) is read too.
 
 The step list of ``termination match --steps FILE`` is a plain text file with
 one height in Å per line, an optional second column with its sigma, ``#``
@@ -89,8 +89,8 @@ class Value:
 
     Examples
     --------
-    >>> Value(30.0, 3.0)
-    Value(value=30.0, sigma=3.0)
+    >>> Value(54.0, 2.0)
+    Value(value=54.0, sigma=2.0)
     """
 
     value: float
@@ -223,7 +223,7 @@ def _check_measurement(m):
 
 
 def parse_value(text):
-    """Parse a measured value written as ``30``, ``30+-3``, ``30±3`` or ``30 +/- 3``.
+    """Parse a measured value written as ``54``, ``54+-2``, ``54±2`` or ``54 +/- 2``.
 
     Parameters
     ----------
@@ -243,18 +243,18 @@ def parse_value(text):
 
     Examples
     --------
-    >>> parse_value("30+-3")
-    Value(value=30.0, sigma=3.0)
-    >>> parse_value("1.25 ± 0.1")
-    Value(value=1.25, sigma=0.1)
-    >>> parse_value("4.6")
-    Value(value=4.6, sigma=None)
+    >>> parse_value("54+-2")
+    Value(value=54.0, sigma=2.0)
+    >>> parse_value("2.97 ± 0.12")
+    Value(value=2.97, sigma=0.12)
+    >>> parse_value("4.19")
+    Value(value=4.19, sigma=None)
     """
     if not isinstance(text, str):
-        raise MeasurementError(f"a measured value must be text like '30+-3', got {text!r}")
+        raise MeasurementError(f"a measured value must be text like '54+-2', got {text!r}")
     match = _VALUE_RE.match(text)
     if match is None:
-        raise MeasurementError(f"cannot read {text!r} as a measured value; write e.g. '30', '30+-3' or '30±3'")
+        raise MeasurementError(f"cannot read {text!r} as a measured value; write e.g. '54', '54+-2' or '54±2'")
     value = float(match["value"])
     sigma = match["sigma"]
     if sigma is not None:
@@ -418,10 +418,10 @@ def format_measurement(measurement, *, comment=None):
 
     Examples
     --------
-    >>> print(format_measurement(Measurement(mount=(0, 0, 1), steps=(Value(1.25, 0.1),))), end="")
+    >>> print(format_measurement(Measurement(mount=(0, 0, 1), steps=(Value(2.97, 0.12),))), end="")
     # termination measurement file
     mount = [0, 0, 1]
-    steps = [ { value = 1.25, sigma = 0.1 } ]  # Å
+    steps = [ { value = 2.97, sigma = 0.12 } ]  # Å
     """
     if not isinstance(measurement, Measurement):
         raise MeasurementError(f"expected a Measurement, got {type(measurement).__name__}")
@@ -501,8 +501,8 @@ def read_steps(path):
     ----------
     path : str or path-like
         Text file. Each non-blank line holds a height and optionally its
-        sigma, separated by whitespace or a comma; ``1.25+-0.1`` and
-        ``1.25 ± 0.1`` are read too. ``#`` starts a comment.
+        sigma, separated by whitespace or a comma; ``2.97+-0.12`` and
+        ``2.97 ± 0.12`` are read too. ``#`` starts a comment.
 
     Returns
     -------
@@ -554,10 +554,10 @@ def format_steps(steps, *, comment=None):
 
     Examples
     --------
-    >>> print(format_steps([Value(1.25, 0.01), Value(2.5)]), end="")
+    >>> print(format_steps([Value(2.97, 0.01), Value(5.9)]), end="")
     # step height (Å)  sigma (Å)
-    1.25 0.01
-    2.5
+    2.97 0.01
+    5.9
     """
     lines = []
     if comment:

@@ -175,17 +175,18 @@ def test_literature_surfaces_rank_first(proto, spec, measurement, options, hkl, 
 
 
 def test_measured_supercell_spacing_selects_a_reconstruction(proto):
-    # SmB6(001) cleaved: (2x1) rows of the half-occupied top layer seen by STM
-    # (Rößler et al., PNAS 111, 4798 (2014), from memory); the metal-terminated (001) face
-    # needs half its top layer removed whatever the valence (Tasker 1979).
+    # CeB6 (a = 4.141 Å, from memory): the metal-terminated (001) face is Tasker type III and
+    # needs half its top layer removed whatever the valence (Tasker, J. Phys. C 12, 4977 (1979));
+    # the model's (2×1) cell has rows 2a = 8.28 Å apart.  A measurement of a and 2a with
+    # one-period steps must pick that cell over the unreconstructed surface.
     m = Measurement(
         mount=(0, 0, 1),
         tilt=V(0.5, 1),
-        spacings=(V(4.13, 0.15), V(8.2, 0.3)),
+        spacings=(V(4.14, 0.15), V(8.3, 0.3)),
         row_angle=V(90, 3),
-        steps=(V(4.1, 0.15),),
+        steps=(V(4.14, 0.15),),
     )
-    report = match(proto("hexaboride:Sm,B", a=4.133), m, top=4)
+    report = match(proto("hexaboride:Ce,B"), m, top=4)
     best = report.candidates[0]
     assert best.hkl == (0, 0, 1) and best.cell == "(2×1)"
     unreconstructed = [r for r in report.candidates if r.cell is None]

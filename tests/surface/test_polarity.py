@@ -113,9 +113,8 @@ def test_perovskite_110_is_type_III(charged):
 @pytest.mark.parametrize("valence", [2, 2.5, 3])
 def test_hexaboride_metal_termination_loses_half_whatever_the_valence(charged, valence):
     # The B6 octahedron sits halfway between metal planes, so mu = q_M d/2 and
-    # dq = -q_M/2 for any metal charge q_M (Tasker 1979 counting; the issue's
-    # hexaboride example).  (2×1) rows are seen on SmB6 (001), S. Rößler et al.,
-    # PNAS 111, 4798 (2014) (from memory).
+    # dq = -q_M/2 for any metal charge q_M (Tasker, J. Phys. C 12, 4977 (1979): type III,
+    # half of the metal layer to remove); (2×1) and c(2×2) are the index-2 cells that do it.
     c = charged("hexaboride:La,B", {"La": valence})
     by = polarity(c, (0, 0, 1), max_cell=4)
     la = by["La"]
@@ -145,9 +144,12 @@ def test_hexaboride_reconstruction_records(charged):
 
 
 def test_mixed_valence_hexaboride(charged):
-    # SmB6 with Sm +2.6 (intermediate valence, from memory): still half the metal
-    by = polarity(charged("hexaboride:Sm,B", {"Sm": 2.6}), (0, 0, 1), max_cell=2)
-    assert by["Sm"].compensation == pytest.approx(-0.5)
+    # EuB6 with Eu +2.2 (a non-integer valence to exercise the fraction path; the count of
+    # Tasker, J. Phys. C 12, 4977 (1979) gives half the metal layer for any metal charge)
+    by = polarity(charged("hexaboride:Eu,B", {"Eu": 2.2}), (0, 0, 1), max_cell=2)
+    assert by["Eu"].compensation == pytest.approx(-0.5)
+    assert by["Eu"].compensating_charge == pytest.approx(-1.1)
+    assert {"(2×1)", "c(2×2)"} <= set(woods(by["Eu"]))
 
 
 # Zinc blende ------------------------------------------------------------------------------------
