@@ -73,7 +73,7 @@ def test_rocksalt_111_is_type_III_half_the_top_layer(charged):
     by = {t.label: t for t in f.terminations}
     for label, sign in (("Na", 1), ("Cl", -1)):
         t = by[label]
-        assert t.tasker_type == "III" and t.sites == "top layer" and t.site_label == label
+        assert t.tasker_type == "III" and t.site_kind == "top layer" and t.site_label == label
         assert [round(L.charge, 9) for L in t.layers] == [sign, -sign]
         assert t.compensating_charge == pytest.approx(-sign / 2)
         assert t.compensation == pytest.approx(-0.5)
@@ -119,12 +119,12 @@ def test_hexaboride_metal_termination_loses_half_whatever_the_valence(charged, v
     c = charged("hexaboride:La,B", {"La": valence})
     by = polarity(c, (0, 0, 1), max_cell=4)
     la = by["La"]
-    assert la.tasker_type == "III" and la.sites == "top layer"
+    assert la.tasker_type == "III" and la.site_kind == "top layer"
     assert la.compensating_charge == pytest.approx(-valence / 2)
     assert la.compensation == pytest.approx(-0.5)
     assert {"(2×1)", "c(2×2)"} <= set(woods(la))
     b6 = by["B6"]
-    assert b6.sites == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
+    assert b6.site_kind == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
 
 
 def test_hexaboride_reconstruction_records(charged):
