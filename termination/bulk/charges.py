@@ -424,6 +424,26 @@ def assign_charges(
     )
 
 
+@overload
+def with_formal_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    required: Literal[True],
+) -> tuple[Crystal, ChargeAssignment]: ...
+
+
+@overload
+def with_formal_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    required: bool = ...,
+) -> tuple[Crystal, ChargeAssignment | None]: ...
+
+
 def with_formal_charges(
     crystal: Crystal,
     charges: Mapping[str, float] | None = None,
