@@ -492,14 +492,14 @@ def _match(r: Any, wide: bool) -> list[Block]:
         cols = ["#", "face", ("term.", "left"), ("cell", "left"), "p", "tilt", "spacings", "angle", "steps"]
     rows = []
     for c in r.candidates:
-        row = [str(c.rank), hkl_text(c.hkl), c.termination.label, c.cell or "1×1", f"{c.probability:.3f}"]
+        row = [str(c.rank), hkl_text(c.hkl), c.label, c.cell or "1×1", f"{c.probability:.3f}"]
         if wide:
             row += [
                 _predicted(c.tilt, 1),
                 ", ".join(_predicted(s) for s in c.spacings) or "—",
                 _predicted(c.row_angle, 1),
                 _steps_summary(c.steps),
-                f"{c.log_prior:.2f}",
+                f"{c.terms.log_prior:.2f}",
             ]
         else:
             row += [
@@ -522,9 +522,43 @@ def _match(r: Any, wide: bool) -> list[Block]:
                 "dim",
             )
         )
+    best = r.candidates[0]
+    if best.steps:
+        srows = []
+        for s in best.steps:
+            if s.predicted is None or s.outlier:
+                srows.append([f"{s.measured:.3f}", "—", "outlier", "", "—"])
+            else:
+                srows.append(
+                    [
+                        f"{s.measured:.3f}",
+                        f"{s.predicted:.3f}",
+                        f"{s.lower.label} → {s.upper.label}",
+                        str(s.multiple),
+                        f"{s.residual:+.1f}σ",
+                    ]
+                )
+        out.append(
+            _table(
+                f"Steps of {hkl_text(best.hkl)} {best.label}: the terraces each explains",
+                ["measured (Å)", "allowed (Å)", ("lower → upper", "left"), "+n·d", "residual"],
+                srows,
+            )
+        )
     faces = ", ".join(f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in r.faces[:4] if f.probability >= 0.005)
     out.append(Text(f"Faces, over their terminations: {faces}"))
-    out.append(Text(r.verdict, "bold"))
+    fit = r.fit
+    if fit.fits:
+        out.append(
+            Text(
+                f"Fit check passed: chi-square {fit.chi_square:.1f} for {fit.dof} values (p = "
+                f"{fit.p_value:.2g}), {fit.step_outliers} step outliers ({fit.allowed_step_outliers} "
+                "allowed).",
+                "dim",
+            )
+        )
+    out.append(Text(r.verdict, "bold" if fit.fits else "warning"))
+    out.append(Text(f"Decided by {r.decided_by}."))
     if r.warning:
         out.append(Text(r.warning, "warning"))
     for note in r.notes:

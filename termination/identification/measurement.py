@@ -38,6 +38,7 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from termination.defaults import MAX_LENGTH_ANGSTROM
 from termination.errors import MeasurementError
 from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
@@ -60,6 +61,11 @@ __all__ = [
 _VALUE_RE = re.compile(rf"^\s*(?P<value>{NUMBER_PATTERN})\s*(?:(?:\+-|\+/-|±)\s*(?P<sigma>{NUMBER_PATTERN}))?\s*$")
 _SYMBOL_RE = re.compile(r"^[A-Z][a-z]{0,2}$")
 _BARE_KEY_RE = re.compile(r"^[A-Za-z0-9_-]+$")
+
+#: Largest number of spacings or of steps in one measurement.
+MAX_VALUES = 10_000
+#: Largest accepted uncertainty of a measured value (Å or degrees).
+SIGMA_LIMIT = 1000.0
 
 _TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "visibility"}
 _VISIBILITY_KEYS = {"visible", "weights", "decay_length"}
@@ -196,9 +202,16 @@ def _check_measurement(m):
     for name in ("spacings", "steps"):
         values = tuple(getattr(m, name))
         unit = "spacing" if name == "spacings" else "step height"
+        if len(values) > MAX_VALUES:
+            raise MeasurementError(f"at most {MAX_VALUES} {name} can be matched, got {len(values)}")
         for v in values:
-            _check_value(v, f"{unit} (Å)", 0.0, math.inf, True, True)
+            _check_value(v, f"{unit} (Å)", 0.0, MAX_LENGTH_ANGSTROM, True, False)
         set_(m, name, values)
+    for name in ("tilt", "row_angle", "spacings", "steps"):
+        value = getattr(m, name)
+        for v in value if isinstance(value, tuple) else (value,):
+            if v is not None and v.sigma is not None and v.sigma > SIGMA_LIMIT:
+                raise MeasurementError(f"sigma of {name} must be at most {SIGMA_LIMIT:g}, got {v.sigma:g}")
     visible = tuple(m.visible)
     for s in visible:
         if not isinstance(s, str) or not _SYMBOL_RE.match(s):

@@ -166,5 +166,5 @@ def test_weight_overrides_visible_as_the_readme_says():
             "corrugation", "rocksalt:Na,Cl", "--plane", "0", "0", "1", "--visible", "Na", "--weight", "Cl=1", "--json"
         ).stdout
     )
-    assert abs(only_na["terminations"][0]["apparent_lattice"]["a"] - 3.988) < 1e-3
-    assert abs(both["terminations"][0]["apparent_lattice"]["a"] - 2.820) < 1e-3
+    assert abs(only_na["terminations"][0]["apparent_lattice"]["a_angstrom"] - 3.988) < 1e-3
+    assert abs(both["terminations"][0]["apparent_lattice"]["a_angstrom"] - 2.820) < 1e-3

@@ -23,7 +23,7 @@ def test_planes_json_has_documented_fields():
     r = invoke("planes", "zincblende:Ga,As", "--max-index", "1", "--json")
     assert r.exit_code == 0
     data = json.loads(r.stdout)
-    assert {"structure", "mount", "planes"} <= set(data)
+    assert {"structure", "mount", "faces"} <= set(data)
     hkls = [p["hkl"] for p in data["faces"]]
     assert [1, 1, 1] in hkls and [-1, -1, -1] in hkls
     assert set(data["faces"][0]) >= {"hkl", "d_angstrom", "tilt_deg", "multiplicity", "mesh", "terminations"}
