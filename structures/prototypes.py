@@ -213,7 +213,13 @@ PROTOTYPES: dict[str, Prototype] = {
         _p(
             "half-heusler",
             ["X", "Y", "Z"],
-            [(0, "4b", lambda x: [0.5, 0.5, 0.5]), (1, "4c", lambda x: [_Q, _Q, _Q]), (2, "4a", lambda x: [0, 0, 0])],
+            # Y on 4d rather than the often-quoted 4c: the same structure turned by 90°, in the
+            # orientation the polarity convention of termination.bulk.crystal picks.
+            [
+                (0, "4b", lambda x: [0.5, 0.5, 0.5]),
+                (1, "4d", lambda x: [0.75, 0.75, 0.75]),
+                (2, "4a", lambda x: [0, 0, 0]),
+            ],
             _F,
             "F-43m",
             216,
@@ -234,14 +240,15 @@ PROTOTYPES: dict[str, Prototype] = {
             "heusler:Cu,Mn,Al",
             "full Heusler X2YZ (L2_1)",
         ),
-        # Inverse Heusler (Hg2CuTi type, XA): X on 4a and 4c, Y on 4b, Z on 4d (from memory).
+        # Inverse Heusler (Hg2CuTi type, XA): X on 4a and 4c, Y on 4b, Z on 4d (from memory); written
+        # here inverted (X on 4a and 4d, Z on 4c), the orientation the polarity convention picks.
         _p(
             "inverse-heusler",
             ["X", "Y", "Z"],
             [
-                (0, "4a+4c", lambda x: [[0.0, 0.0, 0.0], [_Q, _Q, _Q]]),
+                (0, "4a+4d", lambda x: [[0.0, 0.0, 0.0], [0.75, 0.75, 0.75]]),
                 (1, "4b", lambda x: [0.5, 0.5, 0.5]),
-                (2, "4d", lambda x: [0.75, 0.75, 0.75]),
+                (2, "4c", lambda x: [_Q, _Q, _Q]),
             ],
             _F,
             "F-43m",

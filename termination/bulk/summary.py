@@ -1,4 +1,4 @@
-"""A short description of a loaded crystal: name, origin, symmetry, cell and handling caution."""
+"""A short description of a loaded crystal: name, origin, symmetry, cell, absolute structure and handling caution."""
 
 from __future__ import annotations
 
@@ -9,16 +9,20 @@ from termination.bulk.crystal import Crystal
 from termination.bulk.elements import handling_caution
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["StructureSummary", "summarise_structure"]
+__all__ = ["ABSOLUTE_STRUCTURE_NOTE", "StructureSummary", "summarise_structure"]
 
 
 @dataclass(frozen=True)
 class StructureSummary:
     """What was loaded: name, symmetry, conventional cell and handling caution.
 
-    ``note`` says how the input cell was transformed to spglib's standard
-    setting, when it was; ``caution`` is the handling caution for toxic or
-    radioactive elements, when there are any.
+    ``crystal_system`` is that of the space group ('hexagonal' and
+    'trigonal' crystals are given in hexagonal axes, with Miller-Bravais
+    indices); ``note`` says how the input cell was transformed to spglib's
+    standard setting, when it was; ``absolute_structure`` says, for a
+    non-centrosymmetric crystal, what fixes (h k l) against (-h -k -l);
+    ``caution`` is the handling caution for toxic or radioactive elements,
+    when there are any.
     """
 
     name: str
@@ -26,6 +30,7 @@ class StructureSummary:
     origin: str
     spacegroup: str
     spacegroup_number: int
+    crystal_system: str
     natoms: int
     a: float = field(metadata=ANGSTROM)
     b: float = field(metadata=ANGSTROM)
@@ -34,7 +39,20 @@ class StructureSummary:
     beta: float = field(metadata=DEG)
     gamma: float = field(metadata=DEG)
     note: str | None = None
+    absolute_structure: str | None = None
     caution: str | None = None
+
+    @property
+    def hexagonal_axes(self) -> bool:
+        """True for trigonal and hexagonal crystals: faces are written (h k i l)."""
+        return self.crystal_system in ("trigonal", "hexagonal")
+
+
+#: The convention that tells (h k l) from (-h -k -l) in a non-centrosymmetric crystal.
+ABSOLUTE_STRUCTURE_NOTE = (
+    "non-centrosymmetric: (h k l) and (-h -k -l) are different faces; indices follow the absolute "
+    "structure of the input (atoms as given, right-handed axes)"
+)
 
 
 def summarise_structure(crystal: Crystal) -> StructureSummary:
@@ -52,6 +70,7 @@ def summarise_structure(crystal: Crystal) -> StructureSummary:
         origin=crystal.origin,
         spacegroup=crystal.spacegroup,
         spacegroup_number=crystal.spacegroup_number,
+        crystal_system=crystal.crystal_system,
         natoms=crystal.natoms,
         a=a,
         b=b,
@@ -60,5 +79,6 @@ def summarise_structure(crystal: Crystal) -> StructureSummary:
         beta=beta,
         gamma=gamma,
         note=crystal.note,
+        absolute_structure=None if crystal.centrosymmetric else ABSOLUTE_STRUCTURE_NOTE,
         caution=handling_caution(crystal.species),
     )
