@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 import warnings
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -13,7 +14,7 @@ from termination.bulk.crystal import Crystal, build_crystal
 from termination.defaults import SYMPREC_ANGSTROM
 from termination.errors import StructureError
 
-from .prototypes import PROTOTYPES, build_prototype
+from .prototypes import build_prototype, find_prototype
 
 __all__ = ["bundled", "load_structure", "read_structure_file"]
 
@@ -108,7 +109,13 @@ def _read_with_ase(path: str) -> _Cell:
 
 
 def load_structure(
-    spec: str | os.PathLike[str], a: float | None = None, x: float | None = None, symprec: float = SYMPREC_ANGSTROM
+    spec: str | os.PathLike[str],
+    a: float | None = None,
+    x: float | None = None,
+    symprec: float = SYMPREC_ANGSTROM,
+    *,
+    c: float | None = None,
+    parameters: Mapping[str, float] | None = None,
 ) -> Crystal:
     """Crystal from a file path or a prototype spec ``NAME:EL1,EL2,...``.
 
@@ -116,19 +123,20 @@ def load_structure(
     ----------
     spec : str
         Existing file, or prototype spec (``termination structures`` lists them).
-    a : float, optional
-        Lattice constant (Å) for prototypes.
+    a, c : float, optional
+        Lattice constants (Å) for prototypes.
     x : float, optional
         Free positional parameter for prototypes that have one.
     symprec : float
         Symmetry tolerance, Å.
+    parameters : mapping, optional
+        Free positional parameters of a prototype by name.
     """
     text = os.fspath(spec) if isinstance(spec, os.PathLike) else str(spec)
     if os.path.exists(text):
-        if a is not None or x is not None:
-            raise StructureError("--a and --x apply to prototypes only, not to a structure file")
+        if a is not None or c is not None or x is not None or parameters:
+            raise StructureError("--a, --c and --x apply to prototypes only, not to a structure file")
         return read_structure_file(text, symprec=symprec)
-    name = text.partition(":")[0].strip().lower()
-    if ":" in text or name in PROTOTYPES:
-        return build_prototype(text, a=a, x=x, symprec=symprec)
+    if ":" in text or find_prototype(text.partition(":")[0]) is not None:
+        return build_prototype(text, a=a, x=x, symprec=symprec, c=c, parameters=parameters)
     raise StructureError(f"{text!r} is neither a structure file nor a prototype spec such as rocksalt:Na,Cl")

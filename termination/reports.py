@@ -27,8 +27,8 @@ from termination.surface.corrugation import (
     reconstruction_corrugation,
     termination_corrugation,
 )
-from termination.surface.faces import Mesh, distinct_faces, face_geometry
-from termination.surface.miller import check_hkl, hkl_text
+from termination.surface.faces import Mesh, distinct_faces, face_geometry, face_index
+from termination.surface.miller import hkl_text
 from termination.surface.polarity import FacePolarity, face_is_polar, face_polarity, termination_polarity
 from termination.surface.reconstructions import CRITERION, check_max_cell
 from termination.surface.steps import StepHeights
@@ -68,16 +68,25 @@ __all__ = [
 
 @dataclass(frozen=True)
 class PrototypeRow:
-    """One built-in prototype: its spec name, the roles of its elements, space group and sites."""
+    """One built-in prototype: its spec name, the roles of its elements, crystal system, space group and sites.
+
+    ``lattice_constants`` names the lengths it takes ('a' or 'a, c');
+    ``parameters`` are its free positional parameters (fractional) with their
+    generic defaults; ``tabulated`` lists the compounds whose lattice
+    constants and free parameters are built in.
+    """
 
     name: str
     elements: tuple[str, ...]
+    crystal_system: str
     spacegroup: str
     spacegroup_number: int
     sites: str
-    free_parameter_x: float | None
+    lattice_constants: str
+    parameters: dict[str, float]
     example: str
     description: str
+    tabulated: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -89,19 +98,22 @@ class StructuresReport:
 
 def structures_report() -> StructuresReport:
     """The built-in prototypes (:data:`termination.structures.PROTOTYPES`)."""
-    from termination.structures import PROTOTYPES
+    from termination.structures import PROTOTYPES, TABULATED
 
     return StructuresReport(
         tuple(
             PrototypeRow(
                 name=p.name,
                 elements=tuple(p.roles),
+                crystal_system=p.crystal_system,
                 spacegroup=p.spacegroup,
                 spacegroup_number=p.number,
                 sites=p.wyckoff,
-                free_parameter_x=p.default_x,
+                lattice_constants="a" if p.lattice == "cubic" else "a, c",
+                parameters={q.name: q.default for q in p.parameters},
                 example=p.example,
                 description=p.description,
+                tabulated=tuple(",".join(els) for (name, els) in TABULATED if name == p.name),
             )
             for p in PROTOTYPES.values()
         )
@@ -172,7 +184,7 @@ def planes_report(crystal: Crystal, max_index: int = MAX_INDEX, mount=None, char
                 polar=None if assignment is None else face_is_polar(ft),
             )
         )
-    m = None if mount is None else check_hkl(mount, "mount")
+    m = None if mount is None else face_index(crystal, mount, "mount")
     return PlanesReport(summarise_structure(crystal), m, int(max_index), tuple(rows), assignment)
 
 
@@ -317,7 +329,7 @@ def polarity_report(
     charged, assignment = with_formal_charges(crystal, charges, use_pymatgen=use_pymatgen, required=True)
     assert assignment is not None  # required=True raises instead
     if plane is not None:
-        faces = (face_geometry(charged, check_hkl(plane)),)
+        faces = (face_geometry(charged, face_index(charged, plane)),)
     else:
         faces = distinct_faces(charged, max_index=MAX_INDEX if max_index is None else max_index)
     rows = []

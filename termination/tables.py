@@ -16,7 +16,7 @@ from typing import Any, Literal
 
 from termination.bulk.elements import composition_label
 from termination.bulk.summary import StructureSummary
-from termination.surface.miller import hkl_text, uvw_text
+from termination.surface.miller import direction_text, face_text
 
 __all__ = [
     "HYPOTHESIS_NOTE",
@@ -129,6 +129,11 @@ def _matrix(m: Sequence[Sequence[int]]) -> str:
     return f"({m[0][0]} {m[0][1]} / {m[1][0]} {m[1][1]})"
 
 
+def _face(r: Any, hkl: Sequence[int]) -> str:
+    """A face of the report's crystal as practitioners write it: (h k i l) in hexagonal axes, else (h k l)."""
+    return face_text(hkl, r.structure.hexagonal_axes)
+
+
 def _structure(s: StructureSummary) -> list[Block]:
     out: list[Block] = [
         Text(
@@ -141,6 +146,12 @@ def _structure(s: StructureSummary) -> list[Block]:
     ]
     if s.note:
         out.append(Text(f"Note: {s.note}", "dim"))
+    if s.absolute_structure:
+        out.append(Text(f"Note: {s.absolute_structure}.", "dim"))
+    if s.hexagonal_axes:
+        out.append(
+            Text("Faces (h k i l) and directions [u v t w] in hexagonal axes; --three-index for (h k l).", "dim")
+        )
     return out
 
 
@@ -155,20 +166,34 @@ def _structures(r: Any, wide: bool) -> list[Block]:
     cols: list[str | tuple[str, str]] = [
         ("name", "left"),
         ("elements", "left"),
+        ("system", "left"),
         ("space group", "left"),
         ("example", "left"),
     ]
     if wide:
-        cols += [("Wyckoff sites", "left"), "x"]
+        cols += [("Wyckoff sites", "left"), ("free parameters", "left"), ("tabulated", "left")]
     rows = []
     for p in r.prototypes:
-        row = [p.name, ",".join(p.elements), f"{p.spacegroup} ({p.spacegroup_number})", p.example]
+        row = [p.name, ",".join(p.elements), p.crystal_system, f"{p.spacegroup} ({p.spacegroup_number})", p.example]
         if wide:
-            row += [p.sites, "" if p.free_parameter_x is None else f"{p.free_parameter_x:g}"]
+            row += [
+                p.sites,
+                " ".join(f"{k}={v:g}" for k, v in p.parameters.items()) or "—",
+                " ".join(p.tabulated) or "—",
+            ]
         rows.append(row)
-    out: list[Block] = [_table("Built-in prototypes: NAME:EL1,EL2,... [--a Å] [--x X]", cols, rows)]
+    out: list[Block] = [_table("Built-in prototypes: NAME:EL1,EL2,... [--a Å] [--c Å] [--x X]", cols, rows)]
+    out.append(
+        Text(
+            "Tabulated compounds need no --a or --c (room-temperature values with their sources); "
+            "--x NAME=VALUE sets a free parameter.",
+            "dim",
+        )
+    )
     if not wide:
-        out.append(Text("--wide adds the Wyckoff sites and free parameters; --json everything.", "dim"))
+        out.append(
+            Text("--wide adds the Wyckoff sites, free parameters and tabulated compounds; --json everything.", "dim")
+        )
     return out
 
 
@@ -189,11 +214,14 @@ def _planes(r: Any, wide: bool) -> list[Block]:
     cols += ["terms", "step (Å)", "polar"]
     rows = []
     for f in r.faces:
-        row = [hkl_text(f.hkl)]
+        row = [_face(r, f.hkl)]
         if mount:
             row += [f"{f.tilt:.2f}"]
             if wide:
-                row += [hkl_text(f.tilt_variant), "—" if f.tilt_axis is None else uvw_text(f.tilt_axis)]
+                row += [
+                    _face(r, f.tilt_variant),
+                    "—" if f.tilt_axis is None else direction_text(f.tilt_axis, r.structure.hexagonal_axes),
+                ]
         row += [f"{f.d:.4f}"]
         if wide:
             row += [str(f.multiplicity)]
@@ -209,7 +237,7 @@ def _planes(r: Any, wide: bool) -> list[Block]:
         rows.append(row)
     title = f"Faces up to index {r.max_index}"
     if mount:
-        title += f", tilt to the mount {hkl_text(r.mount)}"
+        title += f", tilt to the mount {_face(r, r.mount)}"
     out.append(_table(title, cols, rows))
     out.append(
         Text("terms: terminations; step: smallest step height; polar: every termination Tasker type III.", "dim")
@@ -233,7 +261,7 @@ def _terminations(r: Any, wide: bool) -> list[Block]:
     m = r.mesh
     out.append(
         Text(
-            f"Face {hkl_text(r.hkl)}: d = {r.d:.4f} Å, mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°, "
+            f"Face {_face(r, r.hkl)}: d = {r.d:.4f} Å, mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°, "
             f"{m.area:.3f} Å² per surface cell"
         )
     )
@@ -313,11 +341,11 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
                 (cells or "—") if t.tasker_type == "III" else "—",
             ]
             rows.append(row)
-        title = f"{hkl_text(f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, {'polar' if f.polar else 'not polar'}"
+        title = f"{_face(r, f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, {'polar' if f.polar else 'not polar'}"
         out.append(_table(title, cols, rows))
         for t in f.terminations:
             if t.note:
-                out.append(Text(f"{hkl_text(f.hkl)} {t.id} {t.label}: {t.note}", "dim"))
+                out.append(Text(f"{_face(r, f.hkl)} {t.id} {t.label}: {t.note}", "dim"))
         for t in f.terminations:
             if not t.reconstructions:
                 continue
@@ -334,7 +362,7 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
             ]
             out.append(
                 _table(
-                    f"{hkl_text(f.hkl)} {t.id} {t.label}: cells that {compensation_text(t)}",
+                    f"{_face(r, f.hkl)} {t.id} {t.label}: cells that {compensation_text(t)}",
                     [("cell", "left"), "matrix", "sites", "changed", "patterns", "eV/site"],
                     rrows,
                 )
@@ -373,7 +401,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
     weights = ", ".join(f"{el}={w:g}" for el, w in v.weights)
     seen = "all species" if v.visible is None else "only " + ", ".join(v.visible)
     depth = "top unit" if v.max_depth_angstrom is None else f"down to {v.max_depth_angstrom:g} Å"
-    out.append(Text(f"Face {hkl_text(r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
+    out.append(Text(f"Face {_face(r, r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
     out.append(
         Text(
             f"Imaging {seen}{'; weights ' + weights if weights else ''}; λ = {v.decay_length_angstrom:g} Å; "
@@ -465,7 +493,7 @@ def _match(r: Any, wide: bool) -> list[Block]:
     e = r.measurement
     parts = []
     if r.mount:
-        parts.append(f"mount {hkl_text(r.mount)}")
+        parts.append(f"mount {_face(r, r.mount)}")
     if e.tilt:
         parts.append(f"tilt {e.tilt.value:g}±{e.tilt.sigma:g}°")
     if e.spacings:
@@ -492,7 +520,7 @@ def _match(r: Any, wide: bool) -> list[Block]:
         cols = ["#", "face", ("term.", "left"), ("cell", "left"), "p", "tilt", "spacings", "angle", "steps"]
     rows = []
     for c in r.candidates:
-        row = [str(c.rank), hkl_text(c.hkl), c.label, c.cell or "1×1", f"{c.probability:.3f}"]
+        row = [str(c.rank), _face(r, c.hkl), c.label, c.cell or "1×1", f"{c.probability:.3f}"]
         if wide:
             row += [
                 _predicted(c.tilt, 1),
@@ -540,12 +568,12 @@ def _match(r: Any, wide: bool) -> list[Block]:
                 )
         out.append(
             _table(
-                f"Steps of {hkl_text(best.hkl)} {best.label}: the terraces each explains",
+                f"Steps of {_face(r, best.hkl)} {best.label}: the terraces each explains",
                 ["measured (Å)", "allowed (Å)", ("lower → upper", "left"), "+n·d", "residual"],
                 srows,
             )
         )
-    faces = ", ".join(f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in r.faces[:4] if f.probability >= 0.005)
+    faces = ", ".join(f"{_face(r, f.hkl)} {f.probability:.2f}" for f in r.faces[:4] if f.probability >= 0.005)
     out.append(Text(f"Faces, over their terminations: {faces}"))
     fit = r.fit
     if fit.fits:

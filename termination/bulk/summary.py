@@ -5,11 +5,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
+import numpy as np
+
 from termination.bulk.crystal import Crystal
 from termination.bulk.elements import handling_caution
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["ABSOLUTE_STRUCTURE_NOTE", "StructureSummary", "summarise_structure"]
+__all__ = ["ABSOLUTE_STRUCTURE_NOTE", "CHIRAL_NOTE", "StructureSummary", "summarise_structure"]
 
 
 @dataclass(frozen=True)
@@ -48,11 +50,24 @@ class StructureSummary:
         return self.crystal_system in ("trigonal", "hexagonal")
 
 
-#: The convention that tells (h k l) from (-h -k -l) in a non-centrosymmetric crystal.
+#: What tells (h k l) from (-h -k -l) in a non-centrosymmetric crystal with an improper operation.
 ABSOLUTE_STRUCTURE_NOTE = (
-    "non-centrosymmetric: (h k l) and (-h -k -l) are different faces; indices follow the absolute "
-    "structure of the input (atoms as given, right-handed axes)"
+    "non-centrosymmetric: (h k l) and (-h -k -l) are different faces, named by the polarity convention "
+    "(README; GaAs (1 1 1) is the Ga face, ZnO (0 0 0 1) the Zn-polar face) whatever the input setting"
 )
+#: ... and in a chiral crystal (proper operations only), whose handedness the input fixes.
+CHIRAL_NOTE = (
+    "chiral: (h k l) and (-h -k -l) are different faces; the handedness (absolute structure) is that of the "
+    "input, atoms as given"
+)
+
+
+def _absolute_structure(crystal: Crystal) -> str | None:
+    """The statement on (h k l) against (-h -k -l): None for a centrosymmetric crystal."""
+    if crystal.centrosymmetric:
+        return None
+    improper = bool(np.any(np.linalg.det(crystal.point_group) < 0))
+    return ABSOLUTE_STRUCTURE_NOTE if improper else CHIRAL_NOTE
 
 
 def summarise_structure(crystal: Crystal) -> StructureSummary:
@@ -79,6 +94,6 @@ def summarise_structure(crystal: Crystal) -> StructureSummary:
         beta=beta,
         gamma=gamma,
         note=crystal.note,
-        absolute_structure=None if crystal.centrosymmetric else ABSOLUTE_STRUCTURE_NOTE,
+        absolute_structure=_absolute_structure(crystal),
         caution=handling_caution(crystal.species),
     )

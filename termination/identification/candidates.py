@@ -36,8 +36,7 @@ from termination.surface.corrugation import (
     reconstruction_corrugation,
     termination_corrugation,
 )
-from termination.surface.faces import distinct_faces, variant_tilts
-from termination.surface.miller import check_hkl
+from termination.surface.faces import distinct_faces, face_index, variant_tilts
 from termination.surface.polarity import termination_polarity
 from termination.surface.steps import allowed_heights
 from termination.surface.terminations import FaceTerminations, TerminationRef, face_terminations
@@ -253,7 +252,7 @@ def candidate_table(
     """
     model = model or MatchModel()
     vis = Visibility() if visibility is None else visibility
-    mount = None if mount is None else check_hkl(mount, "mount")
+    mount = None if mount is None else face_index(crystal, mount, "mount")
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     # Checked once for the crystal: per termination a species that is merely
     # absent from the top unit makes that termination flat, which is a result.
