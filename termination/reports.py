@@ -218,6 +218,7 @@ class TerminationEntry:
     weighted_bonds_per_nm2: float = 0.0
     equivalent_to: str | None = None
     relation: str | None = None
+    van_der_waals: bool = False
     apparent_lattice: ApparentLattice | None = None
     lattice_type: str = ""
 
@@ -234,6 +235,7 @@ class TerminationEntry:
             weighted_bonds_per_nm2=t.weighted_bonds_per_nm2,
             equivalent_to=t.equivalent_to,
             relation=t.relation,
+            van_der_waals=t.van_der_waals,
             apparent_lattice=lattice,
             lattice_type=lattice_type(lattice),
         )

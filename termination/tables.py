@@ -149,9 +149,7 @@ def _structure(s: StructureSummary) -> list[Block]:
     if s.absolute_structure:
         out.append(Text(f"Note: {s.absolute_structure}.", "dim"))
     if s.hexagonal_axes:
-        out.append(
-            Text("Faces (h k i l) and directions [u v t w] in hexagonal axes; --three-index for (h k l).", "dim")
-        )
+        out.append(Text("Hexagonal axes: faces (h k i l), directions [u v t w]; --three-index: (h k l).", "dim"))
     return out
 
 
@@ -165,18 +163,18 @@ def _caution(s: StructureSummary) -> list[Block]:
 def _structures(r: Any, wide: bool) -> list[Block]:
     cols: list[str | tuple[str, str]] = [
         ("name", "left"),
-        ("elements", "left"),
         ("system", "left"),
         ("space group", "left"),
         ("example", "left"),
     ]
     if wide:
-        cols += [("Wyckoff sites", "left"), ("free parameters", "left"), ("tabulated", "left")]
+        cols += [("elements", "left"), ("Wyckoff sites", "left"), ("free parameters", "left"), ("tabulated", "left")]
     rows = []
     for p in r.prototypes:
-        row = [p.name, ",".join(p.elements), p.crystal_system, f"{p.spacegroup} ({p.spacegroup_number})", p.example]
+        row = [p.name, p.crystal_system, f"{p.spacegroup} ({p.spacegroup_number})", p.example]
         if wide:
             row += [
+                ",".join(p.elements),
                 p.sites,
                 " ".join(f"{k}={v:g}" for k, v in p.parameters.items()) or "—",
                 " ".join(p.tabulated) or "—",
@@ -267,7 +265,7 @@ def _terminations(r: Any, wide: bool) -> list[Block]:
     )
     out.append(
         _table(
-            f"Layers of one period (tolerance {r.layer_tol_angstrom:g} Å)",
+            f"Layers of one period, depth below the top layer of T1 (tolerance {r.layer_tol_angstrom:g} Å)",
             ["layer", "depth (Å)", ("atoms per cell", "left")],
             [[str(i), f"{la.depth:.4f}", composition_label(la.composition)] for i, la in enumerate(r.layers)],
         )
@@ -285,6 +283,15 @@ def _terminations(r: Any, wide: bool) -> list[Block]:
         row += [eq, lattice_text(t.apparent_lattice)]
         rows.append(row)
     out.append(_table("Terminations (top layer or unit), cheapest cut first", cols, rows))
+    vdw = [f"{t.id} ({t.label})" for t in r.terminations if t.van_der_waals]
+    if vdw:
+        out.append(
+            Text(
+                f"Van der Waals layer{'s' if len(vdw) > 1 else ''}: {', '.join(vdw)}: no bond crosses the cuts "
+                "above and below, the cleavage plane of this layered crystal.",
+                "bold",
+            )
+        )
     out.append(
         Text(
             "Apparent lattice: what a topograph shows in the default corrugation model (all species alike, "

@@ -86,7 +86,7 @@ def test_the_width_check_can_fail():
 
 def test_help_shows_metavars_units_and_defaults():
     r = CliRunner().invoke(cli.app, ["planes", "--help"], env={"COLUMNS": "100"})
-    assert "--mount H K L" in r.stdout and "[default: 3]" in r.stdout and "<int" not in r.stdout
+    assert "--mount H K [I] L" in r.stdout and "[default: 3]" in r.stdout and "<int" not in r.stdout
     r = CliRunner().invoke(cli.app, ["corrugation", "-h"], env={"COLUMNS": "100"})
     assert r.exit_code == 0 and "--decay-length Å" in r.stdout and "[default: 0.5]" in r.stdout
     assert "list[str]" not in r.stdout

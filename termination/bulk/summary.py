@@ -62,6 +62,11 @@ CHIRAL_NOTE = (
 )
 
 
+def _tidy(x: float) -> float:
+    """``x`` to 12 significant digits: float noise of a computed length or angle removed."""
+    return float(f"{x:.12g}")
+
+
 def _absolute_structure(crystal: Crystal) -> str | None:
     """The statement on (h k l) against (-h -k -l): None for a centrosymmetric crystal."""
     if crystal.centrosymmetric:
@@ -73,12 +78,13 @@ def _absolute_structure(crystal: Crystal) -> str | None:
 def summarise_structure(crystal: Crystal) -> StructureSummary:
     """:class:`StructureSummary` of a crystal.
 
-    Cell lengths are computed with ``math.hypot`` so that a cubic cell of
-    5.64 Å reads 5.64, not 5.640000000000001.
+    Cell lengths are computed with ``math.hypot`` and kept to 12 significant
+    digits, so that a cubic cell of 5.64 Å reads 5.64, not 5.640000000000001.
     """
     lattice = crystal.lattice
-    a, b, c = (math.hypot(*(float(v) for v in row)) for row in lattice)
-    _, _, _, alpha, beta, gamma = crystal.cell_parameters
+    # 12 significant digits: spglib's idealised hexagonal rows give 3.2497999999999996 for 3.2498.
+    a, b, c = (_tidy(math.hypot(*(float(v) for v in row))) for row in lattice)
+    alpha, beta, gamma = (_tidy(v) for v in crystal.cell_parameters[3:])
     return StructureSummary(
         name=crystal.name,
         formula=crystal.formula,

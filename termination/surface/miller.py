@@ -181,13 +181,16 @@ def direction_text(uvw: Iterable[SupportsInt], hexagonal: bool) -> str:
 
 def _integers(values: Iterable[SupportsFloat], name: str, lengths: tuple[int, ...]) -> list[int]:
     """Finite whole numbers of one of the allowed counts, as ints; PlaneError naming ``name`` otherwise."""
-    what = " or ".join(str(n) for n in lengths)
+    words = {3: "three integers (h k l)", 4: "four integers (h k i l)"}
+    what = ", or ".join(words[n] for n in lengths)
+    if lengths == (3, 4):
+        what += " in hexagonal axes"
     try:
         floats = [float(v) for v in values]
     except (TypeError, ValueError):
-        raise PlaneError(f"{name} must be {what} integers, got {values!r}") from None
+        raise PlaneError(f"{name} must be {what}, got {values!r}") from None
     if len(floats) not in lengths or not all(np.isfinite(floats)) or any(v != int(v) for v in floats):
-        raise PlaneError(f"{name} must be {what} integers, got {values!r}")
+        raise PlaneError(f"{name} must be {what}, got {values!r}")
     return [int(v) for v in floats]
 
 
