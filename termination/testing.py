@@ -306,8 +306,9 @@ def geometric_measurement(
                 Value(float(x * (1 + spacing_rel * rng.normal())), spacing_rel * x) for x in (lat.a, lat.b)
             )
             row_angle = Value(float(lat.gamma + row_angle_sigma_deg * rng.normal()), row_angle_sigma_deg)
-    return Measurement(mount=tuple(mount), tilt=Value(tilt, tilt_sigma_deg), spacings=spacings,
-                       row_angle=row_angle, steps=steps)
+    return Measurement(
+        mount=tuple(mount), tilt=Value(tilt, tilt_sigma_deg), spacings=spacings, row_angle=row_angle, steps=steps
+    )
 
 
 def calibration(probabilities, hits, bins=10):

@@ -18,19 +18,15 @@ that the candidate set does not contain that the fit check flags.
 from __future__ import annotations
 
 import argparse
-import sys
 import time
-from pathlib import Path
 
 import numpy as np
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
-
-from termination.identification.candidates import candidate_table  # noqa: E402
-from termination.identification.likelihood import score  # noqa: E402
-from termination.identification.model import MatchModel  # noqa: E402
-from termination.structures import build_prototype  # noqa: E402
-from termination.testing import calibration, geometric_measurement  # noqa: E402
+from termination.identification.candidates import candidate_table
+from termination.identification.likelihood import score
+from termination.identification.model import MatchModel
+from termination.structures import build_prototype
+from termination.testing import calibration, geometric_measurement
 
 PROTOTYPES = (
     "fcc:Cu",
@@ -105,8 +101,9 @@ def flagged(pairs, cases, seed, model, lattice):
     flagged = total = 0
     for measured, candidates in pairs:
         crystal = build_prototype(measured)
-        table = candidate_table(build_prototype(candidates), mount=MOUNT, max_index=3, reconstructions=False,
-                                model=model)
+        table = candidate_table(
+            build_prototype(candidates), mount=MOUNT, max_index=3, reconstructions=False, model=model
+        )
         from termination.surface.faces import distinct_faces
 
         faces = [f.hkl for f in distinct_faces(crystal, 3)]
@@ -129,15 +126,19 @@ def main(argv=None):
         p, h = run(args.cases, args.seed, lattice, model)
         ece, bins = calibration(p, h)
         worst = max(abs(rate - conf) for conf, rate, n in bins if n >= 20)
-        print(f"{label}: {len(p)} cases, hit rate {h.mean():.3f}, mean top probability {p.mean():.3f}, "
-              f"ECE {ece:.3f}, worst bin (n >= 20) {worst:.3f}")
+        print(
+            f"{label}: {len(p)} cases, hit rate {h.mean():.3f}, mean top probability {p.mean():.3f}, "
+            f"ECE {ece:.3f}, worst bin (n >= 20) {worst:.3f}"
+        )
         for conf, rate, n in bins:
             print(f"    confidence {conf:.3f}  hit rate {rate:.3f}  n = {n}")
     for label, lattice in (("tilt and steps only", False), ("tilt, steps, lattice", True)):
         wrong = flagged(FOREIGN, args.cases // 2, args.seed + 1, MatchModel(), lattice)
         right = flagged([(m, m) for m, _ in FOREIGN], args.cases // 2, args.seed + 2, MatchModel(), lattice)
-        print(f"fit check, {label}: flags {wrong:.1%} of measurements of a structure not among the candidates, "
-              f"{right:.1%} of measurements of the right structure")
+        print(
+            f"fit check, {label}: flags {wrong:.1%} of measurements of a structure not among the candidates, "
+            f"{right:.1%} of measurements of the right structure"
+        )
     print(f"{time.perf_counter() - t0:.0f} s")
 
 

@@ -48,8 +48,11 @@ def test_rectangle_is_not_taken_for_the_square_net(crystal):
     report = match(crystal("fcc:Cu"), m, top=3)
     assert report.candidates[0].hkl == (0, 1, 1), report.verdict
     assert report.fit.fits
-    square = next(r for r in report.candidates + tuple(
-        score(candidate_table(crystal("fcc:Cu"), max_index=3), m).candidates) if r.hkl == (0, 0, 1))
+    square = next(
+        r
+        for r in report.candidates + tuple(score(candidate_table(crystal("fcc:Cu"), max_index=3), m).candidates)
+        if r.hkl == (0, 0, 1)
+    )
     assert square.probability < 0.01
 
 
@@ -73,14 +76,24 @@ def test_half_cell_steps_on_srtio3_say_both_terminations(crystal):
 def test_nothing_fits_is_said_first(crystal):
     # Cu (001) from a (001) mount cannot show 1.00 Å steps and a 5.0 Å square net (d = 1.8075 Å,
     # mesh 2.556 Å for a = 3.615 Å): the verdict must say that no candidate fits.
-    m = Measurement(mount=(0, 0, 1), tilt=V(0.0, 0.5), spacings=(V(5.0, 0.05), V(5.0, 0.05)), row_angle=V(90, 1),
-                    steps=(V(1.0, 0.03), V(1.01, 0.03), V(0.99, 0.03)))
+    m = Measurement(
+        mount=(0, 0, 1),
+        tilt=V(0.0, 0.5),
+        spacings=(V(5.0, 0.05), V(5.0, 0.05)),
+        row_angle=V(90, 1),
+        steps=(V(1.0, 0.03), V(1.01, 0.03), V(0.99, 0.03)),
+    )
     report = match(crystal("fcc:Cu"), m, top=3)
     assert not report.fit.fits
     assert report.verdict.startswith("No candidate explains the measurements")
     assert any("corrugation" in c for c in report.fit.causes) and any("step" in c for c in report.fit.causes)
-    good = Measurement(mount=(0, 0, 1), tilt=V(0.0, 0.5), spacings=(V(2.556, 0.05), V(2.556, 0.05)),
-                       row_angle=V(90, 2), steps=(V(1.81, 0.05), V(3.61, 0.08)))
+    good = Measurement(
+        mount=(0, 0, 1),
+        tilt=V(0.0, 0.5),
+        spacings=(V(2.556, 0.05), V(2.556, 0.05)),
+        row_angle=V(90, 2),
+        steps=(V(1.81, 0.05), V(3.61, 0.08)),
+    )
     assert match(crystal("fcc:Cu"), good, top=1).fit.fits
 
 
@@ -139,8 +152,9 @@ def test_probabilities_are_calibrated_on_geometric_cases(crystal, lattice):
     probs, hits = [], []
     for spec in ("rocksalt:Na,Cl", "zincblende:Ga,As", "perovskite:Sr,Ti,O", "bcc:W"):
         c = crystal(spec)
-        table = candidate_table(c, mount=(0, 0, 1), max_index=3, reconstructions=False,
-                                model=MatchModel(flat_prior=True))
+        table = candidate_table(
+            c, mount=(0, 0, 1), max_index=3, reconstructions=False, model=MatchModel(flat_prior=True)
+        )
         faces = sorted({x.hkl for x in table.candidates})
         for _ in range(40):
             hkl = faces[int(rng.integers(len(faces)))]
@@ -157,8 +171,11 @@ def test_fit_check_flags_a_structure_not_among_the_candidates(crystal):
     # constants 15-60 % apart): at least 90 % must be flagged; of the right structure, few.
     rng = np.random.default_rng(3)
     wrong = right = total = 0
-    for measured, candidates in (("fcc:Cu", "rocksalt:Na,Cl"), ("bcc:W", "perovskite:Sr,Ti,O"),
-                                 ("perovskite:Sr,Ti,O", "diamond:Si")):
+    for measured, candidates in (
+        ("fcc:Cu", "rocksalt:Na,Cl"),
+        ("bcc:W", "perovskite:Sr,Ti,O"),
+        ("perovskite:Sr,Ti,O", "diamond:Si"),
+    ):
         source = crystal(measured)
         faces = [f.hkl for f in distinct_faces(source, 3)]
         other = candidate_table(crystal(candidates), mount=(0, 0, 1), max_index=3, reconstructions=False)
