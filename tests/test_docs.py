@@ -26,5 +26,5 @@ def test_every_default_is_in_the_settings_table():
 
 
 def test_the_two_setup_commands_are_in_the_readme():
-    assert 'pip install . && termination match --demo' in README
+    assert "pip install . && termination match --demo" in README
     assert 'pip install -e ".[test]" && python -m pytest -q' in README
