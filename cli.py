@@ -40,6 +40,7 @@ from termination.defaults import (
     SYMPREC_ANGSTROM,
     UNIT_RATIO,
 )
+from termination.identification.model import MatchModel
 
 app = typer.Typer(
     add_completion=False,
@@ -651,6 +652,18 @@ def match(
         ),
     ] = None,
     charge: Charge = None,
+    mount_sigma: Annotated[
+        float,
+        typer.Option(
+            "--mount-sigma",
+            metavar="DEG",
+            help="How far the sample may sit off its mount face, added in quadrature to the tilt's sigma, degrees.",
+        ),
+    ] = MatchModel().mount_sigma_deg,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
     flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
     no_reconstructions: Annotated[
         bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")
@@ -670,7 +683,6 @@ def match(
     from termination.errors import MeasurementError
     from termination.identification.likelihood import match as run_match
     from termination.identification.measurement import Measurement, merge, parse_value, read_measurement, read_steps
-    from termination.identification.model import MatchModel
 
     if demo:
         from termination.structures import bundled

@@ -23,6 +23,7 @@ BOTTOM = {
     "termination.units",
     "termination.arrays",
     "termination.outputs",
+    "termination.inputs",
 }
 # The leaves of the package: constants, type aliases and unit tags that import nothing of ours.
 LEAVES = {"termination.defaults", "termination.units", "termination.arrays", "termination.errors"}
