@@ -415,14 +415,16 @@ def _face_terminations(
     # Renumber the layers so that layer 0 is the top layer of T1, and measure depths from it.
     ref = raw[order[0]].k
     renumber = [(k - ref) % nl for k in range(nl)]
-    layers = [None] * nl
-    for k in range(nl):
-        layers[renumber[k]] = Layer(
+    by_new = sorted(range(nl), key=lambda k: renumber[k])
+    layers = [
+        Layer(
             height=float(centres[k]),
             depth=float((centres[ref] - centres[k]) % d) if k != ref else 0.0,
             composition=comps[k],
             atoms=tuple(members[k]),
         )
+        for k in by_new
+    ]
     cuts = tuple(
         sorted(
             (
