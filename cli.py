@@ -60,13 +60,15 @@ app = typer.Typer(
 #: Options that take a face: three integers H K L, or four H K I L (Miller-Bravais).
 FACE_OPTIONS = ("--plane", "--mount")
 _INTEGER = re.compile(r"[+-]?\d+")
+_INTEGERS = re.compile(r"\s*[+-]?\d+(\s+[+-]?\d+)+\s*")
 
 
 def _join_face_values(args: list[str]) -> list[str]:
     """The command line with the three or four integers after each face option joined into one value.
 
     A face option takes a variable number of values, which the option parser
-    cannot: ``--mount 1 0 -1 0`` becomes ``--mount "1 0 -1 0"``.
+    cannot: ``--mount 1 0 -1 0`` becomes ``--mount "1 0 -1 0"`` (the quoted
+    form is accepted as given).
     """
     out: list[str] = []
     i = 0
@@ -75,6 +77,10 @@ def _join_face_values(args: list[str]) -> list[str]:
         out.append(token)
         i += 1
         if token in FACE_OPTIONS:
+            if i < len(args) and _INTEGERS.fullmatch(args[i]):  # given as one quoted value, '1 0 -1 0'
+                out.append(args[i])
+                i += 1
+                continue
             values: list[str] = []
             while i < len(args) and len(values) < 4 and _INTEGER.fullmatch(args[i]):
                 values.append(args[i])

@@ -28,13 +28,13 @@ PoscarCell = tuple[FloatArray, FloatArray, list[str]]
 
 
 def is_poscar_name(filename: str) -> bool:
-    """True for names VASP and ASE treat as POSCAR files: POSCAR*, CONTCAR*, *.vasp, *.poscar.
+    """True for names ASE reads as POSCAR files: POSCAR or CONTCAR in the name, or *.vasp, *.poscar.
 
-    >>> is_poscar_name("POSCAR"), is_poscar_name("Zn.vasp"), is_poscar_name("x.cif")
-    (True, True, False)
+    >>> is_poscar_name("POSCAR"), is_poscar_name("Zn-CONTCAR"), is_poscar_name("Zn.vasp"), is_poscar_name("x.cif")
+    (True, True, True, False)
     """
     base = filename.replace("\\", "/").rsplit("/", 1)[-1]
-    return base.upper().startswith(("POSCAR", "CONTCAR")) or base.lower().endswith((".vasp", ".poscar"))
+    return "POSCAR" in base.upper() or "CONTCAR" in base.upper() or base.lower().endswith((".vasp", ".poscar"))
 
 
 def _floats(tokens: list[str], count: int, name: str, line: int, what: str) -> list[float]:
