@@ -117,7 +117,21 @@ def bond_graph(
     f = float(shell_factor)
     if not f >= 1:
         raise StructureError(f"shell factor must be at least 1, got {shell_factor}")
-    return _bond_graph(crystal, b, cutoff_angstrom, f)
+    return _bond_graph(_Geometry(crystal), b, cutoff_angstrom, f)
+
+
+class _Geometry:
+    """A crystal's atoms as a cache key: copies that differ only in their charges share one bond graph."""
+
+    def __init__(self, crystal: Crystal) -> None:
+        self.crystal = crystal
+        self.key = (crystal.lattice.tobytes(), crystal.positions.tobytes(), crystal.species)
+
+    def __hash__(self) -> int:
+        return hash(self.key)
+
+    def __eq__(self, other: object) -> bool:
+        return isinstance(other, _Geometry) and self.key == other.key
 
 
 def first_shells(pairs: Neighbours, window_angstrom: FloatArray, natoms: int) -> FloatArray:
@@ -175,7 +189,10 @@ def first_shells(pairs: Neighbours, window_angstrom: FloatArray, natoms: int) ->
 
 
 @lru_cache(maxsize=32)
-def _bond_graph(crystal: Crystal, bond_factor: float, cutoff_angstrom: float | None, shell_factor: float) -> BondGraph:
+def _bond_graph(
+    geometry: _Geometry, bond_factor: float, cutoff_angstrom: float | None, shell_factor: float
+) -> BondGraph:
+    crystal = geometry.crystal
     radii = np.array([covalent_radius(s) for s in crystal.species])
     former = np.array([s in UNIT_FORMERS for s in crystal.species])
     numbers = np.array([atomic_number(s) for s in crystal.species], dtype=np.int64)

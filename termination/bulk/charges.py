@@ -33,8 +33,15 @@ import numpy as np
 from termination.arrays import FloatArray, IntArray
 from termination.bulk.bonds import bond_graph
 from termination.bulk.crystal import Crystal
-from termination.bulk.elements import check_symbol, count_species, electronegativity, parse_element_values
-from termination.defaults import NEUTRALITY_TOL_E, RELATIVE_EPS
+from termination.bulk.elements import (
+    check_symbol,
+    count_species,
+    covalent_radius,
+    electronegativity,
+    parse_element_values,
+)
+from termination.bulk.neighbours import neighbour_pairs
+from termination.defaults import BOND_FACTOR, NEUTRALITY_TOL_E, RELATIVE_EPS
 from termination.errors import ChargeError
 from termination.units import E
 
@@ -314,6 +321,15 @@ def polyanion_guess(crystal: Crystal) -> tuple[FloatArray, str] | None:
     """
     species = crystal.species
     if any(el not in COMMON_OXIDATION_STATES for el in set(species)):
+        return None
+    # Most crystals have no two atoms of a polyanion former within bonding distance: a search
+    # among those atoms alone says so without the whole bond graph.
+    names = np.array(species)
+    close = False
+    for el in set(species) & set(POLYANION_VALENCE):
+        reach = BOND_FACTOR * 2 * covalent_radius(el)
+        close = close or len(neighbour_pairs(crystal.lattice, crystal.positions[names == el], reach)) > 0
+    if not close:
         return None
     graph = bond_graph(crystal)
     src, tgt = graph.source, graph.target
