@@ -11,6 +11,8 @@ COMMANDS = [
     ["structures"],
     ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "3", "--mount", "1", "1", "0"],
     ["planes", "hexaboride:La,B", "--max-index", "3"],
+    ["planes", "wurtzite:Zn,O", "--max-index", "3", "--mount", "1", "0", "-1", "0"],
+    ["terminations", "tetradymite:Bi,Se", "--plane", "0", "0", "0", "1"],
     ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
     ["terminations", "half-heusler:Ti,Ni,Sn", "--plane", "1", "1", "1"],
     ["polarity", "hexaboride:La,B", "--plane", "0", "0", "1"],
