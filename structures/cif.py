@@ -10,7 +10,8 @@ is an error that names the file and the field:
 - cell lengths positive and at most ``MAX_LENGTH_ANGSTROM``, angles in
   (0°, 180°) and together a cell of positive volume;
 - every atom type an element symbol, optionally with a charge (``Na``,
-  ``Fe3+``, ``O2-``);
+  ``Fe3+``, ``O2-``), and every element the sites name present in the
+  structure read;
 - the declared space group (number or Hermann-Mauguin symbol) known and
   consistent, and, after reading, not of higher symmetry than the atoms
   have (:func:`check_declared_symmetry`: a missing or wrong operation list
@@ -105,6 +106,13 @@ def _order(number: int) -> int:
             ops = spglib.get_symmetry_from_database(hall)
             return 0 if ops is None else len(ops["rotations"])
     raise StructureError(f"space-group number must lie between 1 and 230, got {number}")
+
+
+def _declared_elements(block: dict[str, Any]) -> set[str]:
+    """The elements the atom sites of a (checked) block name."""
+    key = "_atom_site_type_symbol" if "_atom_site_type_symbol" in block else "_atom_site_label"
+    types = block[key] if isinstance(block[key], list) else [block[key]]
+    return {check_symbol(re.match(r"^([A-Z][a-z]?)", str(t).strip()).group(1)) for t in types}  # type: ignore[union-attr]
 
 
 def _check_block(block: dict[str, Any], name: str) -> int | None:
@@ -217,6 +225,13 @@ def read_cif(text: str, name: str) -> CifCell:
         raise StructureError(
             f"{name}: partial occupancy ({site.species_string} at {np.round(site.frac_coords, 4).tolist()}) "
             "is not supported; give an ordered structure"
+        )
+    first = next(iter(declared))
+    missing = _declared_elements(blocks[first]) - {str(site.specie.symbol) for site in s}
+    if missing:
+        raise StructureError(
+            f"{name}: the atom sites of {', '.join(sorted(missing))} were dropped while reading "
+            f"({_warning_text(caught) or 'no reason given'})"
         )
     species: list[str] = []
     charges: list[float | None] = []
