@@ -174,7 +174,10 @@ class Prototype:
         return np.array([[a, 0.0, 0.0], [-a / 2, a * np.sqrt(3) / 2, 0.0], [0.0, 0.0, c]])
 
     def free_parameters(
-        self, x: float | None = None, given: Mapping[str, float] | None = None, tabulated: Mapping[str, float] = {}
+        self,
+        x: float | None = None,
+        given: Mapping[str, float] | None = None,
+        tabulated: Mapping[str, float] | None = None,
     ) -> dict[str, float]:
         """Free parameters to build with: ``given`` by name, else ``x`` (a single one), else tabulated, else default.
 
@@ -182,7 +185,7 @@ class Prototype:
         value out of its range.
         """
         names = [q.name for q in self.parameters]
-        chosen = {q.name: float(tabulated.get(q.name, q.default)) for q in self.parameters}
+        chosen = {q.name: float((tabulated or {}).get(q.name, q.default)) for q in self.parameters}
         if x is not None:
             if len(names) != 1:
                 what = "no free parameter" if not names else f"free parameters {', '.join(names)}"
@@ -214,7 +217,7 @@ class Prototype:
         *,
         c: float | None = None,
         parameters: Mapping[str, float] | None = None,
-        tabulated: Mapping[str, float] = {},
+        tabulated: Mapping[str, float] | None = None,
     ) -> Crystal:
         """Conventional cell of this prototype (a :class:`~termination.bulk.crystal.Crystal`).
 
@@ -230,7 +233,7 @@ class Prototype:
             Label of the crystal.
         parameters : mapping, optional
             Free parameters by name (fractional).
-        tabulated : mapping
+        tabulated : mapping, optional
             Free parameters of a tabulated compound, used where none is given.
         """
         symbols = [check_symbol(e) for e in elements]

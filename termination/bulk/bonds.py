@@ -63,7 +63,7 @@ class BondGraph:
         True for bonds between two unit-forming non-metals (B-B, C-O, Si-O,
         ...): bonds inside polyanions and clusters that a cleave keeps intact.
     bond_factor : float
-        Pairs closer than this times the sum of covalent radii were bonded.
+        The radius-rule factor the graph was built with.
     cutoff_angstrom : float or None
         The fixed cutoff that replaced the radius rule, Å.
     """
@@ -95,12 +95,14 @@ def bond_graph(
     ----------
     crystal : Crystal
     bond_factor : float
-        Pairs closer than ``bond_factor * (r_i + r_j)`` are bonded.
+        Elements A and B bond when one of their first-shell contacts is closer
+        than ``bond_factor * (r_A + r_B)`` (module notes).
     cutoff_angstrom : float, optional
         Fixed bond cutoff in Å; replaces the radius rule when given.
     shell_factor : float
-        First-shell width relative to each atom's nearest-neighbour distance
-        (``inf`` switches the shell rule off).
+        Window of the first-shell search relative to each atom's
+        nearest-neighbour distance (``inf`` switches the shell rule off and
+        leaves the radius rule alone).
 
     Returns
     -------
