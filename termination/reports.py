@@ -42,7 +42,7 @@ from termination.surface.reconstructions import CRITERION, Matrix2, Reconstructi
 from termination.surface.slab import SlabDescription
 from termination.surface.steps import StepHeights
 from termination.surface.terminations import Termination, TerminationRef, face_terminations
-from termination.units import ANGSTROM, DEG, EV, PER_NM2
+from termination.units import ANGSTROM, DEG, EV, PER_NM2, SECOND
 
 if TYPE_CHECKING:
     from termination.imaging.analysis import HeightMapAnalysis
@@ -771,7 +771,8 @@ class ScreenReport:
 
     ``structures`` were found, ``skipped`` already in the output (resumed),
     ``screened`` done in this run, of which ``failed`` gave an error row;
-    ``rows`` counts the rows written (or listed in ``results``).
+    ``rows`` counts the rows written (or listed in ``results``);
+    ``wall_time`` is the run's duration in seconds.
     """
 
     structures: int
@@ -784,7 +785,7 @@ class ScreenReport:
     max_index: int
     max_cell: int
     workers: int
-    seconds: float
+    wall_time: float = field(metadata=SECOND)
     results: tuple[ScreenRow, ...] = ()
 
 
@@ -921,8 +922,9 @@ def slab_report(
     SlabReport
     """
     from termination.outputs import check_outputs, write_bytes
-    from termination.surface.slab import build_slab, describe_slab, slab_bytes, slab_format
+    from termination.surface.slab import build_slab, check_slab_size, describe_slab, slab_bytes, slab_format
 
+    check_slab_size(layers, vacuum_angstrom)
     check_outputs([out], inputs, force=force, error=PlaneError)
     used_format = None if out is None else slab_format(out, fmt)  # a bad format fails before the work
     wants_cell = cell is not None or pattern is not None

@@ -487,7 +487,7 @@ def screen(
         max_index=settings.max_index,
         max_cell=settings.max_cell,
         workers=n_workers if executor is not None else 1,
-        seconds=time.perf_counter() - start,
+        wall_time=time.perf_counter() - start,
         results=tuple(kept),
     )
 

@@ -48,7 +48,16 @@ from termination.units import ANGSTROM, ANGSTROM2, E_ANGSTROM, E_PER_ANGSTROM, E
 if TYPE_CHECKING:
     from ase import Atoms
 
-__all__ = ["SlabDescription", "SlabLayer", "build_slab", "describe_slab", "slab_bytes", "slab_format", "slab_stack"]
+__all__ = [
+    "SlabDescription",
+    "SlabLayer",
+    "build_slab",
+    "check_slab_size",
+    "describe_slab",
+    "slab_bytes",
+    "slab_format",
+    "slab_stack",
+]
 
 #: How close (Å) an atom of a reconstruction pattern must be to a slab atom to be that atom.
 _MATCH_TOL_ANGSTROM = 1e-4
@@ -116,7 +125,8 @@ class SlabDescription:
     layers: tuple[SlabLayer, ...]
 
 
-def _check_size(layers: int, vacuum_angstrom: float) -> tuple[int, float]:
+def check_slab_size(layers: int, vacuum_angstrom: float) -> tuple[int, float]:
+    """``layers`` and ``vacuum_angstrom`` checked: a whole number of repeat units and a finite vacuum, Å."""
     try:
         n = int(layers)
     except (TypeError, ValueError):
@@ -242,7 +252,7 @@ def build_slab(
     from ase import Atoms
     from ase.build import make_supercell
 
-    n_layers, vacuum = _check_size(layers, vacuum_angstrom)
+    n_layers, vacuum = check_slab_size(layers, vacuum_angstrom)
     ft = face if face is not None else face_terminations(crystal, hkl, **termination_options)
     mesh = np.asarray(ft.atoms.mesh_inplane, dtype=float)
     matrix = np.eye(2, dtype=np.int64)
