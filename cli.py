@@ -711,12 +711,14 @@ def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, int, Any
     if scheduler is not None:
         if workers is not None:
             raise StructureError("give --workers or --scheduler, not both: the cluster has its own workers")
+        import importlib
+
         try:
-            from distributed import Client
+            distributed: Any = importlib.import_module("distributed")  # an optional extra, untyped here
         except ImportError:
             raise StructureError("--scheduler needs dask.distributed: pip install 'termination[dask]'") from None
         try:
-            client = Client(scheduler, timeout=30)
+            client = distributed.Client(scheduler, timeout=30)
         except Exception as exc:
             raise StructureError(f"cannot reach the Dask scheduler at {scheduler}: {_first_line(exc)}") from None
         n = max(1, sum(client.nthreads().values()))

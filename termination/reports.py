@@ -10,8 +10,10 @@ the JSON Schemas are generated.
 
 from __future__ import annotations
 
+import os
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any, SupportsFloat
 
 from termination.bulk.charges import ChargeAssignment, with_formal_charges
 from termination.bulk.crystal import Crystal
@@ -244,7 +246,7 @@ def planes_report(
                 weighted_bonds_per_nm2=by_face[v.hkl][2],
                 polar=by_face[v.hkl][0].polar,
             )
-            for v in window_variants(crystal, m, lo, hi, faces=faces)
+            for v in window_variants(crystal, mount, lo, hi, faces=faces)
         )
         bounds = (lo, hi)
     return PlanesReport(summarise_structure(crystal), m, int(max_index), tuple(rows), assignment, bounds, window)
@@ -690,7 +692,7 @@ def screen_rows(
     max_index: int = MAX_INDEX,
     max_cell: int = MAX_CELL,
     use_pymatgen: bool = False,
-    termination_options=None,
+    termination_options: Mapping[str, Any] | None = None,
 ) -> tuple[ScreenRow, ...]:
     """The rows of one structure in ``termination screen``: one per distinct face up to ``max_index``.
 
@@ -868,7 +870,7 @@ def select_reconstruction(
 
 def slab_report(
     crystal: Crystal,
-    hkl,
+    hkl: Iterable[SupportsFloat],
     termination: str,
     *,
     cell: str | None = None,
@@ -876,13 +878,13 @@ def slab_report(
     layers: int = SLAB_LAYERS,
     vacuum_angstrom: float = SLAB_VACUUM_ANGSTROM,
     symmetric: bool = False,
-    charges=None,
+    charges: Mapping[str, float] | None = None,
     max_cell: int = MAX_CELL,
-    out=None,
+    out: str | os.PathLike[str] | None = None,
     fmt: str | None = None,
     force: bool = False,
-    inputs=(),
-    termination_options=None,
+    inputs: Iterable[str | os.PathLike[str] | None] = (),
+    termination_options: Mapping[str, Any] | None = None,
 ) -> SlabReport:
     """Build a slab of one termination (:func:`termination.surface.slab.build_slab`), describe it, write it.
 

@@ -658,12 +658,6 @@ def _window(r: Any, wide: bool) -> list[Block]:
     return out + _caution(r.structure)
 
 
-def _short(name: str, width: int = 24) -> str:
-    """A structure's name for a narrow column: its file name, shortened in the middle if still too long."""
-    base = name.replace("\\", "/").rsplit("/", 1)[-1] or name
-    return base if len(base) <= width else base[: width // 2 - 1] + "…" + base[-(width // 2) :]
-
-
 def _screen(r: Any, wide: bool) -> list[Block]:
     per = r.wall_time / r.screened if r.screened else 0.0
     runner = f"{r.workers} worker{'s' if r.workers != 1 else ''}"
@@ -676,35 +670,40 @@ def _screen(r: Any, wide: bool) -> list[Block]:
         Text(f"{r.wall_time:.1f} s with {runner}: {per:.3f} s per structure.", "dim"),
     ]
     good = [row for row in r.results if row.error is None]
-    if good:
-        cols: list[str | tuple[str, str]] = [("structure", "left"), ("face", "left"), "rank", "terms"]
-        cols += ["step (Å)", "polar", ("Tasker", "left"), ("best cell", "left")]
-        if wide:
-            cols = [("structure", "left"), ("formula", "left"), *cols[1:], "d (Å)", "bonds/nm²", ("charges", "left")]
+    cols: list[str | tuple[str, str]] = [("face", "left"), "rank", "terms", "step (Å)", "polar", ("Tasker", "left")]
+    cols += [("best cell", "left")]
+    if wide:
+        cols += ["d (Å)", "bonds/nm²", ("compensation", "left")]
+    groups: dict[str, list[Any]] = {}
+    for row in good:
+        groups.setdefault(row.structure, []).append(row)
+    for name, members in groups.items():
         rows = []
-        for row in good:
+        for row in members:
             tasker = "/".join(t.tasker_type or "—" for t in row.terminations) if row.polar is not None else "—"
-            cells = "/".join(t.cell for t in row.terminations if t.cell) or "—"
-            line = [_short(row.structure, 40 if wide else 18)]
-            if wide:
-                line += [row.formula or ""]
-            line += [
+            line = [
                 hkl_text(row.hkl),
                 str(row.cleavage_rank),
                 str(row.termination_count),
                 f"{row.smallest_step:.3f}",
                 "—" if row.polar is None else ("yes" if row.polar else "no"),
                 tasker,
-                cells,
+                "/".join(t.cell for t in row.terminations if t.cell) or "—",
             ]
             if wide:
-                line += [f"{row.d:.4f}", f"{row.weighted_bonds_per_nm2:.2f}", row.formal_charges or "—"]
+                comp = ", ".join("—" if t.compensation is None else _signed(t.compensation) for t in row.terminations)
+                line += [f"{row.d:.4f}", f"{row.weighted_bonds_per_nm2:.2f}", comp if row.polar is not None else "—"]
             rows.append(line)
-        out.append(_table("Faces of each structure (rank 1 cleaves most easily)", cols, rows))
+        first = members[0]
+        title = f"{name}: {first.formula}, space group {first.spacegroup_number}"
+        out.append(_table(title, cols, rows))
+        if wide:
+            out.append(Text(f"Charges {first.formal_charges or 'unknown'}.", "dim"))
+    if good:
         out.append(
             Text(
-                "Tasker type of each inequivalent termination, '/'-separated; best cell: the best compensating "
-                "cell of each polar termination.",
+                "rank 1 cleaves most easily (fewest broken bonds per area); Tasker type of each inequivalent "
+                "termination, '/'-separated; best cell: the best compensating cell of each polar termination.",
                 "dim",
             )
         )
@@ -714,12 +713,16 @@ def _screen(r: Any, wide: bool) -> list[Block]:
     if r.out is not None:
         out.append(Text(f"Rows in {r.out} ({'JSON Lines' if r.format == 'jsonl' else 'CSV'})."))
     elif good and not wide:
-        out.append(Text("--wide adds formula, d, bond density and charges; --out FILE writes every column.", "dim"))
+        out.append(Text("--wide adds d, bond density, compensation and charges; --out FILE writes every row.", "dim"))
     return out
 
 
 def _dipole(value: float, digits: int) -> str:
     return "0" if abs(value) < 0.5 * 10.0**-digits else f"{value:+.{digits}f}"
+
+
+def _signed(f: float) -> str:
+    return "0" if f == 0 else ("-" if f < 0 else "+") + fraction_text(f)
 
 
 def _excess_text(excess: Any) -> str:

@@ -21,7 +21,7 @@ from __future__ import annotations
 import os
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, SupportsFloat
+from typing import TYPE_CHECKING, Any, SupportsFloat, cast
 
 import numpy as np
 
@@ -250,8 +250,9 @@ def build_slab(
     ('O7Sr3Ti2', 17.81)
     """
     from ase import Atoms
-    from ase.build import make_supercell
+    from ase.build import make_supercell as ase_make_supercell
 
+    make_supercell: Any = ase_make_supercell  # ASE is untyped
     n_layers, vacuum = check_slab_size(layers, vacuum_angstrom)
     ft = face if face is not None else face_terminations(crystal, hkl, **termination_options)
     mesh = np.asarray(ft.atoms.mesh_inplane, dtype=float)
@@ -277,7 +278,7 @@ def build_slab(
     cell2[2, 2] = float(depth.max() - depth.min()) + 2.0 * room
     z_top = float(depth.max()) + room  # height of the top layer in the temporary cell
     positions = np.column_stack([inplane, z_top - depth])
-    slab = Atoms(symbols=list(species), positions=positions, cell=cell2, pbc=True)
+    slab: Any = Atoms(symbols=list(species), positions=positions, cell=cell2, pbc=True)
     if charges is not None:
         slab.set_initial_charges(np.asarray(charges, dtype=float))
     if reconstruction is not None:
@@ -289,7 +290,7 @@ def build_slab(
             )
         big: Any = make_supercell(slab, _matrix3(matrix), wrap=True)
         slab = _apply_pattern(big, reconstruction, ft, flip, z_top)
-    return _finish(slab, vacuum, ft, t.label, n_layers, symmetric, reconstruction)
+    return cast("Atoms", _finish(slab, vacuum, ft, t.label, n_layers, symmetric, reconstruction))
 
 
 def _matrix3(matrix: Any) -> Any:
@@ -312,7 +313,7 @@ def _z_flip(slab: Any, symprec: float) -> tuple[FloatArray, FloatArray] | None:
 
     lattice = np.asarray(slab.cell, dtype=float)
     frac = slab.get_scaled_positions(wrap=True)
-    found = spglib.get_symmetry((lattice, frac, _types(slab)), symprec=symprec)
+    found = spglib.get_symmetry((lattice.tolist(), frac.tolist(), _types(slab)), symprec=symprec)
     if found is None:
         return None
     for rot, trans in zip(found["rotations"], found["translations"]):
@@ -372,7 +373,7 @@ def _apply_pattern(
         if i is None:
             raise StructureError(f"{where}: the added {sp} at {np.round(xyz, 3).tolist()} continues no slab atom")
         new_q.append(charges[i])
-    added = Atoms(symbols=species, positions=targets, cell=big.cell, pbc=True)
+    added: Any = Atoms(symbols=species, positions=targets, cell=big.cell, pbc=True)
     added.set_initial_charges(np.asarray(new_q, dtype=float))
     out: Any = big + added
     return out
