@@ -691,8 +691,9 @@ def _screen_progress() -> Any:
             MofNCompleteColumn(),
             Rate(),
             TimeElapsedColumn(),
-            TextColumn("left"),
+            TextColumn("elapsed,"),
             TimeRemainingColumn(),
+            TextColumn("left"),
             console=Console(stderr=True),
             transient=True,
         ) as progress:
