@@ -241,3 +241,23 @@ def test_cells_are_chosen_by_wood_notation_matrix_or_rank():
     for text in ("(2×1)", "2x1", "(2 x 1)", "2 0 0 1"):
         assert select_reconstruction(recs, text).matrix == ((2, 0), (0, 1))
     assert select_reconstruction(recs, "c(4x2)").wood == "c(4×2)"
+
+
+def test_an_adatom_pattern_adds_the_sites_one_period_up():
+    # Hexaboride (1 1 2), termination B2'': compensation +1/2, realised by adding top sites (the bulk continued).
+    from collections import Counter
+
+    c = charged("hexaboride:La,B", 4.157, 0.1993)
+    ft = face_terminations(c, (1, 1, 2))
+    tp = termination_polarity(c, ft, "B2''", max_cell=2)
+    assert tp.compensation == pytest.approx(0.5)
+    rec = next(r for r in tp.reconstructions if r.mode == "add")
+    plain = describe_slab(build_slab(c, (1, 1, 2), "B2''", layers=2, reconstruction=None), c)
+    slab = build_slab(c, (1, 1, 2), "B2''", layers=2, reconstruction=rec)
+    info = describe_slab(slab, c)
+    cells = abs(round(np.linalg.det(np.array(rec.matrix))))
+    added = Counter(info.composition) - Counter({el: n * cells for el, n in plain.composition.items()})
+    assert dict(added) == dict(Counter(rec.changed_atoms_species))
+    # The net charge of the added sites is the compensating charge dq = mu / d per 1x1 cell (Tasker picture).
+    assert info.charge - plain.charge * cells == pytest.approx(tp.compensating_charge * cells)
+    assert info.layers[0].z > plain.layers[0].z  # the adatoms sit above the old top layer
