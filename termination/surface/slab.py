@@ -238,8 +238,8 @@ def build_slab(
     -------
     ase.Atoms
         Periodic in all three directions (the vacuum separates the slabs).
-        ``info`` holds 'hkl', 'termination', 'layers', 'symmetric' and
-        'reconstruction' (the cell matrix or None).
+        ``info`` holds 'hkl', 'termination', 'layers', 'symmetric' and, with
+        a reconstruction, 'reconstruction' (its matrix in mesh units).
 
     Examples
     --------
@@ -398,13 +398,9 @@ def _finish(
     slab.wrap(pbc=(True, True, False))
     order = np.lexsort((slab.positions[:, 1], slab.positions[:, 0], -np.round(slab.positions[:, 2], 6)))
     slab = slab[order]  # top layer first, deterministic
-    slab.info.update(
-        hkl=tuple(int(v) for v in ft.face.hkl),
-        termination=label,
-        layers=layers,
-        symmetric=symmetric,
-        reconstruction=None if rec is None else [list(r) for r in rec.matrix],
-    )
+    slab.info.update(hkl=tuple(int(v) for v in ft.face.hkl), termination=label, layers=layers, symmetric=symmetric)
+    if rec is not None:  # writers spell a missing value badly, so 1x1 slabs carry no key
+        slab.info["reconstruction"] = [list(r) for r in rec.matrix]
     return slab
 
 
