@@ -34,6 +34,8 @@ from termination.defaults import (
     MAX_INDEX,
     MAX_MULTIPLE,
     MIN_STEP_ANGSTROM,
+    SLAB_LAYERS,
+    SLAB_VACUUM_ANGSTROM,
     SPOT_THRESHOLD,
     SYMPREC_ANGSTROM,
     UNIT_RATIO,
@@ -206,7 +208,7 @@ def render(command: str, record: Any, json_out: bool, wide: bool = False) -> Non
 
     from termination.tables import Table, Text, document, table_width
 
-    console = Console(highlight=False)
+    console = Console(highlight=False, emoji=False)  # a name such as bad:X: is text, not an emoji code
     styles = {"plain": "", "bold": "bold", "dim": "dim", "warning": "yellow"}
     for block in document(record, wide=wide):
         if isinstance(block, Text):
@@ -221,7 +223,7 @@ def render(command: str, record: Any, json_out: bool, wide: bool = False) -> Non
             table.add_row(*row)
         # Never cut a number: a table wider than the terminal is printed at its own width.
         width = max(console.width, table_width(block))
-        Console(highlight=False, width=width).print(table)
+        Console(highlight=False, emoji=False, width=width).print(table)
 
 
 def _triple(values: tuple[int, int, int] | None) -> tuple[int, int, int] | None:
@@ -289,6 +291,15 @@ def planes(
     max_index: MaxIndex = MAX_INDEX,
     mount: Mount = None,
     charge: Charge = None,
+    tilt_window: Annotated[
+        tuple[float, float] | None,
+        typer.Option(
+            "--tilt-window",
+            metavar="MIN MAX",
+            help="With --mount: every variant of every face tilted MIN to MAX degrees, by tilt (cleave planning).",
+            show_default=False,
+        ),
+    ] = None,
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
@@ -299,12 +310,10 @@ def planes(
     from termination.reports import planes_report
 
     crystal = _load(structure, a, x, symprec)
-    render(
-        "planes",
-        planes_report(crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge)),
-        json_out,
-        wide,
+    report = planes_report(
+        crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge), tilt_window=tilt_window
     )
+    render("planes", report, json_out, wide)
 
 
 @command()
@@ -663,6 +672,268 @@ def image(
             min_step_angstrom=min_step,
         )
     render("image", report, json_out, wide)
+
+
+def _screen_progress() -> Any:
+    """A rich progress bar on stderr for a screen: structures done, rate and time left."""
+    import contextlib
+
+    from rich.console import Console
+    from rich.progress import (
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        ProgressColumn,
+        TextColumn,
+        TimeElapsedColumn,
+        TimeRemainingColumn,
+    )
+    from rich.text import Text as RichText
+
+    class Rate(ProgressColumn):
+        def render(self, task: Any) -> RichText:
+            speed = task.finished_speed or task.speed
+            return RichText("—/s" if speed is None else f"{speed:.2f}/s")
+
+    @contextlib.contextmanager
+    def bar() -> Any:
+        with Progress(
+            TextColumn("screening"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            Rate(),
+            TimeElapsedColumn(),
+            TextColumn("elapsed,"),
+            TimeRemainingColumn(),
+            TextColumn("left"),
+            console=Console(stderr=True),
+            transient=True,
+        ) as progress:
+            task = progress.add_task("screening", total=None)
+            yield lambda done, total: progress.update(task, completed=done, total=total)
+
+    return bar()
+
+
+def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, int, Any]:
+    """(executor or None, number of workers, thing to close): a Dask client's executor, a process pool, or none."""
+    import os
+
+    from termination.errors import StructureError
+
+    if scheduler is not None:
+        if workers is not None:
+            raise StructureError("give --workers or --scheduler, not both: the cluster has its own workers")
+        import importlib
+
+        try:
+            distributed: Any = importlib.import_module("distributed")  # an optional extra, untyped here
+        except ImportError:
+            raise StructureError("--scheduler needs dask.distributed: pip install 'termination[dask]'") from None
+        try:
+            client = distributed.Client(scheduler, timeout=30)
+        except Exception as exc:
+            raise StructureError(f"cannot reach the Dask scheduler at {scheduler}: {_first_line(exc)}") from None
+        n = max(1, sum(client.nthreads().values()))
+        return client.get_executor(), n, client
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    n = cores if workers is None else workers
+    if not 1 <= n <= 1024:
+        raise StructureError(f"--workers must be from 1 to 1024, got {n}")
+    if n == 1:
+        return None, 1, None
+    from concurrent.futures import ProcessPoolExecutor
+
+    pool = ProcessPoolExecutor(max_workers=n)
+    # Start the workers now, before the progress bar's thread exists (they are forked on POSIX).
+    for f in [pool.submit(os.getpid) for _ in range(n)]:
+        f.result()
+    return pool, n, pool
+
+
+@command()
+@one_line_errors("screen")
+def screen(
+    paths: Annotated[
+        list[str],
+        typer.Argument(
+            metavar="PATHS...",
+            help="Structure files, folders (searched for *.cif, POSCAR*, *.xyz, ...), glob patterns "
+            "(quoted: 'data/*.cif') or prototype specs.",
+            show_default=False,
+        ),
+    ],
+    out: Annotated[
+        str | None,
+        typer.Option(
+            "--out",
+            metavar="FILE",
+            help="Write the rows to FILE.jsonl (JSON Lines) or FILE.csv as they come.",
+            show_default=False,
+        ),
+    ] = None,
+    resume: Annotated[
+        bool, typer.Option("--resume", help="Continue --out: skip the structures already in it.")
+    ] = False,
+    force: Force = False,
+    workers: Annotated[
+        int | None,
+        typer.Option(
+            "--workers", metavar="N", help="Processes on this machine (default: all cores).", show_default=False
+        ),
+    ] = None,
+    scheduler: Annotated[
+        str | None,
+        typer.Option(
+            "--scheduler",
+            metavar="ADDRESS",
+            help="Run on a Dask distributed cluster, e.g. tcp://10.0.0.5:8786 (needs the dask extra).",
+            show_default=False,
+        ),
+    ] = None,
+    chunk_size: Annotated[
+        int | None,
+        typer.Option("--chunk-size", metavar="N", help="Structures per task (default: automatic).", show_default=False),
+    ] = None,
+    max_index: MaxIndex = MAX_INDEX,
+    max_cell: MaxCell = MAX_CELL,
+    pymatgen_charges: Annotated[
+        bool,
+        typer.Option("--pymatgen-charges", help="Ask pymatgen for charges when the file and the guess give none."),
+    ] = False,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
+    symprec: Symprec = SYMPREC_ANGSTROM,
+    json_out: Json = False,
+    wide: Wide = False,
+) -> None:
+    """Screen many structures: cleavage rank, terminations, steps, Tasker types and best cells per face."""
+    import contextlib
+
+    from termination.screening import screen as run_screen
+
+    executor, n, closer = _executor(workers, scheduler)
+    try:
+        with _screen_progress() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+            report = run_screen(
+                paths,
+                out=out,
+                resume=resume,
+                force=force,
+                executor=executor,
+                workers=n,
+                chunk_size=chunk_size,
+                progress=progress,
+                max_index=max_index,
+                max_cell=max_cell,
+                use_pymatgen=pymatgen_charges,
+                symprec=symprec,
+                termination_options=_termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio),
+            )
+    finally:
+        if closer is not None:
+            if hasattr(closer, "shutdown"):
+                closer.shutdown(cancel_futures=True)
+            else:
+                closer.close()
+    render("screen", report, json_out, wide)
+
+
+@command()
+@one_line_errors("slab")
+def slab(
+    structure: Structure,
+    plane: Plane = None,
+    termination: Annotated[
+        str | None,
+        typer.Option(
+            "--termination", metavar="LABEL", help="Top termination: label (SrO) or id (T2).", show_default=False
+        ),
+    ] = None,
+    cell: Annotated[
+        str | None,
+        typer.Option(
+            "--cell",
+            metavar="CELL",
+            help="Reconstruction cell as `polarity` lists it: 2x1, c(2x2), (sqrt3xsqrt3)R30, or its matrix '2 1 0 2'.",
+            show_default=False,
+        ),
+    ] = None,
+    pattern: Annotated[
+        int | None,
+        typer.Option(
+            "--pattern",
+            metavar="N",
+            help="The N-th listed cell (of those matching --cell), best first (default 1).",
+            show_default=False,
+        ),
+    ] = None,
+    layers: Annotated[
+        int, typer.Option("--layers", metavar="N", help="Repeat units (periods d) of the face.")
+    ] = SLAB_LAYERS,
+    vacuum: Annotated[
+        float, typer.Option("--vacuum", metavar="Å", help="Vacuum between the slab and its image, Å.")
+    ] = SLAB_VACUUM_ANGSTROM,
+    symmetric: Annotated[
+        bool, typer.Option("--symmetric", help="The termination (and the pattern) on the bottom too.")
+    ] = False,
+    output: Annotated[
+        str | None,
+        typer.Option(
+            "-o",
+            "--output",
+            metavar="FILE",
+            help="Write the slab with ASE (CIF, POSCAR, extended XYZ, ... by the name).",
+            show_default=False,
+        ),
+    ] = None,
+    fmt: Annotated[
+        str | None,
+        typer.Option("--format", metavar="FMT", help="ASE format name (cif, vasp, extxyz, ...).", show_default=False),
+    ] = None,
+    force: Force = False,
+    charge: Charge = None,
+    max_cell: MaxCell = MAX_CELL,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
+    a: LatticeA = None,
+    x: FreeX = None,
+    symprec: Symprec = SYMPREC_ANGSTROM,
+    json_out: Json = False,
+    wide: Wide = False,
+) -> None:
+    """A slab of one termination (and reconstruction cell) for a calculation, normal along z."""
+    import os
+
+    from termination.errors import StructureError
+    from termination.reports import slab_report
+
+    if termination is None:
+        raise StructureError("--termination LABEL is required (see `termination terminations`)")
+    hkl = _require_plane(plane)
+    crystal = _load(structure, a, x, symprec)
+    report = slab_report(
+        crystal,
+        hkl,
+        termination,
+        cell=cell,
+        pattern=pattern,
+        layers=layers,
+        vacuum_angstrom=vacuum,
+        symmetric=symmetric,
+        charges=_charges(charge),
+        max_cell=max_cell,
+        out=output,
+        fmt=fmt,
+        force=force,
+        inputs=[structure] if os.path.exists(structure) else [],
+        termination_options=_termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio),
+    )
+    render("slab", report, json_out, wide)
 
 
 # --------------------------------------------------------------------------- entry point

@@ -59,6 +59,23 @@ MAX_PATTERNS = 200_000
 #: Reconstruction cells kept per polar termination as candidates of ``match``.
 MAX_CELLS_PER_TERMINATION = 4
 
+# --------------------------------------------------------------------------- cleavage, screening and slabs
+
+#: Faces whose cheapest cuts differ by less than this share a cleavage rank, bonds per nm².
+CLEAVAGE_TIE_PER_NM2 = 1e-6
+#: Largest number of structures sent to a worker as one task of a screen.
+SCREEN_CHUNK = 16
+#: Repeat units (periods d) of the face in a slab.
+SLAB_LAYERS = 4
+#: Largest accepted number of repeat units in a slab.
+MAX_SLAB_LAYERS = 100
+#: Vacuum between a slab and its periodic image along the normal, Å.
+SLAB_VACUUM_ANGSTROM = 15.0
+#: Largest accepted vacuum, Å.
+MAX_VACUUM_ANGSTROM = 1000.0
+#: Largest slab built, atoms (checked before the slab is built).
+MAX_SLAB_ATOMS = 100_000
+
 # --------------------------------------------------------------------------- corrugation
 
 #: Decay length lambda of the depth weight exp(-depth/lambda), Å: the decay

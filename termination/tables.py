@@ -187,6 +187,8 @@ def _planes(r: Any, wide: bool) -> list[Block]:
     if wide:
         cols += ["area (Å²)"]
     cols += ["terms", "step (Å)", "polar"]
+    if r.tilt_window is not None:
+        return out + _window(r, wide)
     rows = []
     for f in r.faces:
         row = [hkl_text(f.hkl)]
@@ -611,6 +613,179 @@ def _image(r: Any, wide: bool) -> list[Block]:
     return out
 
 
+def _window(r: Any, wide: bool) -> list[Block]:
+    """The cleave-planning table of ``planes --tilt-window``: every variant inside the window, by tilt."""
+    lo, hi = r.tilt_window
+    cols: list[str | tuple[str, str]] = ["tilt (°)", ("variant", "left"), ("axis", "left"), ("face", "left"), "d (Å)"]
+    cols += ["cleave rank", "polar"]
+    if wide:
+        cols += ["bonds/nm²"]
+    rows = []
+    for w in r.window:
+        row = [
+            f"{w.tilt:.2f}",
+            hkl_text(w.tilt_variant),
+            "—" if w.tilt_axis is None else uvw_text(w.tilt_axis),
+            hkl_text(w.hkl),
+            f"{w.d:.4f}",
+            str(w.cleavage_rank),
+            "—" if w.polar is None else ("yes" if w.polar else "no"),
+        ]
+        if wide:
+            row += [f"{w.weighted_bonds_per_nm2:.2f}"]
+        rows.append(row)
+    title = f"Faces {lo:g}° to {hi:g}° from the mount {hkl_text(r.mount)}, up to index {r.max_index}, by tilt"
+    out: list[Block] = []
+    if rows:
+        out.append(_table(title, cols, rows))
+    else:
+        out.append(Text(f"{title}: none.", "bold"))
+    out.append(
+        Text(
+            "Every variant of every face in the window, with the axis [uvw] that tilts the mount onto it. "
+            "cleave rank: 1 = the face whose cheapest cut breaks the fewest bonds per area "
+            f"(among the {len(r.faces)} faces up to index {r.max_index}).",
+            "dim",
+        )
+    )
+    if r.charges is None:
+        out.append(Text("polar: unknown without formal charges; give --charge EL=Q.", "dim"))
+    else:
+        out.append(Text(f"Charges {r.charges.text} ({r.charges.method}).", "dim"))
+    if not wide:
+        out.append(Text("--wide adds the weighted broken-bond density; --json everything.", "dim"))
+    out.append(Text(SAFETY_NOTE, "dim"))
+    return out + _caution(r.structure)
+
+
+def _screen(r: Any, wide: bool) -> list[Block]:
+    per = r.wall_time / r.screened if r.screened else 0.0
+    runner = f"{r.workers} worker{'s' if r.workers != 1 else ''}"
+    out: list[Block] = [
+        Text(
+            f"Screened {r.screened} of {r.structures} structures ({r.skipped} already in the output), "
+            f"{r.failed} failed: {r.rows} rows, faces up to index {r.max_index}.",
+            "bold",
+        ),
+        Text(f"{r.wall_time:.1f} s with {runner}: {per:.3f} s per structure.", "dim"),
+    ]
+    good = [row for row in r.results if row.error is None]
+    cols: list[str | tuple[str, str]] = [("face", "left"), "rank", "terms", "step (Å)", "polar", ("Tasker", "left")]
+    cols += [("best cell", "left")]
+    if wide:
+        cols += ["d (Å)", "bonds/nm²", ("compensation", "left")]
+    groups: dict[str, list[Any]] = {}
+    for row in good:
+        groups.setdefault(row.structure, []).append(row)
+    for name, members in groups.items():
+        rows = []
+        for row in members:
+            tasker = "/".join(t.tasker_type or "—" for t in row.terminations) if row.polar is not None else "—"
+            line = [
+                hkl_text(row.hkl),
+                str(row.cleavage_rank),
+                str(row.termination_count),
+                f"{row.smallest_step:.3f}",
+                "—" if row.polar is None else ("yes" if row.polar else "no"),
+                tasker,
+                "/".join(t.cell for t in row.terminations if t.cell) or "—",
+            ]
+            if wide:
+                comp = ", ".join("—" if t.compensation is None else _signed(t.compensation) for t in row.terminations)
+                line += [f"{row.d:.4f}", f"{row.weighted_bonds_per_nm2:.2f}", comp if row.polar is not None else "—"]
+            rows.append(line)
+        first = members[0]
+        title = f"{name}: {first.formula}, space group {first.spacegroup_number}"
+        out.append(_table(title, cols, rows))
+        if wide:
+            out.append(Text(f"Charges {first.formal_charges or 'unknown'}.", "dim"))
+    if good:
+        out.append(
+            Text(
+                "rank 1 cleaves most easily (fewest broken bonds per area); Tasker type of each inequivalent "
+                "termination, '/'-separated; best cell: the best compensating cell of each polar termination.",
+                "dim",
+            )
+        )
+    for row in r.results:
+        if row.error is not None:
+            out.append(Text(f"{row.structure}: error: {row.error}", "warning"))
+    if r.out is not None:
+        out.append(Text(f"Rows in {r.out} ({'JSON Lines' if r.format == 'jsonl' else 'CSV'})."))
+    elif good and not wide:
+        out.append(Text("--wide adds d, bond density, compensation and charges; --out FILE writes every row.", "dim"))
+    return out
+
+
+def _dipole(value: float, digits: int) -> str:
+    return "0" if abs(value) < 0.5 * 10.0**-digits else f"{value:+.{digits}f}"
+
+
+def _signed(f: float) -> str:
+    return "0" if f == 0 else ("-" if f < 0 else "+") + fraction_text(f)
+
+
+def _excess_text(excess: Any) -> str:
+    return " ".join(f"{el}{v:+g}" for el, v in excess.items())
+
+
+def _slab(r: Any, wide: bool) -> list[Block]:
+    out = _structure(r.structure)
+    s = r.slab
+    sides = "top and bottom" if r.requested_symmetric else "top"
+    cell = "1×1" if r.cell is None else f"{r.cell}, {r.changed} site{'s' if r.changed != 1 else ''} {r.mode}d per side"
+    out.append(
+        Text(
+            f"Slab of {hkl_text(r.hkl)}: {r.termination.label} ({r.termination.id}) on {sides}, {r.layers} repeat "
+            f"unit{'s' if r.layers != 1 else ''}, cell {cell}",
+            "bold",
+        )
+    )
+    a, b, c = s.lattice
+    out.append(
+        Text(
+            f"cell a = ({a[0]:.4f}, {a[1]:.4f}, 0), b = ({b[0]:.4f}, {b[1]:.4f}, 0), c = (0, 0, {c[2]:.4f}) Å; "
+            f"{s.natoms} atoms; thickness {s.thickness:.3f} Å, vacuum {s.vacuum:.3f} Å"
+        )
+    )
+    units = f"{s.bulk_units:g}"
+    if s.stoichiometric:
+        out.append(Text(f"Stoichiometric: {composition_label(s.composition)} = {units} bulk formula units."))
+    else:
+        out.append(
+            Text(
+                f"Not stoichiometric: {composition_label(s.composition)} = {units} bulk formula units "
+                f"{_excess_text(s.excess)}."
+            )
+        )
+    if s.charge is None:
+        out.append(Text("Dipole: unknown without formal charges (give --charge EL=Q).", "dim"))
+    else:
+        out.append(
+            Text(
+                f"Formal charges {r.charges.text}: net charge {_charge(s.charge)} e, dipole {_dipole(s.dipole, 4)} e·Å "
+                f"per cell ({_dipole(s.dipole_per_area, 5)} e/Å) along the outward normal of the top."
+            )
+        )
+    out.append(
+        Text(
+            "Symmetric: yes, an operation of the slab maps its top onto its bottom."
+            if s.symmetric
+            else "Symmetric: no."
+        )
+    )
+    shown = len(s.layers) if wide else min(len(s.layers), 12)
+    rows = [[f"{la.z:.4f}", composition_label(la.composition)] for la in s.layers[:shown]]
+    out.append(_table("Layers, top first", ["z (Å)", ("atoms per cell", "left")], rows))
+    if shown < len(s.layers):
+        out.append(Text(f"{len(s.layers) - shown} more layers with --wide or --json.", "dim"))
+    for note in r.notes:
+        out.append(Text(f"Note: {note}.", "dim"))
+    for path in r.written:
+        out.append(Text(f"Wrote {path} ({r.format})."))
+    return out + _caution(r.structure)
+
+
 _RENDERERS = {
     "StructuresReport": _structures,
     "PlanesReport": _planes,
@@ -619,6 +794,8 @@ _RENDERERS = {
     "CorrugationReport": _corrugation,
     "MatchReport": _match,
     "ImageReport": _image,
+    "ScreenReport": _screen,
+    "SlabReport": _slab,
 }
 
 

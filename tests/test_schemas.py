@@ -20,6 +20,7 @@ RUNS = {
     "planes": [
         ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1"],
         ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1"],
+        ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1", "--tilt-window", "0", "60"],
     ],
     "terminations": [
         ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
@@ -29,6 +30,11 @@ RUNS = {
     "corrugation": [
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--weight", "Na=0.5"],
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na"],
+    ],
+    "screen": [["screen", "rocksalt:Na,Cl", "half-heusler:Ti,Ni,Sn", "bad:Xx", "--max-index", "1", "--workers", "1"]],
+    "slab": [
+        ["slab", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--termination", "Na", "--cell", "2x1", "--symmetric"],
+        ["slab", "half-heusler:Ti,Ni,Sn", "--plane", "0", "0", "1", "--termination", "T1", "--layers", "2"],
     ],
     "match": [
         ["match", "--demo"],
@@ -129,6 +135,7 @@ DIMENSIONLESS = {
     "p_value",
     "alpha",
     "fractions",
+    "bulk_units",
 }
 # Records whose numbers are all dimensionless (log-likelihood terms).
 DIMENSIONLESS_RECORDS = {"Terms"}

@@ -17,6 +17,10 @@ COMMANDS = [
     ["polarity", "zincblende:Ga,As", "--max-index", "1"],
     ["corrugation", "hexaboride:La,B", "--plane", "0", "0", "1"],
     ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--weight", "Na=0.5", "--depth", "4"],
+    ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "3", "--mount", "0", "0", "1", "--tilt-window", "40", "60"],
+    ["screen", "rocksalt:Na,Cl", "perovskite:Sr,Ti,O", "half-heusler:Ti,Ni,Sn", "--max-index", "2", "--workers", "1"],
+    ["slab", "perovskite:Sr,Ti,O", "--plane", "0", "1", "1", "--termination", "O2", "--cell", "2x1", "--layers", "8"],
+    ["slab", "hexaboride:La,B", "--plane", "0", "0", "1", "--termination", "B6", "--symmetric"],
     ["match", "--demo"],
     [
         "match",
