@@ -15,7 +15,9 @@ supercell N becomes N S.
 from __future__ import annotations
 
 import re
+from collections.abc import Iterable
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import cast
 
 import numpy as np
@@ -23,7 +25,7 @@ from numpy.typing import ArrayLike
 
 from termination.algebra.integer import row_basis
 from termination.arrays import FloatArray, IntArray
-from termination.defaults import FRACTIONAL_EPS, ZERO_EPS
+from termination.defaults import FRACTIONAL_EPS, MAX_USER_CELL, ZERO_EPS
 from termination.errors import PlaneError
 from termination.units import DEG
 
@@ -33,6 +35,7 @@ __all__ = [
     "canonical_hnf",
     "cell_matrix",
     "cell_notation",
+    "check_cells",
     "coset_index",
     "coset_representatives",
     "gauss_reduce",
@@ -263,8 +266,19 @@ def wood_notation(
     '(√3×√3)R30°'
     """
     hnf = canonical_hnf(matrix)
-    det = int(round(abs(np.linalg.det(hnf))))
     mesh = np.asarray(mesh_inplane, dtype=float)
+    key = tuple(int(v) for v in hnf.ravel())
+    return _wood_notation(key, tuple(float(v) for v in mesh.ravel()), float(angle_tol_degrees), float(length_rel_tol))
+
+
+@lru_cache(maxsize=4096)
+def _wood_notation(
+    hnf_key: tuple[int, ...], mesh_key: tuple[float, ...], angle_tol_degrees: float, length_rel_tol: float
+) -> Wood | None:
+    """:func:`wood_notation` of an HNF and a mesh given as flat tuples (cached: cells repeat across faces)."""
+    hnf = np.array(hnf_key, dtype=np.int64).reshape(2, 2)
+    mesh = np.array(mesh_key, dtype=float).reshape(2, 2)
+    det = int(round(abs(np.linalg.det(hnf))))
     rng = np.arange(-(2 * det + 1), 2 * det + 2)
     u = np.array(np.meshgrid(rng, rng, indexing="ij")).reshape(2, -1).T
     frac = u @ np.linalg.inv(hnf)
@@ -499,6 +513,29 @@ def parse_cell(text: str) -> CellSpec:
     if angle:
         label += f"R{_angle_text(angle)}°"
     return CellSpec(raw, label, None, m2, n2, angle, centred)
+
+
+def check_cells(cells: Iterable[str | CellSpec] | None, max_index: int = MAX_USER_CELL) -> tuple[CellSpec, ...]:
+    """Cells given as text or :class:`CellSpec`, parsed, bounded and without repeats, before any work.
+
+    A cell of more than ``max_index`` 1×1 cells is refused (PlaneError naming it).
+
+    >>> [c.label for c in check_cells(["2x1", "(2×1)", "c(2x2)"])]
+    ['(2×1)', 'c(2×2)']
+    """
+    out: list[CellSpec] = []
+    for c in cells or ():
+        spec = c if isinstance(c, CellSpec) else parse_cell(c)
+        if spec.matrix is not None:
+            (a, b), (p, q) = spec.matrix
+            size = abs(a * q - b * p)
+        else:
+            size = round(float(np.sqrt(spec.m2 * spec.n2)) / (2 if spec.centred else 1))
+        if size > max_index:
+            raise PlaneError(f"cell {spec.label} spans {size} 1×1 cells; at most {max_index} are accepted")
+        if spec.label not in [o.label for o in out]:
+            out.append(spec)
+    return tuple(out)
 
 
 def _scale_text(k2: int) -> str:

@@ -13,6 +13,7 @@ the union of their spots.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -43,8 +44,9 @@ def face_point_group(crystal: Crystal, face: Face) -> IntArray:
     -------
     (K, 2, 2) IntArray
         Distinct S with u -> u S (u a row of mesh coordinates): the
-        identity, the rotations by increasing angle, the mirrors.  Unlike :func:`termination.surface.symmetry.termination_operations`
-        it keeps the operations that shift the height: they relate a
+        identity, the rotations by increasing angle, the mirrors.  Unlike
+        :func:`termination.surface.symmetry.termination_operations` it
+        keeps the operations that shift the height: they relate a
         termination to its symmetry-equivalent copies one step away, whose
         terraces carry the rotated domains.
     """
@@ -72,8 +74,16 @@ def operation_text(operation: ArrayLike, mesh_inplane: ArrayLike) -> str:
     >>> operation_text([[0, 1], [-1, 0]], np.eye(2)), operation_text([[1, 0], [0, -1]], np.eye(2))
     ('rotated 90°', 'mirror at 0°')
     """
-    S = np.asarray(operation, dtype=float)
+    S = np.asarray(operation, dtype=np.int64)
     mesh = np.asarray(mesh_inplane, dtype=float)
+    return _operation_text(tuple(int(v) for v in S.ravel()), tuple(float(v) for v in mesh.ravel()))
+
+
+@lru_cache(maxsize=1024)
+def _operation_text(op_key: tuple[int, ...], mesh_key: tuple[float, ...]) -> str:
+    """:func:`operation_text` of flat tuples (cached: a face's few operations are described again and again)."""
+    S = np.array(op_key, dtype=float).reshape(2, 2)
+    mesh = np.array(mesh_key, dtype=float).reshape(2, 2)
     cart = np.linalg.inv(mesh) @ S @ mesh  # row vectors r -> r cart
     a = mesh[0] / np.linalg.norm(mesh[0])
     v = a @ cart

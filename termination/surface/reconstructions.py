@@ -47,7 +47,12 @@ from termination.defaults import (
 )
 from termination.errors import PlaneError
 from termination.surface.domains import cell_domains, face_point_group
-from termination.surface.electrostatics import COULOMB_EV_ANGSTROM, ewald_pair_matrix, ewald_slab_matrix
+from termination.surface.electrostatics import (
+    COULOMB_EV_ANGSTROM,
+    ewald_bulk_potential,
+    ewald_pair_matrix,
+    ewald_slab_matrix,
+)
 from termination.surface.layers import cluster_layers
 from termination.surface.symmetry import termination_operations
 from termination.surface.terminations import FaceTerminations, SurfaceAtoms
@@ -88,7 +93,7 @@ CRITERION = (
 
 #: Fourier components of the crystal's potential below the top layers must have decayed to this
 #: fraction at the bottom of the model slab (sets its thickness).
-_SLAB_DECAY = 1e-9
+_SLAB_DECAY = 1e-6
 
 
 @dataclass(frozen=True, eq=False)
@@ -686,7 +691,7 @@ def reconstructions(
 
     per 1×1 cell, minus the same for dq spread evenly over the top sites.
     V comes from a slab of the repeat unit, thick enough that the potential's
-    Fourier components from its bottom have decayed below 1e-9, whose bottom
+    Fourier components from its bottom have decayed below 1e-6, whose bottom
     layer carries -dq as a uniform charge (the opposite surface,
     compensated).  Any residual of a nearest cell is spread evenly over its
     top sites, so that every listed cell is compared at the same total
@@ -745,12 +750,11 @@ def _splits(det: int, groups: tuple[CompensationSites, ...], q: tuple[float, ...
     return out
 
 
-def _slab(ft: FaceTerminations, key: str, periods: int, dq: float, both: bool) -> tuple[FloatArray, FloatArray]:
+def _slab(ft: FaceTerminations, key: str, periods: int, dq: float) -> tuple[FloatArray, FloatArray]:
     """A slab of ``periods`` repeat units below termination ``key``: positions (s, 3: x, y, depth, Å), charges (s,).
 
-    Its bottom layer carries -dq per 1×1 cell, shared evenly by its atoms
-    (the opposite surface, compensated); with ``both`` its top layer carries
-    +dq too, so that the inside is free of the polar field (the bulk).
+    Its bottom layer carries -dq per 1×1 cell, shared evenly by its atoms:
+    the opposite surface, compensated.
     """
     ru = ft.repeat_unit(key)
     shift = np.asarray(ft.atoms.stack_inplane, dtype=float)
@@ -758,54 +762,46 @@ def _slab(ft: FaceTerminations, key: str, periods: int, dq: float, both: bool) -
     xy = (ru.inplane[None, :, :] - j[:, None, None] * shift[None, None, :]).reshape(-1, 2)
     depth = (ru.depth[None, :] + j[:, None] * ft.d).reshape(-1)
     q = np.tile(np.asarray(ru.charges, dtype=float), periods)
-    tol = _tol(ft)
-    bottom = depth >= depth.max() - tol
+    bottom = depth >= depth.max() - _tol(ft)
     q[bottom] -= dq / int(bottom.sum())
-    if both:
-        top = depth <= depth.min() + tol
-        q[top] += dq / int(top.sum())
     return np.column_stack([xy, depth]), q
 
 
 def _site_potentials(
     ft: FaceTerminations, key: str, groups: tuple[CompensationSites, ...], xyz: FloatArray, dq: float
 ) -> tuple[FloatArray, FloatArray]:
-    """Potential (e/Å) at each site ``xyz`` (t, 3) below the termination, and at the same site in the bulk.
+    """Potential (e/Å) at each site ``xyz`` (t, 3: x, y, depth) below the termination, and at that site in the bulk.
 
-    A site's own atoms (the other atoms of a unit) are left out: the site
-    moves as one point charge.  The surface potential comes from a slab
-    thick enough that the 1×1 mesh's Fourier components from its bottom have
-    decayed (exp(-2π |G| z) < 1e-9), compensated at the bottom; the bulk
-    one from the same site n periods down in a slab of 2n + 1 periods
-    compensated on both sides.
+    A site's own other atoms (the rest of a unit) are left out: the site
+    moves as one point charge.  The surface potential comes from a slab of
+    whole repeat units, thick enough that the 1×1 mesh's Fourier components
+    from its bottom have decayed (exp(-2π |G| z) < 1e-6), compensated at
+    the bottom; the bulk one from the 3D Ewald sum of the face's primitive
+    cell (:func:`ewald_bulk_potential`, mean potential zero).
     """
-    mesh = np.asarray(ft.atoms.mesh_inplane, dtype=float)
+    fa = ft.atoms
+    mesh = np.asarray(fa.mesh_inplane, dtype=float)
     d = ft.d
-    g_min = float(np.min(np.linalg.norm(np.linalg.inv(mesh).T, axis=1)))
-    thick = max(2.0 * d, -np.log(_SLAB_DECAY) / (2.0 * np.pi * g_min))
-    n = int(np.ceil(thick / d)) + 1
-    shift = np.asarray(ft.atoms.stack_inplane, dtype=float)
-    # Direct Coulomb terms of a site's own other atoms (only the copies in the site itself).
-    own = np.zeros(len(xyz))
-    row = 0
+    own = []
     for gr in groups:
         q_atoms = np.asarray(gr.unit.charges, dtype=float)
         for b, m in enumerate(gr.members):
             r = np.column_stack([gr.unit.inplane[m], gr.unit.depth[m]])
-            rep = np.array([*gr.inplane[b], gr.depth[b]])
-            dist = np.linalg.norm(r - rep, axis=1)
+            dist = np.linalg.norm(r - np.array([*gr.inplane[b], gr.depth[b]]), axis=1)
             far = dist > LENGTH_EPS_ANGSTROM
-            own[row] = float(np.sum(q_atoms[m][far] / dist[far]))
-            row += 1
-    own = np.concatenate([own[: sum(len(gr.inplane) for gr in groups)]])
-    surface_src, surface_q = _slab(ft, key, n, dq, both=False)
-    v_surface = ewald_slab_matrix(mesh, xyz, surface_src) @ surface_q
-    deep = xyz.copy()
-    deep[:, :2] -= n * shift
-    deep[:, 2] += n * d
-    bulk_src, bulk_q = _slab(ft, key, 2 * n + 1, dq, both=True)
-    v_bulk = ewald_slab_matrix(mesh, deep, bulk_src) @ bulk_q
-    return v_surface - own, v_bulk - own
+            own.append(float(np.sum(q_atoms[m][far] / dist[far])))
+    own_v = np.array(own)
+    g_min = float(np.min(np.linalg.norm(np.linalg.inv(mesh).T, axis=1)))
+    periods = int(np.ceil(max(2.0 * d, -np.log(_SLAB_DECAY) / (2.0 * np.pi * g_min)) / d)) + 1
+    src, q = _slab(ft, key, periods, dq)
+    v_surface = ewald_slab_matrix(mesh, xyz, src) @ q
+    t = ft.termination(key)
+    z_top = ft.layers[t.layers[0]].height
+    cell = np.array([[*mesh[0], 0.0], [*mesh[1], 0.0], [*fa.stack_inplane, d]])
+    atoms = np.column_stack([fa.inplane, fa.heights])
+    points = np.column_stack([xyz[:, :2], z_top - xyz[:, 2]])
+    v_bulk = ewald_bulk_potential(cell, atoms, np.asarray(fa.charges, dtype=float), points)
+    return v_surface - own_v, v_bulk - own_v
 
 
 def _reconstructions(
@@ -876,6 +872,7 @@ def _reconstructions(
         chosen = _nearest(candidates, dq, tol_e, [det for _, det in per_class])
     out = []
     cache: dict[int, tuple[IntArray, FloatArray, FloatArray, FloatArray, IntArray]] = {}
+    domain_names: dict[int, tuple[str, ...]] = {}
     for ci, sp in chosen:
         members, det = per_class[ci]
         if ci not in cache:
@@ -907,7 +904,9 @@ def _reconstructions(
             continue
         score = (float(ranking.energy_ev[0]) + const * COULOMB_EV_ANGSTROM) / det - e_uniform * COULOMB_EV_ANGSTROM
         geometry = _Geometry(hnf, det, mesh, groups, bases, base_depths, sizes, shift_inplane)
-        domains = tuple(dom.name for dom in cell_domains(hnf, rotations, mesh, _base_name(det, hnf, mesh)))
+        if ci not in domain_names:
+            domain_names[ci] = tuple(d.name for d in cell_domains(hnf, rotations, mesh, _base_name(det, hnf, mesh)))
+        domains = domain_names[ci]
         out.append(_record(ft, geometry, sp, ranking, mode, residual, score, domains))
     if chosen is exact:
         out.sort(key=lambda r: (round(r.score, 6), r.sites, r.changed, r.hnf))
