@@ -288,8 +288,8 @@ def compensation_text(t: Any) -> str:
 
 
 def changed_text(rc: Any) -> str:
-    """'3/4 Na + 1/4 Cl' for the sites a reconstruction cell changes in each layer (per cell)."""
-    parts = [f"{k}/{n} {label}" for label, n, k in zip(rc.layer_labels, rc.layer_sites, rc.layer_changed) if k]
+    """'3 of 4 Na + 1 of 4 Cl' for the sites a reconstruction cell changes in each layer (per cell)."""
+    parts = [f"{k} of {n} {label}" for label, n, k in zip(rc.layer_labels, rc.layer_sites, rc.layer_changed) if k]
     return " + ".join(parts) + (" added" if rc.mode == "add" else "")
 
 
@@ -304,12 +304,12 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
         cols: list[str | tuple[str, str]] = ["id", ("label", "left"), "Tasker"]
         if wide:
             cols += [("layer charges (e, top first)", "left"), "μ/A (e/Å)"]
-        cols += ["Δq (e)", ("compensation", "left"), ("cells, best first", "left")]
+        cols += ["Δq (e)", ("compensation", "left"), ("best cell", "left")]
         rows = []
         for t in f.terminations:
-            cells = ", ".join(rc.name for rc in t.reconstructions[:2])
-            if len(t.reconstructions) > 2:
-                cells += f", +{len(t.reconstructions) - 2}"
+            cells = t.reconstructions[0].label if t.reconstructions else ""
+            if len(t.reconstructions) > 1:
+                cells += f", +{len(t.reconstructions) - 1}"
             if t.reconstructions and not t.reconstructions[0].exact:
                 cells = "nearest: " + cells
             row = [t.id, t.label, t.tasker_type]
@@ -407,7 +407,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
                 length_text(lat.a),
                 length_text(lat.b),
                 f"{lat.gamma:.1f}",
-                p.lattice_type,
+                p.lattice_type.replace("centred rectangular", "centred rect."),  # fits 80 columns
                 length_text(p.neighbour_distance),
             ]
             if wide:
@@ -431,7 +431,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
                             spot_text(s.g),
                             f"{s.length:.4f}",
                             f"{s.intensity:.3f}",
-                            f"{s.domains}/{max(1, len(p.domains))}",
+                            f"{s.domains}/{len(p.domains)}" if p.domains else "—",
                         ]
                     )
     out.append(
@@ -455,8 +455,9 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
     out.append(
         Text(
             "|G| without the factor 2π. A geometric model: which species images at a given bias is not "
-            "predicted; try --visible and --weight. A given cell (--cell) brightens one 1×1 cell per cell. "
-            "domains: how many of a cell's rotational domains show the spot. --json lists every spot.",
+            "predicted; try --visible and --weight. A given cell (--cell) brightens one 1×1 cell per cell; "
+            "+Cl: the cell takes Cl from the layer below too. domains: how many of a cell's rotational "
+            "domains show the spot. --json lists every spot.",
             "dim",
         )
     )

@@ -17,6 +17,11 @@ COMMANDS = [
     ["polarity", "zincblende:Ga,As", "--max-index", "1"],
     ["corrugation", "hexaboride:La,B", "--plane", "0", "0", "1"],
     ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--weight", "Na=0.5", "--depth", "4"],
+    ["polarity", "rocksalt:Ni,O", "--plane", "1", "1", "1"],
+    ["polarity", "perovskite:Sr,Ti,O", "--plane", "1", "1", "0"],
+    ["corrugation", "diamond:Si", "--plane", "0", "0", "1", "--cell", "2x1", "--cell", "(2√2×√2)R45°"],
+    ["corrugation", "fcc:Cu", "--plane", "1", "1", "1", "--cell", "sqrt3xsqrt3R30", "--cell", "4,2,3,3"],
+    ["match", "diamond:Si", "--mount", "0", "0", "1", "--spacing", "7.68", "--cell", "2x1", "--cell", "c(4x2)"],
     ["match", "--demo"],
     [
         "match",

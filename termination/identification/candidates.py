@@ -72,8 +72,9 @@ class Candidate:
     relation : str or None
         How the members of the first class are related ('rotated 90°').
     cell : str or None
-        Reconstruction cell (Wood or matrix notation, or a user cell's
-        notation followed by ' given'); None for 1x1.
+        Reconstruction cell (Wood or matrix notation, '+Cl' when the layer
+        below gives sites too), or a user cell's notation followed by
+        ' given'; None for 1x1.
     d : float
         Plane spacing, Å.
     tilts, tilt_variants
@@ -463,7 +464,7 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
                 pattern = reconstruction_corrugation(ft, t.id, r, vis, crystal=charged)
             except StructureError:
                 continue
-            cells.append((r.name, [superpose_domains(pattern, r.matrix, rotations, ft.atoms.mesh_inplane)]))
+            cells.append((r.label, [superpose_domains(pattern, r.matrix, rotations, ft.atoms.mesh_inplane)]))
         return pol.tasker_type == "III", cells
 
     return charged, info, notes

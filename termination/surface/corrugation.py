@@ -991,7 +991,8 @@ def reconstruction_corrugation(
     Returns
     -------
     CorrugationPattern
-        ``cell`` is the record's name (Wood notation, or the matrix).
+        ``cell`` is the record's label (Wood notation or the matrix, and
+        '+Cl' when the layer below gives sites too).
     """
     r = reconstruction
     inplane = getattr(r, "changed_atoms_inplane", None)
@@ -1009,7 +1010,7 @@ def reconstruction_corrugation(
         depth,
         r.mode,
         changed_species=species,
-        cell=getattr(r, "name", None) or getattr(r, "wood", None),
+        cell=getattr(r, "label", None) or getattr(r, "wood", None),
         visibility=visibility,
         crystal=crystal,
     )

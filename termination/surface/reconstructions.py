@@ -184,6 +184,12 @@ class Reconstruction:
         """Whether the cell realises the compensation exactly."""
         return self.residual_charge == 0.0
 
+    @property
+    def label(self) -> str:
+        """The name, with '+Cl' for every layer below the top one that gives sites too: '(2×2) +Cl'."""
+        below = [lab for lab, k in zip(self.layer_labels[1:], self.layer_changed[1:]) if k]
+        return " ".join([self.name, *(f"+{lab}" for lab in below)])
+
 
 @dataclass(frozen=True, eq=False)
 class CompensationSites:
