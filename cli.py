@@ -437,7 +437,7 @@ def corrugation(
     visibility = Visibility(
         visible=visible or None,
         weights=parse_element_values(weight, "--weight", StructureError),
-        site_weights=parse_site_weights(site_weight),
+        site_weights=tuple(parse_site_weights(site_weight).items()),
         decay_length_angstrom=decay_length,
         max_depth_angstrom=depth,
         threshold=threshold,
@@ -585,7 +585,8 @@ def match(
     merged = merge(base, given)
     visibility = measurement_visibility(merged)
     try:
-        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=parse_site_weights(site_weight))
+        sites = tuple(parse_site_weights(site_weight).items())
+        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=sites)
     except StructureError as exc:
         raise MeasurementError(str(exc)) from None
     crystal = _load(structure, a, x, symprec)

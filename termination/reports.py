@@ -13,6 +13,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
+from numpy.typing import ArrayLike
+
 from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
 from termination.bulk.charges import ChargeAssignment, with_formal_charges
 from termination.bulk.crystal import Crystal
@@ -385,7 +387,9 @@ def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=(), cells=
     )
 
 
-def _domains_row(key: str, p: CorrugationPattern, matrix, rotations, mesh) -> TerminationCorrugation:
+def _domains_row(
+    key: str, p: CorrugationPattern, matrix: ArrayLike, rotations: ArrayLike, mesh: ArrayLike
+) -> TerminationCorrugation:
     """The row of a cell whose pattern ``p`` is shown with its rotational domains superposed."""
     return _corrugation_row(key, superpose_domains(p, matrix, rotations, mesh))
 

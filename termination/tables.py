@@ -335,10 +335,10 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
                 row = [rc.name, _matrix(rc.matrix), changed_text(rc), str(len(rc.domains)), str(rc.patterns)]
                 row += [f"{rc.score:.3f}"] + ([] if exact else [f"{rc.residual_charge:+.3f}"])
                 rrows.append(row)
-            cols: list[str | tuple[str, str]] = [("cell", "left"), "matrix", ("changed", "left"), "domains", "patterns"]
-            cols += ["eV/cell"] + ([] if exact else ["residual (e)"])
+            rcols: list[str | tuple[str, str]] = [("cell", "left"), "matrix", ("changed", "left"), "domains"]
+            rcols += ["patterns", "eV/cell"] + ([] if exact else ["residual (e)"])
             what = "cells that" if exact else "nearest cells to"
-            out.append(_table(f"{hkl_text(f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", cols, rrows))
+            out.append(_table(f"{hkl_text(f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", rcols, rrows))
             if len(t.reconstructions) > shown:
                 out.append(
                     Text(f"{len(t.reconstructions) - shown} more cells up to index {r.max_cell} in --json.", "dim")
