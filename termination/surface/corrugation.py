@@ -239,9 +239,12 @@ def _hermite_2d(rows: IntArray) -> IntArray:
     The same result as :func:`termination.algebra.integer.row_basis`, in
     one pass over the rows.
     """
+    target = int(np.gcd.reduce(np.abs(rows[:, 0])))
     g, v = 0, np.zeros(2, dtype=np.int64)
     for row in rows:
-        if row[0] == 0:
+        if g == target:
+            break  # v already has the smallest first component
+        if row[0] == 0 or (g and row[0] % g == 0):
             continue
         a, b = g, int(row[0])
         s0, s1, t0, t1 = 1, 0, 0, 1  # extended Euclid: s a + t b = gcd(a, b)

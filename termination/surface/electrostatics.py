@@ -238,6 +238,7 @@ def ewald_bulk_potential(
     gc = 2.0 * alpha * cutoff_erfc
     recip = np.linalg.inv(cell).T
     diff = tgt[:, None, :] - src[None, :, :]  # (t, n, 3)
+    diff -= np.floor(diff @ np.linalg.inv(cell) + 0.5) @ cell  # every image is summed: nearest one suffices
     span = np.max(np.linalg.norm(diff, axis=-1), initial=0.0)
     nr = np.ceil((rc + span) * np.linalg.norm(recip, axis=1)).astype(int) + 1
     grid = np.meshgrid(*[np.arange(-k, k + 1) for k in nr], indexing="ij")
