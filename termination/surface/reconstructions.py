@@ -87,8 +87,8 @@ SiteChoice = Literal["auto", "unit", "layer"]
 
 CRITERION = (
     "electrostatic energy of the compensated surface (the changed sites as point charges in their layers, in "
-    "the field of the crystal below and of each other; 2D Ewald sum) relative to the same charge taken evenly "
-    "from the top layer, eV per 1×1 cell (lower is better)"
+    "the field of the crystal below and of each other, removed ions back in the bulk at their Madelung energy; "
+    "Ewald sums) relative to the same charge taken evenly from the top layer, eV per 1×1 cell (lower is better)"
 )
 
 #: Fourier components of the crystal's potential below the top layers must have decayed to this
@@ -689,22 +689,29 @@ def reconstructions(
     would have to sit on the first.
 
     The criterion: with delta the charge changes of the pattern (-q per
-    vacancy), V the potential at the sites from the unchanged crystal and
-    Phi the supercell's Ewald pair matrix (:func:`ewald_slab_matrix`, sites
-    at their depths),
+    vacancy), V the potential at the sites from the unchanged crystal, Phi
+    the supercell's Ewald pair matrix (:func:`ewald_slab_matrix`, sites at
+    their depths) and mu_c = q_c V_bulk,c / 2 a site's share of the bulk's
+    Madelung energy (:func:`ewald_bulk_potential`),
 
-        E = sum_c delta_c V_c + (1/2) sum_{a,b} delta_a delta_b Phi_ab,
+        E = sum_c delta_c V_c + (1/2) sum_{a,b} delta_a delta_b Phi_ab + s sum_c mu_c,
 
-    per 1×1 cell, minus the same for dq spread evenly over the top sites.
-    V comes from a slab of the repeat unit, thick enough that the potential's
-    Fourier components from its bottom have decayed below 1e-6, whose bottom
-    layer carries -dq as a uniform charge (the opposite surface,
-    compensated).  Any residual of a nearest cell is spread evenly over its
-    top sites, so that every listed cell is compared at the same total
-    charge.  For equivalent sites of one layer V is one constant and the
-    ranking is that of the in-plane Ewald energy of the vacancies
-    (:func:`rank_patterns`); across layers V says how much dearer a charge
-    is below the top.
+    s = +1 for removals (the ions return to the bulk, a reservoir of the
+    crystal itself) and -1 for additions, per 1×1 cell, minus the same for
+    dq spread evenly over the top sites.  V comes from a slab of the repeat
+    unit, thick enough that the potential's Fourier components from its
+    bottom have decayed below 1e-6, whose bottom layer carries -dq as a
+    uniform charge (the opposite surface, compensated).  A site that is a
+    whole unit is one point charge at its representative atom; its own
+    atoms are left out of its V.  Every listed cell changes the same net
+    charge, so the bulk potential's zero drops out.  Any residual of a
+    nearest cell is spread evenly over its top sites (as fractions of
+    them), so that every listed cell is compared at the same total charge.
+    For equivalent sites of one layer V and mu are constants and the ranking
+    is that of the in-plane Ewald energy of the vacancies
+    (:func:`rank_patterns`); across layers they say how much dearer a
+    charge is below the top, and what a removed neutral pair (the extra
+    NaCl of the octopole) gains back in the bulk.
 
     References
     ----------
