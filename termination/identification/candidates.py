@@ -46,7 +46,7 @@ from termination.surface.corrugation import (
 )
 from termination.surface.domains import face_point_group
 from termination.surface.faces import distinct_faces, variant_tilts
-from termination.surface.miller import check_hkl
+from termination.surface.miller import check_hkl, hkl_text
 from termination.surface.polarity import termination_polarity
 from termination.surface.reconstructions import Reconstruction
 from termination.surface.steps import allowed_heights
@@ -306,6 +306,7 @@ def candidate_table(
     w_min = min(face_costs)
     rows: list[Candidate] = []
     fitted: dict[str, int] = {spec.label: 0 for spec in specs}
+    domains_seen: dict[str, list[tuple[tuple[int, int, int], tuple[str, ...]]]] = {}
     for (f, ft), w_face in zip(per_face, face_costs):
         mesh = ft.atoms.mesh_inplane
         user = [(spec, m) for spec in specs if (m := cell_matrix(spec, mesh)) is not None]
@@ -343,6 +344,9 @@ def candidate_table(
                 for _, m in user
             ]
             user_share = model.user_cell_share if given else 0.0
+            if k == 0:
+                for (spec, _), (_, cell_patterns) in zip(user, given):
+                    domains_seen.setdefault(spec.label, []).append((f.hkl, cell_patterns[0].domains))
             log_single = log_face + math.log(single_share * p_class[k]) + math.log1p(-user_share)
             one = dict(
                 base,
@@ -415,6 +419,10 @@ def candidate_table(
     for label, count in fitted.items():
         if not count:
             notes = [*notes, f"cell {label} fits the mesh of no face up to index {int(max_index)}: not tried"]
+    for label, seen in domains_seen.items():
+        parts = [f"{hkl_text(hkl)} {' + '.join(names)}" for hkl, names in seen[:4]]
+        more = f"; and {len(seen) - 4} more faces" if len(seen) > 4 else ""
+        notes = [*notes, f"cell {label}, rotational domains superposed: " + "; ".join(parts) + more]
     if specs:
         notes = [
             *notes,

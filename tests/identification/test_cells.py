@@ -51,6 +51,8 @@ def test_si001_fft_over_both_domains_is_matched_by_the_superposed_lattice(si):
     (cand,) = [c for c in table.candidates if c.hkl == (0, 0, 1) and c.cell == "(2×1) given"]
     lattices = sorted((round(la.a, 3), round(la.b, 3)) for la in cand.lattices[0])
     assert lattices == [(round(SI_A / R2, 3), round(2 * SI_A / R2, 3)), (round(2 * SI_A / R2, 3),) * 2]
+    # the output says which domains were superposed
+    assert any("(0 0 1) (2×1) + (1×2)" in note for note in report.notes)
 
 
 def test_user_cells_have_the_documented_prior(si):
