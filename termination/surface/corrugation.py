@@ -1119,7 +1119,8 @@ def pattern_domains(
     domains : tuple of Domain
         One per distinct spot pattern, the cell's own first.
     spots : list of (M, 2) FloatArray
-        Per domain, the (h, k) of the pattern's spots, in the order of ``pattern.spots``.
+        Per domain, the (h, k) of the pattern's spots, in the order of
+        ``pattern.spots`` (whole orders exact, others to 10 decimals).
 
     Notes
     -----
@@ -1137,7 +1138,8 @@ def pattern_domains(
     signatures: list[bytes] = []
     base = pattern.cell or cell_notation(N, mesh)
     for S in np.asarray(operations, dtype=np.int64).reshape(-1, 2, 2):
-        turned = np.round(hk @ np.linalg.inv(S.astype(float)).T, _DECIMALS) + 0.0
+        exact = hk @ np.linalg.inv(S.astype(float)).T
+        turned = np.round(exact, _DECIMALS) + 0.0
         table = np.column_stack([turned, level])
         signature = table[np.lexsort(table.T[::-1])].tobytes()
         if signature in signatures:
@@ -1149,7 +1151,8 @@ def pattern_domains(
             name = f"{name} {operation_text(S, mesh)}"
         (a, b), (c, d) = ((int(x) for x in row) for row in cell)
         domains.append(Domain(name=name, matrix=((a, b), (c, d)), operation=operation_text(S, mesh)))
-        spot_sets.append(turned)
+        snapped = np.rint(exact)
+        spot_sets.append(np.where(np.abs(exact - snapped) < FRACTIONAL_EPS, snapped, np.round(exact, 10)) + 0.0)
     return tuple(domains), spot_sets
 
 
@@ -1196,12 +1199,12 @@ def superpose_domains(
     counts: dict[tuple[float, float], int] = {}
     for turned in spot_sets:
         for (h, k), spot in zip(turned.tolist(), pattern.spots):
-            key = (h, k)
+            key = (round(h, _DECIMALS) + 0.0, round(k, _DECIMALS) + 0.0)
             counts[key] = counts.get(key, 0) + 1
             if key not in union or spot.intensity > union[key].intensity:
-                union[key] = spot if key == tuple(spot.g) else Spot(key, spot.length, spot.intensity)
+                union[key] = Spot((h, k), spot.length, spot.intensity)
     merged = sorted(
-        (Spot(k, s.length, s.intensity, counts[k]) for k, s in union.items()),
+        (Spot(s.g, s.length, s.intensity, counts[k]) for k, s in union.items()),
         key=lambda s: (round(s.length, 9), s.g[0], s.g[1]),
     )
     det = abs(round(float(np.linalg.det(np.asarray(matrix, dtype=float)))))
