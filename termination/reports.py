@@ -13,6 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
+import numpy as np
 from numpy.typing import ArrayLike
 
 from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
@@ -349,9 +350,10 @@ class TerminationCorrugation:
     The pattern's fields, with the termination id, the Bravais type of the
     apparent lattice and, for the 1x1 row, its reconstruction cells (those
     the polarity step proposes) and the cells given with ``--cell``
-    (``cell`` None for 1x1).  A cell's ``spots`` are the union over its
-    rotational ``domains``, and ``domain_lattice`` the apparent lattice of
-    that union.
+    (``cell`` None for 1x1).  A cell's ``matrix`` holds its rows in mesh
+    units (always given; ``cell`` is its Wood notation where that is
+    standard), its ``spots`` are the union over its rotational ``domains``,
+    and ``domain_lattice`` is the apparent lattice of that union.
     """
 
     id: str
@@ -363,17 +365,23 @@ class TerminationCorrugation:
     row_spacings: tuple[float, ...] = field(default=(), metadata=ANGSTROM)
     row_angles: tuple[float, ...] = field(default=(), metadata=DEG)
     spots: tuple[Spot, ...] = ()
+    matrix: tuple[tuple[int, int], tuple[int, int]] | None = None
     domains: tuple[str, ...] = ()
     domain_lattice: ApparentLattice | None = None
     reconstructions: tuple[TerminationCorrugation, ...] = ()
     cells: tuple[TerminationCorrugation, ...] = ()
 
 
-def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=(), cells=()) -> TerminationCorrugation:
+def _corrugation_row(
+    key: str, p: CorrugationPattern, reconstructions=(), cells=(), matrix=None
+) -> TerminationCorrugation:
     return TerminationCorrugation(
         id=key,
         label=p.label,
         cell=p.cell,
+        matrix=None
+        if matrix is None
+        else ((int(matrix[0][0]), int(matrix[0][1])), (int(matrix[1][0]), int(matrix[1][1]))),
         apparent_lattice=p.apparent_lattice,
         lattice_type=lattice_type(p.apparent_lattice),
         neighbour_distance=p.neighbour_distance,
@@ -387,11 +395,16 @@ def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=(), cells=
     )
 
 
+def _matrix2(matrix: ArrayLike) -> tuple[tuple[int, int], tuple[int, int]]:
+    m = np.asarray(matrix, dtype=np.int64)
+    return (int(m[0, 0]), int(m[0, 1])), (int(m[1, 0]), int(m[1, 1]))
+
+
 def _domains_row(
     key: str, p: CorrugationPattern, matrix: ArrayLike, rotations: ArrayLike, mesh: ArrayLike
 ) -> TerminationCorrugation:
     """The row of a cell whose pattern ``p`` is shown with its rotational domains superposed."""
-    return _corrugation_row(key, superpose_domains(p, matrix, rotations, mesh))
+    return _corrugation_row(key, superpose_domains(p, matrix, rotations, mesh), matrix=matrix)
 
 
 @dataclass(frozen=True)

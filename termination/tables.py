@@ -395,7 +395,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
         "maxima (Å)",
     ]
     if wide:
-        cols += ["row spacings (Å)", "row angles (°)"]
+        cols += ["row spacings (Å)", "row angles (°)", "matrix"]
     rows = []
     for t in r.terminations:
         for p in (t, *t.reconstructions, *t.cells):
@@ -414,6 +414,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
                 row += [
                     " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
                     " ".join(f"{a:.0f}" for a in p.row_angles) or "—",
+                    "—" if p.matrix is None else _matrix(p.matrix),
                 ]
             rows.append(row)
     out.append(_table("Apparent lattice per termination (dual of the visible spots; one domain)", cols, rows))
@@ -462,7 +463,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
         )
     )
     if not wide:
-        out.append(Text("--wide adds the row spacings and row angles.", "dim"))
+        out.append(Text("--wide adds the row spacings, row angles and cell matrices.", "dim"))
     return out + _caution(r.structure)
 
 
