@@ -40,8 +40,11 @@ prior
     |class| exp(-bond_weight (w_t - w_F)/W), normalised; a share
     (``mixed_share``, default 0.2) goes to mixed surfaces of the cheapest
     terminations; a polar termination gives half its mass to its
-    reconstruction cells.  ``flat_prior`` makes every candidate equally
-    likely.
+    reconstruction cells; cells the user names (``--cell``) get
+    ``user_cell_share`` (default half) of a termination's mass, in equal
+    parts, on every face whose mesh they fit.  A cell is matched with one
+    domain and with all its rotational domains superposed (two lattices).
+    ``flat_prior`` makes every candidate equally likely.
 
 The posterior of a candidate is exp(log prior + sum log L), normalised.  It
 is relative: :mod:`termination.identification.fit` checks separately that
