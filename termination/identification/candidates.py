@@ -254,6 +254,7 @@ def candidate_table(
     charges=None,
     max_cell=MAX_CELL,
     cells=(),
+    select_cells=None,
     **termination_options,
 ):
     """Predictions of every face x termination (x reconstruction, x terrace mix) of ``crystal``.
@@ -279,6 +280,14 @@ def candidate_table(
         :func:`termination.algebra.lattice2d.parse_cell`): each adds a
         candidate per termination on every face whose mesh it fits, with the
         default modulation of :func:`termination.surface.corrugation.cell_corrugation`.
+    select_cells : callable, optional
+        Reconstruction cells are the expensive part.  When given, the
+        candidates without cells are built first and
+        ``select_cells(candidates)`` returns the (hkl, termination id) pairs
+        whose cells are worth building (``match`` passes those whose tilt and
+        steps leave them in contention); the others keep the prior share of
+        their cells unspent.  Default: build the cells of every polar
+        termination.
     termination_options
         Passed to :func:`termination.surface.terminations.face_terminations`
         (``layer_tol_angstrom``, ``bond_factor``, ``bond_cutoff_angstrom``, ``unit_ratio``).
@@ -304,7 +313,8 @@ def candidate_table(
     face_costs = [min(t.weighted_bonds_per_nm2 for t in ft.terminations) for _, ft in per_face]
     scale = _bond_scale(face_costs)
     w_min = min(face_costs)
-    rows: list[Candidate] = []
+    groups: list[list[Candidate]] = []  # per termination: its 1x1 candidate, then its cells
+    pending = []  # polar terminations whose reconstruction cells are still to build
     fitted: dict[str, int] = {spec.label: 0 for spec in specs}
     domains_seen: dict[str, list[tuple[tuple[int, int, int], tuple[str, ...]]]] = {}
     for (f, ft), w_face in zip(per_face, face_costs):
@@ -327,8 +337,7 @@ def candidate_table(
         for k, t in enumerate(reps):
             lattices, periods = _lattice_entry([patterns[t.id]])
             steps = _class_steps(ft, [members[k]], model)
-            polar, recon = polar_info(ft, t, rotations) if polar_info else (None, ())
-            share = model.reconstructed_share if recon else 0.0
+            polar, polarity = polar_info.polarity(ft, t) if polar_info else (None, None)
             given = [
                 (
                     cell_notation(m, mesh) + " given",
@@ -356,30 +365,13 @@ def candidate_table(
                 polar=polar,
                 **steps,
             )
-            rows.append(
-                Candidate(
-                    cell=None,
-                    lattices=(lattices,),
-                    periods=(periods,),
-                    log_prior=log_single + math.log1p(-share),
-                    **one,
-                )
-            )
-            for cell_name, cell_patterns in recon:
-                cl, cp = _lattice_entry(cell_patterns)
-                rows.append(
-                    Candidate(
-                        cell=cell_name,
-                        lattices=(cl,),
-                        periods=(cp,),
-                        log_prior=log_single + math.log(share / len(recon)),
-                        **one,
-                    )
-                )
+            group: list[Candidate] = [
+                Candidate(cell=None, lattices=(lattices,), periods=(periods,), log_prior=log_single, **one)
+            ]
             log_given = log_face + math.log(single_share * p_class[k])
             for cell_name, cell_patterns in given:
                 cl, cp = _lattice_entry(cell_patterns)
-                rows.append(
+                group.append(
                     Candidate(
                         cell=cell_name,
                         lattices=(cl,),
@@ -388,6 +380,9 @@ def candidate_table(
                         **one,
                     )
                 )
+            groups.append(group)
+            if polar_info is not None and polar_info.may_have_cells(polarity):
+                pending.append((len(groups) - 1, ft, t, rotations, polarity, log_single, one))
         if len(reps) > 1:
             cheapest = sorted(range(len(reps)), key=lambda k: -p_class[k])[: model.max_mixed_classes]
             pairs = [tuple(sorted(p)) for p in itertools.combinations(cheapest, 2)]
@@ -395,24 +390,52 @@ def candidate_table(
             weight /= weight.sum()
             for (i, j), w in zip(pairs, weight):
                 entries = [_lattice_entry([patterns[reps[k].id]]) for k in (i, j)]
-                rows.append(
-                    Candidate(
-                        classes=(TerminationRef.of(reps[i]), TerminationRef.of(reps[j])),
-                        members=(members[i], members[j]),
-                        relation=relation[reps[i].id],
-                        cell=None,
-                        lattices=tuple(e[0] for e in entries),
-                        periods=tuple(e[1] for e in entries),
-                        log_prior=log_face + math.log(model.mixed_share * w),
-                        polar=None,
-                        **base,
-                        **_class_steps(ft, [members[i], members[j]], model),
-                    )
+                groups.append(
+                    [
+                        Candidate(
+                            classes=(TerminationRef.of(reps[i]), TerminationRef.of(reps[j])),
+                            members=(members[i], members[j]),
+                            relation=relation[reps[i].id],
+                            cell=None,
+                            lattices=tuple(e[0] for e in entries),
+                            periods=tuple(e[1] for e in entries),
+                            log_prior=log_face + math.log(model.mixed_share * w),
+                            polar=None,
+                            **base,
+                            **_class_steps(ft, [members[i], members[j]], model),
+                        )
+                    ]
                 )
+    # Reconstruction cells last: the expensive part, built where they may matter.
+    chosen = None
+    if select_cells is not None and pending:
+        chosen = set(select_cells(tuple(c for group in groups for c in group)))
+    spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
+    for index, ft, t, rotations, polarity, log_single, one in pending:
+        share = model.reconstructed_share
+        if chosen is not None and (ft.face.hkl, t.id) not in chosen:
+            spent.append(log_single + math.log(share))
+        else:
+            recon = polar_info.cells(ft, t, rotations, polarity)
+            if not recon:
+                continue
+            groups[index] += [
+                Candidate(
+                    cell=cell_name,
+                    lattices=(cl,),
+                    periods=(cp,),
+                    log_prior=log_single + math.log(share / len(recon)),
+                    **one,
+                )
+                for cell_name, (cl, cp) in ((name, _lattice_entry(pats)) for name, pats in recon)
+            ]
+        first = groups[index][0]
+        groups[index][0] = replace(first, log_prior=first.log_prior + math.log1p(-share))
+    rows = [c for group in groups for c in group]
     if model.flat_prior:
         rows = [replace(r, log_prior=0.0) for r in rows]
     lp = np.array([r.log_prior for r in rows])
-    lp -= logsumexp(lp)
+    lp -= logsumexp(np.concatenate([lp, spent if not model.flat_prior else []]))
     out = tuple(replace(r, log_prior=float(v)) for r, v in zip(rows, lp))
     if vis == Visibility():
         notes = [*notes, "imaging model: every species images alike (--visible and --weight change it)"]
@@ -447,8 +470,41 @@ def _upward_tilts(crystal, variants, mount):
     return tuple(float(a) for a in ang[keep]), tuple(v for v, k in zip(variants, keep) if k)
 
 
+class _PolarityProvider:
+    """Polarity of terminations (cheap) and their reconstruction cells with corrugation (expensive)."""
+
+    def __init__(self, charged, reconstructions, max_cell, vis):
+        self.charged = charged
+        self.reconstructions = reconstructions
+        self.max_cell = max_cell
+        self.vis = vis
+
+    def polarity(self, ft, t):
+        """(Tasker type III?, the polarity record without cells)."""
+        pol = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=False)
+        return pol.tasker_type == "III", pol
+
+    def may_have_cells(self, pol) -> bool:
+        """Whether a cell search can give anything: reconstructions asked for, a polar termination to compensate."""
+        return (
+            bool(self.reconstructions) and pol is not None and pol.tasker_type == "III" and pol.compensation is not None
+        )
+
+    def cells(self, ft, t, rotations, pol):
+        """[(cell label, [pattern with its domains superposed]), ...] of the best cells, best first."""
+        full = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=True)
+        out = []
+        for r in _kept_cells(full.reconstructions):
+            try:
+                pattern = reconstruction_corrugation(ft, t.id, r, self.vis, crystal=self.charged)
+            except StructureError:
+                continue
+            out.append((r.label, [superpose_domains(pattern, r.matrix, rotations, ft.atoms.mesh_inplane)]))
+        return out
+
+
 def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
-    """Charged crystal and a function (ft, termination, rotations) -> (polar, [(cell, [patterns]), ...]).
+    """Charged crystal, a :class:`_PolarityProvider` (None without formal charges) and notes.
 
     Without formal charges (given, from the file, or the built-in guess) the
     polarity is not assessed and no reconstruction candidates are added.
@@ -463,16 +519,4 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
     notes = [f"formal charges {found.method}: " + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
     if found.caution:
         notes.append(found.caution)
-
-    def info(ft, t, rotations):
-        pol = termination_polarity(charged, ft, t.id, max_cell=max_cell, with_reconstructions=reconstructions)
-        cells = []
-        for r in _kept_cells(pol.reconstructions):
-            try:
-                pattern = reconstruction_corrugation(ft, t.id, r, vis, crystal=charged)
-            except StructureError:
-                continue
-            cells.append((r.label, [superpose_domains(pattern, r.matrix, rotations, ft.atoms.mesh_inplane)]))
-        return pol.tasker_type == "III", cells
-
-    return charged, info, notes
+    return charged, _PolarityProvider(charged, reconstructions, max_cell, vis), notes
