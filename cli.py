@@ -268,6 +268,16 @@ def _charges(items: list[str] | None) -> dict[str, float] | None:
     return parse_charge_options(items) or None
 
 
+def _site_weights(items: list[str] | None) -> dict[str, float]:
+    from termination.errors import MeasurementError, StructureError
+    from termination.surface.corrugation import parse_site_weights
+
+    try:
+        return parse_site_weights(items)
+    except StructureError as exc:
+        raise MeasurementError(str(exc)) from None
+
+
 def _element(text: str, option: str) -> str:
     from termination.bulk.elements import check_symbol
     from termination.errors import MeasurementError, StructureError
@@ -565,15 +575,13 @@ def match(
     wide: Wide = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
-    from dataclasses import replace
 
     from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
-    from termination.errors import MeasurementError, StructureError
+    from termination.errors import MeasurementError
     from termination.identification.likelihood import match as run_match
     from termination.identification.likelihood import measurement_visibility
     from termination.identification.measurement import Measurement, merge, parse_value, read_measurement, read_steps
-    from termination.surface.corrugation import parse_site_weights
 
     if demo:
         from termination.structures import bundled
@@ -600,16 +608,14 @@ def match(
         visible=tuple(_element(v, "--visible") for v in visible or ()),
         weights=parse_element_values(weight, "--weight", MeasurementError),
         decay_length=decay_length,
+        depth=depth,
+        site_weights=_site_weights(site_weight),
+        cells=tuple(cell or ()),
     )
     base = read_measurement(measurement) if measurement else Measurement()
-    cells = check_cells(cell)
     merged = merge(base, given)
+    cells = check_cells(merged.cells)
     visibility = measurement_visibility(merged)
-    try:
-        sites = tuple(parse_site_weights(site_weight).items())
-        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=sites)
-    except StructureError as exc:
-        raise MeasurementError(str(exc)) from None
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
