@@ -85,7 +85,7 @@ def synthetic_heightmap(
     adsorbate_radius_px=3.0,
     background_angstrom=0.0,
     background_exponent=2.0,
-    background_scale_px=24.0,
+    background_scale_px=64.0,
     noise_angstrom=0.0,
     drift=None,
     seed=0,
