@@ -8,23 +8,32 @@ parameter where the prototype has one.
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
-from termination.bulk.crystal import build_crystal
+from termination.arrays import FloatArray
+from termination.bulk.crystal import Crystal, build_crystal
 from termination.bulk.elements import check_symbol
 from termination.defaults import MAX_LENGTH_ANGSTROM, SYMPREC_ANGSTROM
 from termination.errors import StructureError
 
-__all__ = ["KNOWN_LATTICE_CONSTANTS", "PROTOTYPES", "Prototype", "build_prototype", "parse_spec"]
+__all__ = ["KNOWN_LATTICE_CONSTANTS", "PROTOTYPES", "Prototype", "SiteGenerator", "build_prototype", "parse_spec"]
+
+#: Fractional positions of a Wyckoff site, (3,) or (k, 3), from the free parameter x (None: none).
+SiteGenerator = Callable[[float | None], ArrayLike]
 
 _F = np.array([[0, 0, 0], [0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]])
 _I = np.array([[0, 0, 0], [0.5, 0.5, 0.5]])
 _P = np.array([[0.0, 0.0, 0.0]])
 
 
-def _sites_6f(x):
+def _sites_6f(x: float | None) -> list[list[float]]:
+    """Site 6f (x, 1/2, 1/2) of Pm-3m, the boron octahedra of a hexaboride."""
+    if x is None:  # the hexaboride prototype always passes its default x
+        raise StructureError("site 6f needs the free parameter x")
     return [[x, 0.5, 0.5], [-x, 0.5, 0.5], [0.5, x, 0.5], [0.5, -x, 0.5], [0.5, 0.5, x], [0.5, 0.5, -x]]
 
 
@@ -38,23 +47,25 @@ class Prototype:
         Name used in the spec, e.g. ``half-heusler``.
     roles : tuple of str
         What each element of the spec stands for, in order.
-    sites : tuple of (role index, Wyckoff label, generator)
+    sites : tuple of (role index, Wyckoff label, SiteGenerator)
         ``generator(x)`` returns the fractional positions of the site before
         centring translations are added.
-    centring : (K, 3) ndarray
-        Lattice centring translations.
+    centring : (K, 3) FloatArray
+        Lattice centring translations, fractional.
     spacegroup : str, number : int
         Intended space group.
     example : str
         A spec that builds a well-known compound.
+    description : str
+        The structure type in words.
     default_x : float or None
-        Default free parameter (None: no free parameter).
+        Default free parameter, fractional (None: no free parameter).
     """
 
     name: str
-    roles: tuple
-    sites: tuple
-    centring: np.ndarray
+    roles: tuple[str, ...]
+    sites: tuple[tuple[int, str, SiteGenerator], ...]
+    centring: FloatArray
     spacegroup: str
     number: int
     example: str
@@ -62,48 +73,64 @@ class Prototype:
     default_x: float | None = None
 
     @property
-    def wyckoff(self):
+    def wyckoff(self) -> str:
         """Human-readable site list, e.g. 'Na 4a, Cl 4b'."""
         return ", ".join(f"{self.roles[r]} {w}" for r, w, _ in self.sites)
 
-    def build(self, elements, a, x=None, name=None):
-        """Conventional cell of this prototype (a :class:`~termination.bulk.crystal.Crystal`)."""
-        elements = [check_symbol(e) for e in elements]
-        if len(elements) != len(self.roles):
+    def build(self, elements: Iterable[object], a: float, x: float | None = None, name: str | None = None) -> Crystal:
+        """Conventional cell of this prototype (a :class:`~termination.bulk.crystal.Crystal`).
+
+        ``a`` is the cubic lattice constant in Å; ``x`` the free parameter
+        (fractional), default :attr:`default_x`.
+        """
+        symbols = [check_symbol(e) for e in elements]
+        if len(symbols) != len(self.roles):
             raise StructureError(
                 f"prototype {self.name} takes {len(self.roles)} elements ({','.join(self.roles)}), "
-                f"got {len(elements)}: {','.join(elements)}"
+                f"got {len(symbols)}: {','.join(symbols)}"
             )
         try:
-            a = float(a)
+            length = float(a)
         except (TypeError, ValueError):
             raise StructureError(f"lattice constant must be a number in Å, got {a!r}") from None
-        if not np.isfinite(a) or a <= 0:
-            raise StructureError(f"lattice constant must be positive, got {a} Å")
-        if a > MAX_LENGTH_ANGSTROM:
-            raise StructureError(f"lattice constant must be at most {MAX_LENGTH_ANGSTROM:g} Å, got {a:g} Å")
+        if not np.isfinite(length) or length <= 0:
+            raise StructureError(f"lattice constant must be positive, got {length} Å")
+        if length > MAX_LENGTH_ANGSTROM:
+            raise StructureError(f"lattice constant must be at most {MAX_LENGTH_ANGSTROM:g} Å, got {length:g} Å")
         if x is not None and self.default_x is None:
             raise StructureError(f"prototype {self.name} has no free parameter; --x {x} does not apply")
-        x = self.default_x if x is None else float(x)
-        if x is not None and not (np.isfinite(x) and 0 < x < 0.5):
-            raise StructureError(f"free parameter x must lie between 0 and 0.5, got {x}")
-        positions, species = [], []
+        free = self.default_x if x is None else float(x)
+        if free is not None and not (np.isfinite(free) and 0 < free < 0.5):
+            raise StructureError(f"free parameter x must lie between 0 and 0.5, got {free}")
+        blocks: list[FloatArray] = []
+        species: list[str] = []
         for role, _, gen in self.sites:
-            base = np.atleast_2d(np.asarray(gen(x), dtype=float))
+            base = np.atleast_2d(np.asarray(gen(free), dtype=np.float64))
             pts = (base[:, None, :] + self.centring[None, :, :]).reshape(-1, 3) % 1.0
-            positions.append(pts)
-            species += [elements[role]] * len(pts)
-        positions = np.vstack(positions)
-        spec = f"{self.name}:{','.join(elements)}"
-        return build_crystal(np.eye(3) * a, positions, species, name=name, origin=spec)
+            blocks.append(pts)
+            species += [symbols[role]] * len(pts)
+        positions = np.vstack(blocks)
+        spec = f"{self.name}:{','.join(symbols)}"
+        return build_crystal(np.eye(3) * length, positions, species, name=name, origin=spec)
 
 
-def _p(name, roles, sites, centring, sg, number, example, description, default_x=None):
+def _p(
+    name: str,
+    roles: Sequence[str],
+    sites: Sequence[tuple[int, str, SiteGenerator]],
+    centring: FloatArray,
+    sg: str,
+    number: int,
+    example: str,
+    description: str,
+    default_x: float | None = None,
+) -> Prototype:
+    """Shorthand constructor of the table below."""
     return Prototype(name, tuple(roles), tuple(sites), centring, sg, number, example, description, default_x)
 
 
 _Q = 0.25
-PROTOTYPES = {
+PROTOTYPES: dict[str, Prototype] = {
     p.name: p
     for p in [
         _p("fcc", ["A"], [(0, "4a", lambda x: [0, 0, 0])], _F, "Fm-3m", 225, "fcc:Cu", "face-centred cubic metal"),
@@ -112,7 +139,7 @@ PROTOTYPES = {
         _p(
             "diamond",
             ["A"],
-            [(0, "8a", lambda x: [[0, 0, 0], [_Q, _Q, _Q]])],
+            [(0, "8a", lambda x: [[0.0, 0.0, 0.0], [_Q, _Q, _Q]])],
             _F,
             "Fd-3m",
             227,
@@ -212,7 +239,7 @@ PROTOTYPES = {
             "inverse-heusler",
             ["X", "Y", "Z"],
             [
-                (0, "4a+4c", lambda x: [[0, 0, 0], [_Q, _Q, _Q]]),
+                (0, "4a+4c", lambda x: [[0.0, 0.0, 0.0], [_Q, _Q, _Q]]),
                 (1, "4b", lambda x: [0.5, 0.5, 0.5]),
                 (2, "4d", lambda x: [0.75, 0.75, 0.75]),
             ],
@@ -238,7 +265,7 @@ PROTOTYPES = {
 
 # Room-temperature lattice constants (Å) used when --a is not given (from memory,
 # handbook values rounded to 3 decimals).
-KNOWN_LATTICE_CONSTANTS = {
+KNOWN_LATTICE_CONSTANTS: dict[tuple[str, tuple[str, ...]], float] = {
     ("fcc", ("Cu",)): 3.615,
     ("fcc", ("Al",)): 4.050,
     ("fcc", ("Ni",)): 3.524,
@@ -287,7 +314,6 @@ KNOWN_LATTICE_CONSTANTS = {
     ("half-heusler", ("Hf", "Ni", "Sn")): 6.080,
     ("half-heusler", ("Ti", "Co", "Sb")): 5.880,
     ("half-heusler", ("Lu", "Pt", "Bi")): 6.577,
-    ("half-heusler", ("Y", "Pt", "Bi")): 6.650,
     ("heusler", ("Cu", "Mn", "Al")): 5.950,
     ("heusler", ("Co", "Mn", "Si")): 5.654,
     ("heusler", ("Fe", "V", "Al")): 5.761,
@@ -295,13 +321,12 @@ KNOWN_LATTICE_CONSTANTS = {
     ("inverse-heusler", ("Mn", "Co", "Ga")): 5.860,
     ("hexaboride", ("La", "B")): 4.157,
     ("hexaboride", ("Ce", "B")): 4.141,
-    ("hexaboride", ("Sm", "B")): 4.133,
     ("hexaboride", ("Ca", "B")): 4.145,
     ("hexaboride", ("Eu", "B")): 4.185,
 }
 
 
-def parse_spec(spec):
+def parse_spec(spec: str) -> tuple[Prototype, list[str]]:
     """Split ``NAME:EL1,EL2`` into the prototype and the element list.
 
     >>> parse_spec("rocksalt:Na,Cl")[0].name, parse_spec("rocksalt:Na,Cl")[1]
@@ -327,10 +352,13 @@ def parse_spec(spec):
     return PROTOTYPES[name], elements
 
 
-def build_prototype(spec, a=None, x=None, symprec=SYMPREC_ANGSTROM):
+def build_prototype(
+    spec: str, a: float | None = None, x: float | None = None, symprec: float = SYMPREC_ANGSTROM
+) -> Crystal:
     """Crystal from a spec such as ``half-heusler:Ti,Ni,Sn``.
 
-    ``a`` defaults to :data:`KNOWN_LATTICE_CONSTANTS` for tabulated compounds.
+    ``a`` (Å) defaults to :data:`KNOWN_LATTICE_CONSTANTS` for tabulated
+    compounds; ``symprec`` is the symmetry tolerance, Å.
     """
     proto, elements = parse_spec(spec)
     if a is None:

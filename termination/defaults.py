@@ -90,3 +90,18 @@ LENGTH_EPS_ANGSTROM = 1e-6
 FRACTIONAL_EPS = 1e-9
 #: Angles closer than this are equal, degrees.
 ANGLE_EPS_DEG = 1e-6
+#: Two positions closer than this are one point (an atom and its own image), Å.
+POINT_EPS_ANGSTROM = 1e-8
+#: A computed dimensionless number within this of a whole number or a simple
+#: fraction is that number (an entry of an integer matrix, a multiple of 1/12,
+#: a fraction of sites, a charge in e written as -1/3); also the relative
+#: margin that keeps a search radius from cutting at an exact boundary.
+RELATIVE_EPS = 1e-6
+#: Relative float noise of a computed number of order one (a length in Å, an
+#: angle in degrees, a bond count, |F|/F(0)): x <= y (1 + ROUNDING_EPS) counts as
+#: x <= y, and a boundary is nudged by it so that values equal on paper fall on
+#: a definite side.
+ROUNDING_EPS = 1e-9
+#: A computed quantity that is zero on paper (a bond count, |G| of the origin,
+#: a difference of equal squared lengths) lies below this, in its own unit.
+ZERO_EPS = 1e-12

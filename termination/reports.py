@@ -1,18 +1,21 @@
-"""Command reports: the records that each command of the command line shows, and how they are built.
+"""Command reports: the record each command of the command line shows, and the builder that makes it.
 
 Every command calls one builder here and gets one frozen dataclass back; the
-table and the ``--json`` output are two renderings of the same record
-(:mod:`termination.serialise`, :mod:`termination.tables`).  Builders combine
-the bulk and surface layers; they hold no computation of their own.
+table (:mod:`termination.tables`) and the ``--json`` output
+(:mod:`termination.serialise`) are two renderings of the same record.
+Builders combine the layers below; they hold no computation of their own.
+:func:`command_reports` names the record type of every command, from which
+the JSON Schemas are generated.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 from termination.bulk.charges import ChargeAssignment, with_formal_charges
 from termination.bulk.crystal import Crystal
-from termination.bulk.elements import handling_caution
+from termination.bulk.summary import StructureSummary, summarise_structure
 from termination.defaults import MAX_CELL, MAX_INDEX
 from termination.errors import PlaneError
 from termination.surface.corrugation import (
@@ -29,66 +32,79 @@ from termination.surface.miller import check_hkl, hkl_text
 from termination.surface.polarity import FacePolarity, face_is_polar, face_polarity, termination_polarity
 from termination.surface.reconstructions import CRITERION, check_max_cell
 from termination.surface.steps import StepHeights
-from termination.surface.terminations import Termination, face_terminations
+from termination.surface.terminations import Termination, TerminationRef, face_terminations
+from termination.units import ANGSTROM, DEG
+
+if TYPE_CHECKING:
+    from termination.imaging.analysis import HeightMapAnalysis
 
 __all__ = [
     "CorrugationReport",
+    "FaceRow",
+    "ImageReport",
+    "ImageSource",
     "LayerRow",
-    "PlaneRow",
     "PlanesReport",
     "PolarityReport",
+    "PrototypeRow",
     "StructureSummary",
+    "StructuresReport",
     "TerminationCorrugation",
+    "TerminationEntry",
     "TerminationsReport",
+    "command_reports",
     "corrugation_report",
+    "image_report",
     "planes_report",
     "polarity_report",
+    "structures_report",
     "summarise_structure",
     "terminations_report",
 ]
 
 
-# --------------------------------------------------------------------------- structure
+# --------------------------------------------------------------------------- structures
 
 
 @dataclass(frozen=True)
-class StructureSummary:
-    """What was loaded: name, symmetry, cell and handling caution."""
+class PrototypeRow:
+    """One built-in prototype: its spec name, the roles of its elements, space group and sites."""
 
     name: str
-    formula: str
-    origin: str
+    elements: tuple[str, ...]
     spacegroup: str
     spacegroup_number: int
-    natoms: int
-    a: float
-    b: float
-    c: float
-    alpha: float
-    beta: float
-    gamma: float
-    note: str | None
-    caution: str | None
+    sites: str
+    free_parameter_x: float | None
+    example: str
+    description: str
 
 
-def summarise_structure(crystal: Crystal) -> StructureSummary:
-    """:class:`StructureSummary` of a crystal."""
-    a, b, c, alpha, beta, gamma = crystal.cell_parameters
-    return StructureSummary(
-        name=crystal.name,
-        formula=crystal.formula,
-        origin=crystal.origin,
-        spacegroup=crystal.spacegroup,
-        spacegroup_number=crystal.spacegroup_number,
-        natoms=crystal.natoms,
-        a=a,
-        b=b,
-        c=c,
-        alpha=alpha,
-        beta=beta,
-        gamma=gamma,
-        note=crystal.note,
-        caution=handling_caution(crystal.species),
+@dataclass(frozen=True)
+class StructuresReport:
+    """Result of ``termination structures``."""
+
+    prototypes: tuple[PrototypeRow, ...]
+
+
+def structures_report() -> StructuresReport:
+    """The built-in prototypes (:data:`termination.structures.PROTOTYPES`)."""
+    from termination.structures import PROTOTYPES
+
+    return StructuresReport(
+        tuple(
+            PrototypeRow(
+                name=p.name,
+                elements=tuple(p.roles),
+                spacegroup=p.spacegroup,
+                spacegroup_number=p.number,
+                sites=p.wyckoff,
+                free_parameter_x=p.default_x,
+                example=p.example,
+                description=p.description,
+            )
+            for p in PROTOTYPES.values()
+        )
     )
 
 
@@ -96,31 +112,39 @@ def summarise_structure(crystal: Crystal) -> StructureSummary:
 
 
 @dataclass(frozen=True)
-class PlaneRow:
-    """One face in the ``planes`` table."""
+class FaceRow:
+    """One face of the ``planes`` table.
 
-    hkl: tuple
-    d: float
-    tilt: float | None
-    tilt_variant: tuple | None
-    tilt_axis: tuple | None
-    multiplicity: int
-    mesh: Mesh
-    terminations: int
-    smallest_step: float
-    polar: bool | None = None  # every termination Tasker type III; None without charges
+    ``tilt`` is the smallest angle to the mount face over the symmetry
+    variants, realised by ``tilt_variant`` about the direction ``tilt_axis``
+    (None without a mount); ``polar`` is True when every termination is
+    Tasker type III, None without formal charges.
+    """
+
+    hkl: tuple[int, int, int]
+    d: float = field(metadata=ANGSTROM)
+    multiplicity: int = 1
+    tilt: float | None = field(default=None, metadata=DEG)
+    tilt_variant: tuple[int, int, int] | None = None
+    tilt_axis: tuple[int, int, int] | None = None
+    mesh: Mesh | None = None
+    terminations: tuple[TerminationRef, ...] = ()
+    smallest_step: float = field(default=0.0, metadata=ANGSTROM)
+    polar: bool | None = None
 
 
 @dataclass(frozen=True)
 class PlanesReport:
+    """Result of ``termination planes``: the distinct faces up to ``max_index``."""
+
     structure: StructureSummary
-    mount: tuple | None
+    mount: tuple[int, int, int] | None
     max_index: int
-    planes: tuple
-    charges: ChargeAssignment | None = None  # behind the polar column, or None
+    faces: tuple[FaceRow, ...]
+    charges: ChargeAssignment | None = None
 
 
-def planes_report(crystal, max_index=MAX_INDEX, mount=None, charges=None, **termination_options):
+def planes_report(crystal: Crystal, max_index: int = MAX_INDEX, mount=None, charges=None, **termination_options):
     """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`.
 
     ``charges`` (element -> formal charge), else the file's charges, else the
@@ -135,20 +159,20 @@ def planes_report(crystal, max_index=MAX_INDEX, mount=None, charges=None, **term
     for f in faces:
         ft = face_terminations(crystal, f.hkl, face=f, **termination_options)
         rows.append(
-            PlaneRow(
+            FaceRow(
                 hkl=f.hkl,
                 d=f.d,
+                multiplicity=f.multiplicity,
                 tilt=f.tilt,
                 tilt_variant=f.tilt_variant,
                 tilt_axis=f.tilt_axis,
-                multiplicity=f.multiplicity,
                 mesh=f.mesh,
-                terminations=len(ft.terminations),
+                terminations=tuple(TerminationRef.of(t) for t in ft.terminations),
                 smallest_step=ft.smallest_step,
                 polar=None if assignment is None else face_is_polar(ft),
             )
         )
-    m = None if mount is None else tuple(int(v) for v in mount)
+    m = None if mount is None else check_hkl(mount, "mount")
     return PlanesReport(summarise_structure(crystal), m, int(max_index), tuple(rows), assignment)
 
 
@@ -157,44 +181,83 @@ def planes_report(crystal, max_index=MAX_INDEX, mount=None, charges=None, **term
 
 @dataclass(frozen=True)
 class LayerRow:
-    """One atomic layer: depth below the highest layer (Å) and composition per surface cell."""
+    """One atomic layer: depth below the highest layer and height in [0, d), with its atoms per surface cell."""
 
-    depth: float
-    height: float
-    composition: dict
+    depth: float = field(metadata=ANGSTROM)
+    height: float = field(metadata=ANGSTROM)
+    composition: dict[str, int] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class TerminationEntry:
+    """A termination with the apparent lattice its topograph shows (default corrugation model).
+
+    The fields of :class:`~termination.surface.terminations.Termination`,
+    then ``apparent_lattice`` and its 2D Bravais type.
+    """
+
+    id: str
+    label: str
+    composition: dict[str, int]
+    depth: float = field(metadata=ANGSTROM)
+    layers: tuple[int, ...] = ()
+    cut_height: float = field(default=0.0, metadata=ANGSTROM)
+    broken_bonds_per_nm2: float = 0.0
+    weighted_bonds_per_nm2: float = 0.0
+    equivalent_to: str | None = None
+    relation: str | None = None
+    apparent_lattice: ApparentLattice | None = None
+    lattice_type: str = ""
+
+    @classmethod
+    def of(cls, t: Termination, lattice: ApparentLattice) -> TerminationEntry:
+        return cls(
+            id=t.id,
+            label=t.label,
+            composition=dict(t.composition),
+            depth=t.depth,
+            layers=tuple(t.layers),
+            cut_height=t.cut_height,
+            broken_bonds_per_nm2=t.broken_bonds_per_nm2,
+            weighted_bonds_per_nm2=t.weighted_bonds_per_nm2,
+            equivalent_to=t.equivalent_to,
+            relation=t.relation,
+            apparent_lattice=lattice,
+            lattice_type=lattice_type(lattice),
+        )
 
 
 @dataclass(frozen=True)
 class TerminationsReport:
+    """Result of ``termination terminations``: layers, terminations and steps of one face."""
+
     structure: StructureSummary
-    plane: tuple
-    d: float
-    mesh: Mesh
-    layer_tol_angstrom: float
-    layers: tuple[LayerRow, ...]
-    terminations: tuple[Termination, ...]
-    steps: tuple[StepHeights, ...]
-    apparent_lattices: tuple[ApparentLattice, ...]  # per termination, default corrugation model
+    hkl: tuple[int, int, int]
+    d: float = field(metadata=ANGSTROM)
+    mesh: Mesh | None = None
+    layer_tol_angstrom: float = 0.0
+    layers: tuple[LayerRow, ...] = ()
+    terminations: tuple[TerminationEntry, ...] = ()
+    steps: tuple[StepHeights, ...] = ()
 
 
-def terminations_report(crystal, hkl, **options):
+def terminations_report(crystal: Crystal, hkl, **options) -> TerminationsReport:
     """Layers, terminations and steps of one face as a :class:`TerminationsReport`.
 
     ``options`` go to :func:`termination.surface.terminations.face_terminations`.
     """
     ft = face_terminations(crystal, hkl, **options)
-    layers = tuple(LayerRow(depth=la.depth, height=la.height, composition=la.composition) for la in ft.layers)
-    apparent = tuple(termination_corrugation(ft, t.id).apparent_lattice for t in ft.terminations)
+    layers = tuple(LayerRow(depth=la.depth, height=la.height, composition=dict(la.composition)) for la in ft.layers)
+    entries = tuple(TerminationEntry.of(t, termination_corrugation(ft, t.id).apparent_lattice) for t in ft.terminations)
     return TerminationsReport(
         structure=summarise_structure(crystal),
-        plane=ft.face.hkl,
+        hkl=ft.face.hkl,
         d=ft.d,
         mesh=ft.face.mesh,
         layer_tol_angstrom=ft.layer_tol_angstrom,
         layers=layers,
-        terminations=ft.terminations,
+        terminations=entries,
         steps=ft.steps,
-        apparent_lattices=apparent,
     )
 
 
@@ -213,16 +276,16 @@ class PolarityReport:
 
 
 def polarity_report(
-    crystal,
+    crystal: Crystal,
     plane=None,
-    max_index=None,
+    max_index: int | None = None,
     *,
     charges=None,
-    max_cell=MAX_CELL,
-    use_pymatgen=True,
+    max_cell: int = MAX_CELL,
+    use_pymatgen: bool = True,
     termination_options=None,
     **tolerances,
-):
+) -> PolarityReport:
     """Polarity of one face or of all distinct faces up to ``max_index``.
 
     Parameters
@@ -252,6 +315,7 @@ def polarity_report(
         raise PlaneError(f"give one face or a largest index, not both (plane {hkl_text(plane)}, max index {max_index})")
     max_cell = check_max_cell(max_cell)
     charged, assignment = with_formal_charges(crystal, charges, use_pymatgen=use_pymatgen, required=True)
+    assert assignment is not None  # required=True raises instead
     if plane is not None:
         faces = (face_geometry(charged, check_hkl(plane)),)
     else:
@@ -274,11 +338,11 @@ def polarity_report(
 
 @dataclass(frozen=True)
 class TerminationCorrugation:
-    """One termination's row of the ``corrugation`` report (or one of its reconstruction cells).
+    """One termination's row of the ``corrugation`` report, or one of its reconstruction cells.
 
     The pattern's fields, with the termination id, the Bravais type of the
-    apparent lattice and, for the 1x1 row, the rows of its reconstruction
-    cells (``cell`` None for 1x1).
+    apparent lattice and, for the 1x1 row, its reconstruction cells
+    (``cell`` None for 1x1).
     """
 
     id: str
@@ -286,11 +350,11 @@ class TerminationCorrugation:
     cell: str | None
     apparent_lattice: ApparentLattice
     lattice_type: str
-    neighbour_distance: float
-    row_spacings: tuple[float, ...]
-    row_angles: tuple[float, ...]
-    spots: tuple[Spot, ...]
-    reconstructions: tuple[TerminationCorrugation, ...]
+    neighbour_distance: float = field(metadata=ANGSTROM)
+    row_spacings: tuple[float, ...] = field(default=(), metadata=ANGSTROM)
+    row_angles: tuple[float, ...] = field(default=(), metadata=DEG)
+    spots: tuple[Spot, ...] = ()
+    reconstructions: tuple[TerminationCorrugation, ...] = ()
 
 
 def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=()) -> TerminationCorrugation:
@@ -301,32 +365,35 @@ def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=()) -> Ter
         apparent_lattice=p.apparent_lattice,
         lattice_type=lattice_type(p.apparent_lattice),
         neighbour_distance=p.neighbour_distance,
-        row_spacings=p.row_spacings,
-        row_angles=p.row_angles,
-        spots=p.spots,
+        row_spacings=tuple(p.row_spacings),
+        row_angles=tuple(p.row_angles),
+        spots=tuple(p.spots),
         reconstructions=tuple(reconstructions),
     )
 
 
 @dataclass(frozen=True)
 class CorrugationReport:
-    """Predicted corrugation of the terminations of one face, with the model's settings."""
+    """Result of ``termination corrugation``: what a topograph of each termination of one face shows."""
 
     structure: StructureSummary
-    plane: tuple
+    hkl: tuple[int, int, int]
     mesh: Mesh
-    visible: tuple | None
-    weights: dict
-    decay_length_angstrom: float
-    max_depth_angstrom: float | None
-    threshold: float
+    visibility: Visibility
     terminations: tuple[TerminationCorrugation, ...]
     notes: tuple[str, ...]
 
 
 def corrugation_report(
-    crystal, hkl, termination=None, *, visibility=None, reconstructions=True, charges=None, max_cell=MAX_CELL
-):
+    crystal: Crystal,
+    hkl,
+    termination: str | None = None,
+    *,
+    visibility: Visibility | None = None,
+    reconstructions: bool = True,
+    charges=None,
+    max_cell: int = MAX_CELL,
+) -> CorrugationReport:
     """Corrugation of every termination of ``hkl`` (or of one) as a :class:`CorrugationReport`.
 
     Parameters
@@ -369,13 +436,132 @@ def corrugation_report(
         rows.append(_corrugation_row(key, p, recs))
     return CorrugationReport(
         structure=summarise_structure(crystal),
-        plane=ft.face.hkl,
+        hkl=ft.face.hkl,
         mesh=ft.face.mesh,
-        visible=v.visible,
-        weights=v.weight_map,
-        decay_length_angstrom=v.decay_length_angstrom,
-        max_depth_angstrom=v.max_depth_angstrom,
-        threshold=v.threshold,
+        visibility=v,
         terminations=tuple(rows),
         notes=tuple(notes),
     )
+
+
+# --------------------------------------------------------------------------- image
+
+
+@dataclass(frozen=True)
+class ImageSource:
+    """The height map analysed: file, size in pixels, pixel size and height range."""
+
+    file: str
+    nx: int
+    ny: int
+    pixel_size_x: float = field(metadata=ANGSTROM)
+    pixel_size_y: float = field(metadata=ANGSTROM)
+    height_min: float = field(default=0.0, metadata=ANGSTROM)
+    height_max: float = field(default=0.0, metadata=ANGSTROM)
+
+
+@dataclass(frozen=True)
+class ImageReport:
+    """Result of ``termination image``: the source and what its analysis found, with the files written."""
+
+    source: ImageSource
+    analysis: HeightMapAnalysis
+    written: tuple[str, ...] = ()
+
+
+def image_report(
+    path,
+    *,
+    pixel_size=None,
+    z_unit=None,
+    mount=None,
+    out=None,
+    steps_out=None,
+    force: bool = False,
+    progress=None,
+    **parameters,
+) -> ImageReport:
+    """Analyse a height-map file, write the requested outputs, and report.
+
+    Parameters
+    ----------
+    path : path
+        Height map (see :func:`termination.imaging.reading.read_heightmap`).
+    pixel_size, z_unit : str, optional
+        Calibration; default from the sidecar file.
+    mount : 3 ints, optional
+        Mount face, written to the measurement file.
+    out, steps_out : path, optional
+        Measurement file and step list to write.
+    force : bool
+        Overwrite existing outputs.
+    progress : callable, optional
+        ``progress(fraction, stage)``.
+    **parameters
+        Analysis settings (:class:`termination.imaging.parameters.ImageParameters`).
+
+    Returns
+    -------
+    ImageReport
+    """
+    import numpy as np
+
+    from termination.errors import MeasurementError
+    from termination.identification.measurement import (
+        Measurement,
+        format_measurement,
+        format_steps,
+        measurement_from_image,
+    )
+    from termination.imaging.analysis import analyse_heightmap
+    from termination.imaging.fourier import DRIFT_NOTE
+    from termination.imaging.reading import read_heightmap, sidecar_path
+    from termination.outputs import check_outputs, write_text
+
+    check_outputs([out, steps_out], [path, sidecar_path(path)], force=force, error=MeasurementError)
+    mount = None if mount is None else Measurement(mount=tuple(mount)).mount  # a bad mount fails before the work
+    hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit)
+    analysis = analyse_heightmap(hm.heights, hm.pixel_size, progress=progress, **parameters)
+    ny, nx = hm.shape
+    comment = f"from {path} ({nx} x {ny} px, pixel {hm.pixel_size[0]:g} x {hm.pixel_size[1]:g} Å)"
+    texts = []
+    if out:
+        lattice_note = "\n" + DRIFT_NOTE if analysis.lattice is not None else ""
+        measured = measurement_from_image(analysis, mount=mount)
+        texts.append((out, format_measurement(measured, comment=comment + lattice_note)))
+    if steps_out:
+        steps = measurement_from_image(analysis).steps
+        if not steps:
+            raise MeasurementError(f"no step heights found in {path}: {steps_out} not written")
+        texts.append((steps_out, format_steps(steps, comment=comment)))
+    for target, text in texts:  # every output checked and formatted before the first is written
+        write_text(target, text, force=force, error=MeasurementError)
+    finite = hm.heights[np.isfinite(hm.heights)]
+    source = ImageSource(
+        file=str(path),
+        nx=nx,
+        ny=ny,
+        pixel_size_x=hm.pixel_size[0],
+        pixel_size_y=hm.pixel_size[1],
+        height_min=float(finite.min()),
+        height_max=float(finite.max()),
+    )
+    return ImageReport(source=source, analysis=analysis, written=tuple(str(t) for t, _ in texts))
+
+
+# --------------------------------------------------------------------------- commands
+
+
+def command_reports() -> dict[str, type]:
+    """Command name -> the record type its ``--json`` serialises (imports the imaging layer)."""
+    from termination.identification.likelihood import MatchReport
+
+    return {
+        "structures": StructuresReport,
+        "planes": PlanesReport,
+        "terminations": TerminationsReport,
+        "polarity": PolarityReport,
+        "corrugation": CorrugationReport,
+        "match": MatchReport,
+        "image": ImageReport,
+    }

@@ -320,10 +320,13 @@ def synthetic_measurement(
 ):
     """Draw a measurement from the likelihood model of candidate ``index``.
 
-    Used to test recovery and calibration: tilt from a random upward variant,
-    spacings from the candidate's periodicities, row angle from its apparent
-    lattice, steps from its step mixture (with the outlier floor), each with
-    Gaussian noise of the stated sigma plus the model's relative uncertainty.
+    Used to test recovery and calibration against the model itself: class
+    fractions of a mixed surface from the uniform prior; the tilt from a random
+    upward variant with the measurement and mount sigmas; two spacings and a
+    row angle from a random reading of a lattice of a class drawn by its
+    fraction (one spacing: a random period); steps from the weighted allowed
+    steps, with the outlier fraction of the model.  Gaussian noise of the
+    stated sigmas plus the model's relative uncertainty.
 
     Parameters
     ----------
@@ -336,37 +339,48 @@ def synthetic_measurement(
     -------
     Measurement
     """
+    from termination.identification.lattices import lattice_readings
+
     model = table.model
     c = table.candidates[index]
 
     def noisy(mu, s, rel=0.0):
         return float(mu + rng.normal() * np.hypot(s, rel * mu))
 
+    k = len(c.classes)
+    fractions = rng.dirichlet(np.ones(k)) if k > 1 else np.ones(1)
     tilt = None
     if table.mount is not None and c.tilts:
-        tilt = Value(min(max(noisy(rng.choice(c.tilts), tilt_sigma), 0.0), 90.0), tilt_sigma)
+        sigma = math.hypot(tilt_sigma, model.mount_sigma_deg)
+        tilt = Value(min(max(noisy(rng.choice(c.tilts), sigma), 0.0), 90.0), tilt_sigma)
+    cls = int(rng.choice(k, p=fractions))
+    lattice = c.lattices[cls][int(rng.integers(len(c.lattices[cls])))]
+    readings = lattice_readings(lattice.a, lattice.b, lattice.gamma)
+    p1, p2, gamma = readings[int(rng.integers(len(readings)))]
     spacings = []
-    for _ in range(n_spacings):
-        p = float(rng.choice(c.periodicities))
-        if rng.random() < model.outlier_fraction or not np.isfinite(p):
-            spacings.append(Value(float(rng.uniform(0.5, model.outlier_range_angstrom)), spacing_sigma))
-        else:
-            spacings.append(Value(abs(noisy(p, spacing_sigma, model.model_rel)), spacing_sigma))
-    spacings = tuple(spacings)
-    g = c.apparent[2] if rng.random() < 0.5 else 180.0 - c.apparent[2]
-    if rng.random() < model.outlier_fraction or not np.isfinite(g):
-        g = float(rng.uniform(1.0, 179.0))
-    row_angle = Value(min(max(noisy(g, row_angle_sigma), 1.0), 179.0), row_angle_sigma)
-    heights = []
-    h_max = model.outlier_range_angstrom
-    for _ in range(n_steps):
-        if rng.random() < model.outlier_fraction:
-            heights.append(float(rng.uniform(0.05, h_max)))
-        else:
-            k = rng.choice(len(c.step_heights), p=np.asarray(c.step_weights))
-            heights.append(abs(noisy(c.step_heights[k], step_sigma, model.model_rel)) or 0.01)
-    steps = tuple(Value(h, step_sigma) for h in heights)
-    return Measurement(mount=table.mount, tilt=tilt, row_angle=row_angle, spacings=spacings, steps=steps)
+    row_angle = None
+    if n_spacings >= 2 and np.isfinite(p2):
+        pair = [p1, p2] if rng.random() < 0.5 else [p2, p1]
+        spacings = [Value(abs(noisy(p, spacing_sigma, model.model_rel)), spacing_sigma) for p in pair]
+        g = gamma if rng.random() < 0.5 else 180.0 - gamma
+        row_angle = Value(min(max(noisy(g, row_angle_sigma), 1.0), 179.0), row_angle_sigma)
+    elif n_spacings >= 1:
+        periods = [p for p in c.periods[cls] if np.isfinite(p)]
+        if periods:
+            spacings = [Value(abs(noisy(float(rng.choice(periods)), spacing_sigma, model.model_rel)), spacing_sigma)]
+    steps = []
+    if c.step_heights:
+        lower = np.asarray(c.step_lower)
+        upper = np.asarray(c.step_upper)
+        w = fractions[lower] * fractions[upper] * np.asarray(c.step_factors)
+        w /= w.sum()
+        for _ in range(n_steps):
+            if rng.random() < model.step_outlier_fraction:
+                steps.append(Value(float(rng.uniform(0.05, model.step_range_angstrom)), step_sigma))
+            else:
+                j = int(rng.choice(len(w), p=w))
+                steps.append(Value(abs(noisy(c.step_heights[j], step_sigma, model.model_rel)) or 0.01, step_sigma))
+    return Measurement(mount=table.mount, tilt=tilt, row_angle=row_angle, spacings=tuple(spacings), steps=tuple(steps))
 
 
 # --------------------------------------------------------------------------- structures

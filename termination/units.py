@@ -18,13 +18,13 @@ __all__ = [
     "ANGSTROM",
     "ANGSTROM2",
     "DEG",
-    "PER_ANGSTROM",
-    "E",
+    "EV",
     "E_ANGSTROM",
     "E_PER_ANGSTROM",
-    "EV",
+    "PER_ANGSTROM",
     "PER_NM2",
     "SUFFIXES",
+    "E",
     "json_key",
 ]
 

@@ -2,13 +2,21 @@
 
 All functions work on small integer matrices (Miller indices, lattice
 generators in scaled fractional coordinates) and are exact.  Like the rest of
-:mod:`termination.algebra` this module imports nothing else of the package;
-bad input raises ``ValueError``.
+:mod:`termination.algebra` this module imports only the package's bottom
+modules (array aliases, numerical constants); bad input raises ``ValueError``.
 """
 
+from __future__ import annotations
+
+from collections.abc import Iterable
 from math import gcd
+from typing import SupportsInt
 
 import numpy as np
+from numpy.typing import ArrayLike
+
+from termination.arrays import IntArray
+from termination.defaults import RELATIVE_EPS
 
 __all__ = [
     "gcd_vector",
@@ -19,7 +27,7 @@ __all__ = [
 ]
 
 
-def gcd_vector(v):
+def gcd_vector(v: Iterable[SupportsInt]) -> int:
     """Greatest common divisor of the entries of an integer vector (0 for all zeros)."""
     g = 0
     for x in v:
@@ -27,33 +35,36 @@ def gcd_vector(v):
     return g
 
 
-def primitive_index(v):
+def primitive_index(v: Iterable[SupportsInt]) -> tuple[int, ...]:
     """Divide an integer vector by the gcd of its entries.
 
     >>> primitive_index([0, 2, -4])
     (0, 1, -2)
     """
-    g = gcd_vector(v)
+    ints = [int(x) for x in v]
+    g = gcd_vector(ints)
     if g == 0:
-        return tuple(int(x) for x in v)
-    return tuple(int(x) // g for x in v)
+        return tuple(ints)
+    return tuple(x // g for x in ints)
 
 
-def rationalise(values, denominator=12):
+def rationalise(values: ArrayLike, denominator: int = 12) -> IntArray:
     """Round real numbers that are multiples of 1/``denominator`` to integers scaled by it.
 
-    Returns the integer array ``round(values * denominator)``.  Used to turn
-    centring translations and primitive vectors (multiples of 1/2, 1/3, 1/4)
-    into exact integers.
+    Returns the integer array ``round(values * denominator)``, of the shape of
+    ``values``.  Used to turn centring translations and primitive vectors
+    (multiples of 1/2, 1/3, 1/4) into exact integers; a value farther than
+    :data:`~termination.defaults.RELATIVE_EPS` / ``denominator`` from such a
+    multiple raises ``ValueError``.
     """
-    scaled = np.asarray(values, dtype=float) * denominator
+    scaled = np.asarray(values, dtype=np.float64) * float(denominator)
     out = np.rint(scaled).astype(np.int64)
-    if np.max(np.abs(scaled - out), initial=0.0) > 1e-6:
+    if np.max(np.abs(scaled - out), initial=0.0) > RELATIVE_EPS:
         raise ValueError(f"values are not multiples of 1/{denominator}")
     return out
 
 
-def row_basis(generators):
+def row_basis(generators: ArrayLike) -> IntArray:
     """Basis of the integer lattice spanned by the rows of ``generators``.
 
     Parameters
@@ -63,7 +74,7 @@ def row_basis(generators):
 
     Returns
     -------
-    basis : (n, n) int ndarray
+    basis : (n, n) IntArray
         Rows in Hermite normal form (upper triangular, positive diagonal).
 
     Examples
@@ -71,9 +82,9 @@ def row_basis(generators):
     >>> row_basis([[2, 0, 0], [0, 2, 0], [0, 0, 2], [1, 1, 0], [0, 1, 1]]).tolist()
     [[1, 0, 1], [0, 1, 1], [0, 0, 2]]
     """
-    rows = [list(map(int, r)) for r in np.asarray(generators)]
+    rows: list[list[int]] = [[int(x) for x in r] for r in np.asarray(generators)]
     n = len(rows[0])
-    basis = []
+    basis: list[list[int]] = []
     for col in range(n):
         active = [r for r in rows if r[col] != 0]
         rest = [r for r in rows if r[col] == 0]
@@ -104,7 +115,7 @@ def row_basis(generators):
     return np.array(basis, dtype=np.int64)
 
 
-def unimodular_completion(h):
+def unimodular_completion(h: Iterable[SupportsInt]) -> IntArray:
     """Unimodular integer matrix whose first column pairs with ``h`` to 1.
 
     Parameters
@@ -114,7 +125,7 @@ def unimodular_completion(h):
 
     Returns
     -------
-    U : (n, n) int ndarray
+    U : (n, n) IntArray
         ``det(U) = +1`` and ``h @ U = (1, 0, ..., 0)``.  Columns 1..n-1 of ``U``
         are a basis of the integer lattice orthogonal to ``h`` (``h . u = 0``)
         and column 0 steps across one lattice plane (``h . u = 1``).
@@ -125,11 +136,11 @@ def unimodular_completion(h):
     >>> (np.array([1, 1, 1]) @ U).tolist(), round(np.linalg.det(U))
     ([1, 0, 0], 1)
     """
-    h = [int(x) for x in h]
-    n = len(h)
+    hv = [int(x) for x in h]
+    n = len(hv)
     # Columns of U as Python int lists: exact, and cheaper than numpy on 3x3.
     cols = [[int(i == j) for i in range(n)] for j in range(n)]
-    row = list(h)
+    row = list(hv)
     # Column operations (applied to U as well) reduce row to (g, 0, ..., 0).
     for j in range(1, n):
         while row[j] != 0:
@@ -144,5 +155,5 @@ def unimodular_completion(h):
         cols[0] = [-a for a in cols[0]]
         cols[1] = [-a for a in cols[1]]
     if row[0] != 1:
-        raise ValueError(f"index {tuple(h)} is not primitive (gcd {row[0]})")
+        raise ValueError(f"index {tuple(hv)} is not primitive (gcd {row[0]})")
     return np.array(cols, dtype=np.int64).T

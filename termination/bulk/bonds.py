@@ -15,14 +15,17 @@ per crystal and reused for every face.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 
 import numpy as np
 
+from termination.arrays import BoolArray, FloatArray, IntArray
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import UNIT_FORMERS, covalent_radius
-from termination.defaults import BOND_FACTOR, SHELL_FACTOR
+from termination.defaults import BOND_FACTOR, POINT_EPS_ANGSTROM, RELATIVE_EPS, ROUNDING_EPS, SHELL_FACTOR
 from termination.errors import StructureError
+from termination.units import ANGSTROM
 
 __all__ = ["BondGraph", "bond_graph"]
 
@@ -33,40 +36,47 @@ class BondGraph:
 
     Attributes
     ----------
-    source, target : (B,) int ndarray
+    source, target : (B,) IntArray
         Atom indices into the crystal's conventional cell.
-    vector : (B, 3) ndarray
+    vector : (B, 3) FloatArray
         Cartesian vector from the source atom to the bonded image of the
         target, Å.
-    length : (B,) ndarray
+    length : (B,) FloatArray
         Bond lengths, Å.
-    weight : (B,) ndarray
+    weight : (B,) FloatArray
         Dimensionless bond strength proxy w = (r_i + r_j) / R, the sum of
         covalent radii over the bond length: about 1 for an ordinary bond,
         larger for short (strong) bonds.
-    unit : (B,) bool ndarray
+    unit : (B,) BoolArray
         True for bonds between two unit-forming non-metals (B-B, C-O, Si-O,
         ...): bonds inside polyanions and clusters that a cleave keeps intact.
     bond_factor : float
+        Pairs closer than this times the sum of covalent radii were bonded.
     cutoff_angstrom : float or None
+        The fixed cutoff that replaced the radius rule, Å.
     """
 
-    source: np.ndarray
-    target: np.ndarray
-    vector: np.ndarray
-    length: np.ndarray
-    weight: np.ndarray
-    unit: np.ndarray
+    source: IntArray
+    target: IntArray
+    vector: FloatArray = field(metadata=ANGSTROM)
+    length: FloatArray = field(metadata=ANGSTROM)
+    weight: FloatArray
+    unit: BoolArray
     bond_factor: float
-    cutoff_angstrom: float | None
+    cutoff_angstrom: float | None = field(metadata=ANGSTROM)
 
     @property
-    def coordination(self):
+    def coordination(self) -> IntArray:
         """(N,) number of bonds per conventional-cell atom."""
         return np.bincount(self.source, minlength=int(self.source.max(initial=-1)) + 1)
 
 
-def bond_graph(crystal, bond_factor=BOND_FACTOR, cutoff_angstrom=None, shell_factor=SHELL_FACTOR):
+def bond_graph(
+    crystal: Crystal,
+    bond_factor: float = BOND_FACTOR,
+    cutoff_angstrom: float | None = None,
+    shell_factor: float = SHELL_FACTOR,
+) -> BondGraph:
     """Bonds of ``crystal`` (cached per crystal and parameters).
 
     Parameters
@@ -99,7 +109,7 @@ def bond_graph(crystal, bond_factor=BOND_FACTOR, cutoff_angstrom=None, shell_fac
 
 
 @lru_cache(maxsize=32)
-def _bond_graph(crystal, bond_factor, cutoff_angstrom, shell_factor):
+def _bond_graph(crystal: Crystal, bond_factor: float, cutoff_angstrom: float | None, shell_factor: float) -> BondGraph:
     radii = np.array([covalent_radius(s) for s in crystal.species])
     former = np.array([s in UNIT_FORMERS for s in crystal.species])
     pair_cut = bond_factor * (radii[:, None] + radii[None, :])
@@ -110,7 +120,7 @@ def _bond_graph(crystal, bond_factor, cutoff_angstrom, shell_factor):
     # Every atom has its own image one lattice vector away, so no nearest-neighbour
     # distance exceeds the shortest cell vector, and the first-shell rule below drops
     # anything beyond shell_factor times it: a larger cutoff only enlarges the search.
-    rmax = min(rmax, shell_factor * float(np.linalg.norm(lattice, axis=1).min()) * (1 + 1e-6))
+    rmax = min(rmax, shell_factor * float(np.linalg.norm(lattice, axis=1).min()) * (1 + RELATIVE_EPS))
     # Image range: enough cells along each axis to reach rmax (plane spacing 1/|b_i|).
     spacing = 1.0 / np.linalg.norm(crystal.reciprocal, axis=1)
     reach = np.ceil(rmax / spacing).astype(int) + 1
@@ -121,10 +131,10 @@ def _bond_graph(crystal, bond_factor, cutoff_angstrom, shell_factor):
     diff = pos[None, :, None, :] - pos[:, None, None, :] + shifts[None, None, :, :]
     cart = diff @ lattice
     dist = np.linalg.norm(cart, axis=-1)
-    dist[dist < 1e-8] = np.inf
+    dist[dist < POINT_EPS_ANGSTROM] = np.inf
     nearest = dist.min(axis=(1, 2))
     shell = shell_factor * np.maximum(nearest[:, None], nearest[None, :])
-    mask = (dist < pair_cut[:, :, None]) & (dist <= shell[:, :, None] * (1 + 1e-9))
+    mask = (dist < pair_cut[:, :, None]) & (dist <= shell[:, :, None] * (1 + ROUNDING_EPS))
     i, j, s = np.nonzero(mask)
     length = dist[i, j, s]
     weight = (radii[i] + radii[j]) / length

@@ -20,15 +20,20 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
 from itertools import product
+from typing import Literal, overload
 
 import numpy as np
 
+from termination.arrays import FloatArray, IntArray
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import check_symbol, count_species, electronegativity, parse_element_values
-from termination.defaults import NEUTRALITY_TOL_E
+from termination.defaults import NEUTRALITY_TOL_E, RELATIVE_EPS
 from termination.errors import ChargeError
+from termination.units import E
 
 __all__ = [
     "ANION_FORMERS",
@@ -60,8 +65,9 @@ Pb 2 4; Bi 3 5 -3; Th 4; U 6 4
 """
 
 
-def _parse_states(text):
-    table = {}
+def _parse_states(text: str) -> dict[str, tuple[int, ...]]:
+    """Element -> oxidation states from 'EL s1 s2; EL s1 ...' lines."""
+    table: dict[str, tuple[int, ...]] = {}
     for item in re.split(r"[;\n]", text):
         parts = item.split()
         if parts:
@@ -94,7 +100,7 @@ class ChargeAssignment:
 
     Attributes
     ----------
-    charges : dict
+    charges : dict of str to float
         Charge per element in units of e (mean over sites when the file gives
         site-resolved values), in order of first appearance.
     source : str
@@ -106,30 +112,31 @@ class ChargeAssignment:
     caution : str or None
         :data:`METAL_CAUTION` for metals and intermetallics, a note for
         elemental crystals, else None.
-    per_atom : (N,) ndarray
-        Charge per atom of the conventional cell, exactly neutral.
+    per_atom : (N,) FloatArray
+        Charge per atom of the conventional cell (units of e), exactly neutral.
     """
 
-    charges: dict
+    charges: dict[str, float] = field(metadata=E)
     source: str
     method: str
     caution: str | None
-    per_atom: np.ndarray = field(repr=False)
+    per_atom: FloatArray = field(repr=False, metadata=E)
 
     @property
-    def text(self):
+    def text(self) -> str:
         """'La +3, B -0.5' style summary."""
         return ", ".join(f"{el} {_format_charge(q)}" for el, q in self.charges.items())
 
 
-def _format_charge(q):
+def _format_charge(q: float) -> str:
+    """'+3', '-0.5' or '-1/3': thirds, sixths, ... as fractions, other charges as decimals."""
     f = Fraction(q).limit_denominator(12)
-    if abs(float(f) - q) < 1e-6 and f.denominator > 1 and f.denominator not in (2, 4, 5):
+    if abs(float(f) - q) < RELATIVE_EPS and f.denominator > 1 and f.denominator not in (2, 4, 5):
         return f"{'+' if f > 0 else '-'}{abs(f.numerator)}/{f.denominator}"
     return f"{q:+g}"
 
 
-def parse_charge_options(items):
+def parse_charge_options(items: Iterable[str] | None) -> dict[str, float]:
     """Charges per element from ``EL=Q`` strings.
 
     Parameters
@@ -150,7 +157,7 @@ def parse_charge_options(items):
     return parse_element_values(items, "--charge", ChargeError)
 
 
-def is_metallic(species):
+def is_metallic(species: Iterable[str]) -> bool:
     """True when a compound of several elements has no anion former (an intermetallic).
 
     >>> is_metallic(["Ti", "Ni", "Sn"]), is_metallic(["Ga", "As"]), is_metallic(["La", "B"])
@@ -160,7 +167,7 @@ def is_metallic(species):
     return len(elements) > 1 and not (elements & ANION_FORMERS)
 
 
-def light_guess(species):
+def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
     """Formal charges from common oxidation states solved for neutrality (pure Python).
 
     Parameters
@@ -209,7 +216,7 @@ def light_guess(species):
         return None
     counts = np.array([comp[el] for el in elements])
     chi = np.array([electronegativity(el) for el in elements])
-    best = None
+    best: tuple[int, IntArray] | None = None
     for ranks in product(*(range(len(COMMON_OXIDATION_STATES[el])) for el in elements)):
         states = np.array([COMMON_OXIDATION_STATES[el][r] for el, r in zip(elements, ranks)])
         if counts @ states != 0:
@@ -223,8 +230,8 @@ def light_guess(species):
         if best is None or score < best[0]:
             best = (score, states)
     if best is not None:
-        charges = {el: int(q) for el, q in zip(elements, best[1])}
-        return charges, "common oxidation states solved for neutrality"
+        integral: dict[str, float] = {el: int(q) for el, q in zip(elements, best[1])}
+        return integral, "common oxidation states solved for neutrality"
     anion = max(elements, key=lambda el: (electronegativity(el), el))
     if anion not in _CLUSTER_FORMERS:
         return None
@@ -235,16 +242,16 @@ def light_guess(species):
     q = -sum(comp[el] * first[el] for el in others) / comp[anion]
     if not (-4 <= q < 0):
         return None
-    charges = {el: (first[el] if el != anion else q) for el in elements}
-    return charges, f"common oxidation states, {anion} balancing as a cluster anion"
+    cluster: dict[str, float] = {el: (first[el] if el != anion else q) for el in elements}
+    return cluster, f"common oxidation states, {anion} balancing as a cluster anion"
 
 
-def pymatgen_guess(species):
+def pymatgen_guess(species: Iterable[str]) -> dict[str, float] | None:
     """pymatgen's first oxidation-state guess (``Composition.oxi_state_guesses``), or None.
 
     pymatgen is imported here, only when this function runs.
     """
-    from pymatgen.core import Composition
+    from pymatgen.core.composition import Composition
 
     comp = count_species(species)
     try:
@@ -257,7 +264,8 @@ def pymatgen_guess(species):
     return {el: float(guess.get(el, 0.0)) for el in comp}
 
 
-def _neutralise(per_atom, species, tol, what):
+def _neutralise(per_atom: FloatArray, species: Sequence[str], tol: float, what: str) -> FloatArray:
+    """(N,) charges made exactly neutral by scaling the negative ones; ChargeError beyond ``tol`` e per formula unit."""
     total = float(per_atom.sum())
     comp = count_species(species)
     formula_units = math.gcd(*comp.values())
@@ -274,21 +282,51 @@ def _neutralise(per_atom, species, tol, what):
     return per_atom
 
 
-def _by_element(per_atom, species):
-    out = {}
+def _by_element(per_atom: FloatArray, species: Sequence[str]) -> dict[str, float]:
+    """Mean charge per element, in order of first appearance."""
+    out: dict[str, float] = {}
     for el in dict.fromkeys(species):
         vals = per_atom[[s == el for s in species]]
         out[el] = float(np.mean(vals))
     return out
 
 
-def _caution(species):
+def _caution(species: Sequence[str]) -> str | None:
     if len(set(species)) == 1:
         return "elemental crystal: no layer carries a charge"
     return METAL_CAUTION if is_metallic(species) else None
 
 
-def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e=NEUTRALITY_TOL_E, required=True):
+@overload
+def assign_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    neutrality_tol_e: float = ...,
+    required: Literal[True] = ...,
+) -> ChargeAssignment: ...
+
+
+@overload
+def assign_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    neutrality_tol_e: float = ...,
+    required: bool,
+) -> ChargeAssignment | None: ...
+
+
+def assign_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = None,
+    *,
+    use_pymatgen: bool = True,
+    neutrality_tol_e: float = NEUTRALITY_TOL_E,
+    required: bool = True,
+) -> ChargeAssignment | None:
     """Formal charges of ``crystal`` from the user, the file or a guess.
 
     Parameters
@@ -324,7 +362,7 @@ def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e
     comp = count_species(species)
     caution = _caution(species)
     if charges:
-        given = {}
+        given: dict[str, float] = {}
         for el, q in dict(charges).items():
             try:
                 symbol = check_symbol(el)
@@ -366,9 +404,9 @@ def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e
         per_atom = _neutralise(per_atom, species, tol, "guessed")
         return ChargeAssignment(_by_element(per_atom, species), "guess", f"guessed: {how}", caution, per_atom)
     if use_pymatgen:
-        values = pymatgen_guess(species)
-        if values is not None:
-            per_atom = np.array([values[s] for s in species], dtype=float)
+        found = pymatgen_guess(species)
+        if found is not None:
+            per_atom = np.array([found[s] for s in species], dtype=float)
             per_atom = _neutralise(per_atom, species, tol, "guessed")
             return ChargeAssignment(
                 _by_element(per_atom, species),
@@ -386,7 +424,33 @@ def assign_charges(crystal, charges=None, *, use_pymatgen=True, neutrality_tol_e
     )
 
 
-def with_formal_charges(crystal, charges=None, *, use_pymatgen=False, required=False):
+@overload
+def with_formal_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    required: Literal[True],
+) -> tuple[Crystal, ChargeAssignment]: ...
+
+
+@overload
+def with_formal_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = ...,
+    *,
+    use_pymatgen: bool = ...,
+    required: bool = ...,
+) -> tuple[Crystal, ChargeAssignment | None]: ...
+
+
+def with_formal_charges(
+    crystal: Crystal,
+    charges: Mapping[str, float] | None = None,
+    *,
+    use_pymatgen: bool = False,
+    required: bool = False,
+) -> tuple[Crystal, ChargeAssignment | None]:
     """The crystal with formal charges on its atoms, and how they were found.
 
     The one path every command takes to charges: :func:`assign_charges`

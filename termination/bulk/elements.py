@@ -23,7 +23,7 @@ __all__ = [
     "parse_element_values",
 ]
 
-SYMBOLS = (
+SYMBOLS: list[str] = (
     "X H He Li Be B C N O F Ne Na Mg Al Si P S Cl Ar K Ca Sc Ti V Cr Mn Fe Co Ni Cu "
     "Zn Ga Ge As Se Br Kr Rb Sr Y Zr Nb Mo Tc Ru Rh Pd Ag Cd In Sn Sb Te I Xe Cs Ba "
     "La Ce Pr Nd Pm Sm Eu Gd Tb Dy Ho Er Tm Yb Lu Hf Ta W Re Os Ir Pt Au Hg Tl Pb Bi "
@@ -31,11 +31,11 @@ SYMBOLS = (
     "Rg Cn Nh Fl Mc Lv Ts Og"
 ).split()
 
-_NUMBER = {s: z for z, s in enumerate(SYMBOLS) if z > 0}
+_NUMBER: dict[str, int] = {s: z for z, s in enumerate(SYMBOLS) if z > 0}
 
 # Elements whose dust, vapour or compounds need special handling when a crystal
 # is cleaved, polished or heated (common practice in surface-science labs).
-TOXIC = {
+TOXIC: dict[str, str] = {
     "As": "toxic (arsenic)",
     "Be": "toxic dust (beryllium)",
     "Cd": "toxic (cadmium)",
@@ -58,7 +58,7 @@ TOXIC = {
 }
 
 
-def atomic_number(symbol):
+def atomic_number(symbol: str) -> int:
     """Atomic number of an element symbol.
 
     >>> atomic_number("Sn")
@@ -70,7 +70,7 @@ def atomic_number(symbol):
         raise StructureError(f"unknown element {symbol!r}") from None
 
 
-def check_symbol(symbol):
+def check_symbol(symbol: object) -> str:
     """Return ``symbol`` normalised ('na' -> 'Na'); raise StructureError if unknown."""
     text = str(symbol).strip()
     norm = text[:1].upper() + text[1:].lower()
@@ -79,7 +79,7 @@ def check_symbol(symbol):
     return norm
 
 
-def handling_caution(species):
+def handling_caution(species: Iterable[str]) -> str | None:
     """One-line handling caution for the hazardous elements among ``species``.
 
     Returns None when none of the elements is listed in :data:`TOXIC`.
@@ -99,7 +99,7 @@ def handling_caution(species):
 
 # Covalent radii (Å) by atomic number 0..103: B. Cordero et al., Dalton Trans. 2832
 # (2008), as tabulated in ASE (ase.data.covalent_radii); 2.0 where none is given.
-COVALENT_RADII = (
+COVALENT_RADII: tuple[float, ...] = (
     0.2,
     0.31,
     0.28,
@@ -208,7 +208,7 @@ COVALENT_RADII = (
 
 # Pauling electronegativities by atomic number 0..103, as tabulated in pymatgen
 # (Element.X); None where no value is defined (noble gases).
-ELECTRONEGATIVITY = (
+ELECTRONEGATIVITY: tuple[float | None, ...] = (
     0.0,
     2.2,
     None,
@@ -320,13 +320,13 @@ ELECTRONEGATIVITY = (
 UNIT_FORMERS = frozenset("H B C N O F Si P S Cl As Se Br Te I".split())
 
 
-def covalent_radius(symbol):
+def covalent_radius(symbol: str) -> float:
     """Covalent radius in Å (Cordero et al. 2008)."""
     z = atomic_number(symbol)
     return COVALENT_RADII[z] if z < len(COVALENT_RADII) else 2.0
 
 
-def electronegativity(symbol):
+def electronegativity(symbol: str) -> float:
     """Pauling electronegativity (4.0 for noble gases, so they sort last)."""
     z = atomic_number(symbol)
     x = ELECTRONEGATIVITY[z] if z < len(ELECTRONEGATIVITY) else None
@@ -399,5 +399,5 @@ def composition_label(composition: Mapping[str, float]) -> str:
     return "".join(f"{el}{'' if n == 1 else _count(n)}" for el, n in items if n)
 
 
-def _count(n):
+def _count(n: float) -> str:
     return str(int(n)) if float(n).is_integer() else f"{n:g}"

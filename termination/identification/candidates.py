@@ -1,81 +1,126 @@
-"""Candidates of an identification: what every face x termination (x cell) predicts, and its prior.
+"""Candidates of an identification: what every face, termination (and cell, and terrace mix) predicts, and its prior.
 
-A candidate is a face (hkl) with one of its terminations and, for a polar
-termination, optionally one of the reconstruction cells that could
-compensate it.  Each candidate predicts its tilt to the mount face (for
-every upward-facing symmetry variant), the periodicities and row angle of the
-corrugation it shows (the apparent lattice of
-:mod:`termination.surface.corrugation`) and the step heights between its
-terraces and those of the other terminations of the face
-(:mod:`termination.surface.steps`).  The prior is described in
-:mod:`termination.identification.likelihood`.
+A candidate is a hypothesis about the imaged surface: a face (hkl) whose
+terraces all show one termination; or, for faces with several inequivalent
+terminations, terraces of two of them (a *mixed* surface, which is what
+steps between different terminations imply); or a polar termination with
+one of the reconstruction cells that could compensate it.
+Symmetry-equivalent terminations (related by an operation that keeps the
+face) are one candidate: no measurement of topography can tell them apart.
+
+Each candidate predicts its tilt to the mount face for every upward-facing
+variant of the face, the apparent lattices its terraces show
+(:mod:`termination.surface.corrugation`) and every step its terraces can
+make (:mod:`termination.surface.steps`).  The prior and the likelihood are
+described in :mod:`termination.identification.likelihood`.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import itertools
+import math
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from termination.bulk.charges import with_formal_charges
+from termination.bulk.summary import StructureSummary, summarise_structure
 from termination.defaults import MAX_CELL, MAX_CELLS_PER_TERMINATION, MAX_INDEX
 from termination.errors import MeasurementError, StructureError
-from termination.identification.model import RECONSTRUCTED_SHARE, MatchModel
-from termination.reports import StructureSummary, summarise_structure
-from termination.surface.corrugation import Visibility, reconstruction_corrugation, termination_corrugation
+from termination.identification.lattices import periodicities
+from termination.identification.model import MatchModel
+from termination.surface.corrugation import (
+    ApparentLattice,
+    CorrugationPattern,
+    Visibility,
+    reconstruction_corrugation,
+    termination_corrugation,
+)
 from termination.surface.faces import distinct_faces, variant_tilts
 from termination.surface.miller import check_hkl
 from termination.surface.polarity import termination_polarity
-from termination.surface.steps import steps_from
-from termination.surface.terminations import face_terminations
+from termination.surface.steps import allowed_heights
+from termination.surface.terminations import FaceTerminations, TerminationRef, face_terminations
+from termination.units import ANGSTROM, DEG
 
-__all__ = ["Candidate", "CandidateTable", "candidate_table", "logsumexp"]
+__all__ = ["Candidate", "CandidateTable", "candidate_table", "fraction_grid", "logsumexp"]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Candidate:
-    """What one face x termination (x cell) predicts; independent of the measurement.
+    """What one hypothesis about the imaged surface predicts; independent of the measurement.
 
     Attributes
     ----------
     hkl : tuple of int
-    termination : str
-        Termination label.
-    termination_id : str
+    classes : tuple of TerminationRef
+        The terminations whose terraces the surface shows: one, or two for a
+        mixed surface.  Each stands for its class of symmetry-equivalent
+        terminations (``members``).
+    members : tuple of tuple of str
+        Ids of the equivalent terminations of each class.
+    relation : str or None
+        How the members of the first class are related ('rotated 90°').
     cell : str or None
         Reconstruction cell (Wood or matrix notation); None for 1x1.
     d : float
         Plane spacing, Å.
-    tilts : tuple of float
-        Tilt of each upward-facing variant to the mount, degrees (empty without a mount).
-    tilt_variants : tuple of tuple
-        The variants, same order.
-    periodicities : tuple of float
-        The K predicted spacings, Å.
-    apparent : tuple of float
-        Apparent lattice (a, b, gamma).
-    step_heights, step_weights : tuple of float
-        Allowed step heights (Å) from this termination and their mixture weights.
-    step_labels : tuple of str
-        'T1->T2' style description of each height.
+    tilts, tilt_variants
+        Tilt of each upward-facing variant to the mount (degrees) and the
+        variants; empty without a mount.
+    lattices : tuple of tuple of ApparentLattice
+        Per class, the apparent lattices its terraces may show (one for 1x1;
+        a reconstruction cell may add its multi-domain pattern).
+    periods : tuple of tuple of float
+        Per class, the periods one measured spacing may be (Å), five per lattice.
+    step_heights, step_multiples, step_lower, step_upper, step_factors, step_lower_id, step_upper_id
+        Every allowed step: height (Å), extra periods n, class index of the
+        lower and upper terrace, the factor rho^n / (|c_lower| |c_upper|) of its
+        weight, and the termination ids.  At class fractions pi the weight is
+        pi_lower pi_upper factor, normalised.
     log_prior : float
     polar : bool or None
+        Tasker type III (None without formal charges).
     """
 
-    hkl: tuple
-    termination: str
-    termination_id: str
+    hkl: tuple[int, int, int]
+    classes: tuple[TerminationRef, ...]
+    members: tuple[tuple[str, ...], ...]
+    relation: str | None
     cell: str | None
-    d: float
-    tilts: tuple
-    tilt_variants: tuple
-    periodicities: tuple
-    apparent: tuple
-    step_heights: tuple
-    step_weights: tuple
-    step_labels: tuple
-    log_prior: float
+    d: float = field(metadata=ANGSTROM)
+    tilts: tuple[float, ...] = field(default=(), metadata=DEG)
+    tilt_variants: tuple[tuple[int, int, int], ...] = ()
+    lattices: tuple[tuple[ApparentLattice, ...], ...] = ()
+    periods: tuple[tuple[float, ...], ...] = ()
+    step_heights: tuple[float, ...] = ()
+    step_multiples: tuple[int, ...] = ()
+    step_lower: tuple[int, ...] = ()
+    step_upper: tuple[int, ...] = ()
+    step_factors: tuple[float, ...] = ()
+    step_lower_id: tuple[str, ...] = ()
+    step_upper_id: tuple[str, ...] = ()
+    log_prior: float = 0.0
     polar: bool | None = None
+
+    @property
+    def termination(self) -> TerminationRef:
+        """The first (for a single termination: the) termination."""
+        return self.classes[0]
+
+    @property
+    def mixed(self) -> bool:
+        return len(self.classes) > 1
+
+    @property
+    def label(self) -> str:
+        """'SrO' or, for a mixed surface, 'SrO+TiO2'."""
+        return "+".join(c.label for c in self.classes)
+
+    @property
+    def multiplicity(self) -> int:
+        """Number of symmetry-equivalent terminations the first class stands for."""
+        return len(self.members[0])
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,7 +128,7 @@ class CandidateTable:
     """All candidates of a crystal for one mount, with the options that made them."""
 
     structure: StructureSummary
-    mount: tuple | None
+    mount: tuple[int, int, int] | None
     max_index: int
     candidates: tuple[Candidate, ...]
     model: MatchModel
@@ -91,37 +136,81 @@ class CandidateTable:
     notes: tuple[str, ...] = ()
 
 
-def _upward_tilts(crystal, variants, mount):
-    """Tilts (degrees) of the variants whose normals lie within 90° of the mount normal."""
-    ang = variant_tilts(crystal, variants, mount)
-    keep = ang <= 90.0 + 1e-6
-    return tuple(float(a) for a in ang[keep]), tuple(v for v, k in zip(variants, keep) if k)
+def logsumexp(x, axis=None):
+    """log(sum(exp(x))) along ``axis``, stable for large and -inf entries."""
+    x = np.asarray(x, dtype=float)
+    m = np.max(x, axis=axis, keepdims=True)
+    m = np.where(np.isfinite(m), m, 0.0)
+    with np.errstate(divide="ignore"):
+        out = np.log(np.sum(np.exp(x - m), axis=axis, keepdims=True)) + m
+    return np.squeeze(out, axis=axis) if axis is not None else float(out.squeeze())
 
 
-def _periodicities(a, b, gamma, row_spacings):
-    """K = 5 predicted spacings: three shortest lattice-vector lengths and two row spacings."""
-    if not np.isfinite(a):  # flat: nothing visible
-        return (float("nan"),) * 5
-    if not (np.isfinite(b) and np.isfinite(gamma)):  # stripes: one periodicity and its row spacing
-        rows = [r for r in row_spacings if np.isfinite(r)][:1] or [a]
-        return (float(a), float("nan"), float("nan"), float(rows[0]), float("nan"))
-    g = np.radians(gamma)
-    third = min(np.sqrt(a * a + b * b + 2 * a * b * np.cos(g)), np.sqrt(a * a + b * b - 2 * a * b * np.cos(g)))
-    area = a * b * np.sin(g)
-    rows = [r for r in row_spacings if np.isfinite(r)][:2] or [area / a, area / b]
-    if len(rows) == 1:
-        rows.append(rows[0])
-    return (float(a), float(b), float(third), float(rows[0]), float(rows[1]))
+def fraction_grid(k: int) -> np.ndarray:
+    """Points of the open simplex of k class fractions, uniformly spread: (G, k).
+
+    One point (1,) for k = 1; for k = 2, 19 points 0.05 ... 0.95; for k = 3,
+    the 55 points (i, j, l)/12 with i, j, l >= 1.  The mean over the grid
+    approximates the integral over a uniform (Dirichlet(1, ..., 1)) prior.
+
+    >>> fraction_grid(2).shape, float(fraction_grid(2)[0, 0])
+    ((19, 2), 0.05)
+    """
+    if k == 1:
+        return np.ones((1, 1))
+    total = {2: 20, 3: 12}.get(k, 8)
+    points = [c for c in itertools.product(range(1, total), repeat=k) if sum(c) == total]
+    return np.array(points, dtype=float) / total
 
 
-def _step_mixture(ft, t, model):
-    """Allowed heights from termination t (up and down) with weights rho^n."""
-    tops = {x.id: ft.layers[x.layers[0]].height for x in ft.terminations}
-    allowed = steps_from(t.id, tops, ft.d, model.max_multiple, ft.layer_tol_angstrom)
-    w = np.array([model.step_decay**s.multiple for s in allowed])
-    heights = tuple(s.height for s in allowed)
-    labels = tuple(f"{s.lower}->{s.upper} {'up' if s.lower == t.id else 'down'}" for s in allowed)
-    return heights, tuple(w / w.sum()), labels
+# --------------------------------------------------------------------------- prior
+
+
+def _bond_scale(values: list[float]) -> float:
+    """The unit of the broken-bond prior: the cheapest cost, or half the median where the cheapest is ~0.
+
+    A face that breaks no bond (a van der Waals gap) has w = 0; measuring the
+    others relative to it would make them impossible.  Half the median of the
+    costs is the scale then, so the gap is favoured by a few units of log
+    prior, not by infinity.
+    """
+    positive = [v for v in values if v > 0]
+    if not positive:
+        return 1.0
+    return max(min(values), 0.5 * float(np.median(positive)))
+
+
+def _class_steps(ft: FaceTerminations, classes: list[tuple[str, ...]], model: MatchModel):
+    """Every step between terraces of the given classes, with its weight factor."""
+    tops = {t.id: ft.layers[t.layers[0]].height for t in ft.terminations}
+    out = []
+    for ci, members_i in enumerate(classes):
+        for cj, members_j in enumerate(classes):
+            share = 1.0 / (len(members_i) * len(members_j))
+            for a in members_i:
+                for b in members_j:
+                    for n, h in allowed_heights(tops[a], tops[b], ft.d, model.max_multiple, ft.layer_tol_angstrom):
+                        out.append((h, n, ci, cj, share * model.step_decay**n, a, b))
+    cols = list(zip(*out)) if out else [()] * 7
+    return dict(
+        step_heights=tuple(float(v) for v in cols[0]),
+        step_multiples=tuple(int(v) for v in cols[1]),
+        step_lower=tuple(int(v) for v in cols[2]),
+        step_upper=tuple(int(v) for v in cols[3]),
+        step_factors=tuple(float(v) for v in cols[4]),
+        step_lower_id=tuple(cols[5]),
+        step_upper_id=tuple(cols[6]),
+    )
+
+
+def _lattice_entry(patterns: list[CorrugationPattern]) -> tuple[tuple[ApparentLattice, ...], tuple[float, ...]]:
+    lattices = tuple(p.apparent_lattice for p in patterns)
+    periods = tuple(
+        v
+        for p in patterns
+        for v in periodicities(p.apparent_lattice.a, p.apparent_lattice.b, p.apparent_lattice.gamma, p.row_spacings)
+    )
+    return lattices, periods
 
 
 def candidate_table(
@@ -136,7 +225,7 @@ def candidate_table(
     max_cell=MAX_CELL,
     **termination_options,
 ):
-    """Predictions of every face x termination (x reconstruction) of ``crystal``.
+    """Predictions of every face x termination (x reconstruction, x terrace mix) of ``crystal``.
 
     Parameters
     ----------
@@ -155,7 +244,8 @@ def candidate_table(
     max_cell : int
         Largest supercell index of reconstruction candidates.
     termination_options
-        Passed to :func:`termination.surface.terminations.face_terminations`.
+        Passed to :func:`termination.surface.terminations.face_terminations`
+        (``layer_tol_angstrom``, ``bond_factor``, ``bond_cutoff_angstrom``, ``unit_ratio``).
 
     Returns
     -------
@@ -168,78 +258,110 @@ def candidate_table(
     # Checked once for the crystal: per termination a species that is merely
     # absent from the top unit makes that termination flat, which is a result.
     vis.check(crystal.species, MeasurementError, "this crystal")
+    termination_options.pop("max_multiple", None)
     crystal, polar_info, notes = _polarity_provider(crystal, charges, reconstructions, max_cell, vis)
-    per_face = []
-    for f in faces:
-        ft = face_terminations(crystal, f.hkl, face=f, max_multiple=model.max_multiple, **termination_options)
-        per_face.append((f, ft))
-    w_min = min(t.weighted_bonds_per_nm2 for _, ft in per_face for t in ft.terminations)
-    w_min = max(w_min, 1e-9)
-    rows = []
-    for f, ft in per_face:
+    per_face = [
+        (f, face_terminations(crystal, f.hkl, face=f, max_multiple=model.max_multiple, **termination_options))
+        for f in faces
+    ]
+    face_costs = [min(t.weighted_bonds_per_nm2 for t in ft.terminations) for _, ft in per_face]
+    scale = _bond_scale(face_costs)
+    w_min = min(face_costs)
+    rows: list[Candidate] = []
+    for (f, ft), w_face in zip(per_face, face_costs):
         tilts, variants = ((), ()) if mount is None else _upward_tilts(crystal, f.variants, mount)
-        w_face = max(min(t.weighted_bonds_per_nm2 for t in ft.terminations), 1e-9)
-        log_face = -model.index_weight * (sum(abs(v) for v in f.hkl) - 1) - model.bond_weight * (w_face / w_min - 1)
-        log_t = np.array([-model.bond_weight * (t.weighted_bonds_per_nm2 / w_face - 1) for t in ft.terminations])
-        log_t -= np.log(np.exp(log_t).sum())
-        for t, lt in zip(ft.terminations, log_t):
-            pattern = termination_corrugation(ft, t.id, vis)
-            lat = pattern.apparent_lattice
-            heights, sw, labels = _step_mixture(ft, t, model)
-            base = dict(
-                hkl=f.hkl,
-                termination=t.label,
-                termination_id=t.id,
-                d=ft.d,
-                tilts=tilts,
-                tilt_variants=variants,
-                step_heights=heights,
-                step_weights=sw,
-                step_labels=labels,
-            )
+        log_face = -model.index_weight * (sum(abs(v) for v in f.hkl) - 1) - model.bond_weight * (w_face - w_min) / scale
+        reps = [t for t in ft.terminations if t.equivalent_to is None]
+        members = [tuple(u.id for u in ft.terminations if (u.equivalent_to or u.id) == t.id) for t in reps]
+        relation = {t.id: next((u.relation for u in ft.terminations if u.equivalent_to == t.id), None) for t in reps}
+        cost = np.array([t.weighted_bonds_per_nm2 for t in reps])
+        p_class = np.array([len(m) for m in members]) * np.exp(-model.bond_weight * (cost - w_face) / scale)
+        p_class /= p_class.sum()
+        patterns = {t.id: termination_corrugation(ft, t.id, vis) for t in reps}
+        base = dict(hkl=f.hkl, d=ft.d, tilts=tilts, tilt_variants=variants)
+        single_share = 1.0 - (model.mixed_share if len(reps) > 1 else 0.0)
+        for k, t in enumerate(reps):
+            lattices, periods = _lattice_entry([patterns[t.id]])
+            steps = _class_steps(ft, [members[k]], model)
             polar, recon = polar_info(ft, t) if polar_info else (None, ())
-            share = np.log(1 - RECONSTRUCTED_SHARE) if recon else 0.0
-            share_cell = np.log(RECONSTRUCTED_SHARE / len(recon)) if recon else 0.0
+            share = model.reconstructed_share if recon else 0.0
+            log_single = log_face + math.log(single_share * p_class[k])
+            one = dict(
+                base,
+                classes=(TerminationRef.of(t),),
+                members=(members[k],),
+                relation=relation[t.id],
+                polar=polar,
+                **steps,
+            )
             rows.append(
                 Candidate(
                     cell=None,
-                    periodicities=_periodicities(lat.a, lat.b, lat.gamma, pattern.row_spacings),
-                    apparent=(lat.a, lat.b, lat.gamma),
-                    log_prior=float(log_face + lt + share),
-                    polar=polar,
-                    **base,
+                    lattices=(lattices,),
+                    periods=(periods,),
+                    log_prior=log_single + math.log1p(-share),
+                    **one,
                 )
             )
-            for cell_name, rpat in recon:
-                rl = rpat.apparent_lattice
+            for cell_name, cell_patterns in recon:
+                cl, cp = _lattice_entry(cell_patterns)
                 rows.append(
                     Candidate(
                         cell=cell_name,
-                        periodicities=_periodicities(rl.a, rl.b, rl.gamma, rpat.row_spacings),
-                        apparent=(rl.a, rl.b, rl.gamma),
-                        log_prior=float(log_face + lt + share_cell),
-                        polar=polar,
+                        lattices=(cl,),
+                        periods=(cp,),
+                        log_prior=log_single + math.log(share / len(recon)),
+                        **one,
+                    )
+                )
+        if len(reps) > 1:
+            cheapest = sorted(range(len(reps)), key=lambda k: -p_class[k])[: model.max_mixed_classes]
+            pairs = [tuple(sorted(p)) for p in itertools.combinations(cheapest, 2)]
+            weight = np.array([p_class[i] * p_class[j] for i, j in pairs])
+            weight /= weight.sum()
+            for (i, j), w in zip(pairs, weight):
+                entries = [_lattice_entry([patterns[reps[k].id]]) for k in (i, j)]
+                rows.append(
+                    Candidate(
+                        classes=(TerminationRef.of(reps[i]), TerminationRef.of(reps[j])),
+                        members=(members[i], members[j]),
+                        relation=relation[reps[i].id],
+                        cell=None,
+                        lattices=tuple(e[0] for e in entries),
+                        periods=tuple(e[1] for e in entries),
+                        log_prior=log_face + math.log(model.mixed_share * w),
+                        polar=None,
                         **base,
+                        **_class_steps(ft, [members[i], members[j]], model),
                     )
                 )
     if model.flat_prior:
-        rows = [Candidate(**{**r.__dict__, "log_prior": 0.0}) for r in rows]
+        rows = [replace(r, log_prior=0.0) for r in rows]
     lp = np.array([r.log_prior for r in rows])
     lp -= logsumexp(lp)
-    rows = tuple(Candidate(**{**r.__dict__, "log_prior": float(v)}) for r, v in zip(rows, lp))
+    out = tuple(replace(r, log_prior=float(v)) for r, v in zip(rows, lp))
+    if vis == Visibility():
+        notes = [*notes, "imaging model: every species images alike (--visible and --weight change it)"]
     return CandidateTable(
         structure=summarise_structure(crystal),
         mount=mount,
         max_index=int(max_index),
-        candidates=rows,
+        candidates=out,
         model=model,
         visibility=vis,
         notes=tuple(notes),
     )
 
 
+def _upward_tilts(crystal, variants, mount):
+    """Tilts (degrees) of the variants whose normals lie within 90° of the mount normal."""
+    ang = variant_tilts(crystal, variants, mount)
+    keep = ang <= 90.0 + 1e-6
+    return tuple(float(a) for a in ang[keep]), tuple(v for v, k in zip(variants, keep) if k)
+
+
 def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
-    """Charged crystal and a function (ft, termination) -> (polar, [(cell, pattern), ...]).
+    """Charged crystal and a function (ft, termination) -> (polar, [(cell, [patterns]), ...]).
 
     Without formal charges (given, from the file, or the built-in guess) the
     polarity is not assessed and no reconstruction candidates are added.
@@ -263,17 +385,7 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
                 pattern = reconstruction_corrugation(ft, t.id, r, vis)
             except StructureError:
                 continue
-            cells.append((pattern.cell, pattern))
+            cells.append((pattern.cell, [pattern]))
         return pol.tasker_type == "III", cells
 
     return charged, info, notes
-
-
-def logsumexp(x, axis=None):
-    """log(sum(exp(x))) along ``axis``, stable for large and -inf entries."""
-    x = np.asarray(x, dtype=float)
-    m = np.max(x, axis=axis, keepdims=True)
-    m = np.where(np.isfinite(m), m, 0.0)
-    with np.errstate(divide="ignore"):
-        out = np.log(np.sum(np.exp(x - m), axis=axis, keepdims=True)) + m
-    return np.squeeze(out, axis=axis) if axis is not None else float(out.squeeze())

@@ -1,85 +1,104 @@
-"""The likelihood of a measurement under each candidate, the posterior ranking and the verdict: the main job.
+"""The likelihood of a measurement under each candidate, the posterior ranking, the fit check: the main job.
 
-A candidate is a face (hkl) with one of its terminations, and, where a
-measured spacing asks for a supercell, one of the reconstruction cells that
-could compensate a polar termination.  Each candidate predicts
-
-- its tilt to the mount face, for each symmetry variant of the face;
-- the periodicities and row angle of the corrugation it shows (the apparent
-  lattice of :mod:`termination.surface.corrugation`);
-- the step heights between its terraces and those of the other terminations
-  of the face (:mod:`termination.surface.terminations`).
-
-The log posterior of a candidate is log prior + the log likelihoods below;
-probabilities are normalised over all candidates (softmax).
-
-Likelihood model (Å, degrees; N(x; mu, s) is the normal density):
+Candidates are built by :mod:`termination.identification.candidates`; each
+is scored by log prior + the log likelihoods below, and probabilities are
+normalised over all candidates.  Lengths in Å, angles in degrees; N is the
+normal density and t the Student-t density with ``tail_dof`` degrees of
+freedom (:class:`~termination.identification.model.MatchModel` holds every
+number).
 
 tilt
-    L = (1/V) sum_v N(theta; phi_v, s_theta), over the V variants v of the
-    face whose normal lies within 90° of the mount normal (the exposed
-    variant is unknown; each is equally likely).
-spacings
-    Each measured spacing s_k is one of the K = 5 predicted periodicities p
-    (the three shortest lattice-vector lengths of the apparent lattice and
-    its two shortest row spacings), each equally likely, or an outlier:
-    L_k = (1 - eps) (1/K) sum_p N(s_k; p, sigma_k) + eps / s_max.
-row angle
-    L = (1 - eps) N(alpha; gamma', s_alpha) + eps / 180° with gamma'
-    whichever of gamma and 180° - gamma is closer (rows can be read at
-    either angle).  A termination on which none of the visible species lies
-    predicts no lattice and scores the floors only.
+    L = (1/V) sum_v N(theta; phi_v, s), over the V variants v of the face
+    whose normals lie within 90° of the mount normal; s^2 = s_measured^2 +
+    s_mount^2, where the mount term (default 1.5°) allows for how the sample
+    sits on its holder.
+lattice
+    Two or more spacings and a row angle are matched as one lattice
+    (:mod:`termination.identification.lattices`): the first two spacings and
+    the angle against every reading of the candidate's apparent lattice,
+    each factor a Student-t.  A spacing given alone (and any third one) is a
+    mixture over five predicted periods; a row angle alone is compared with
+    gamma and 180° - gamma.  Predicted lengths carry a relative model
+    uncertainty (default 2 %): s^2 = s_measured^2 + (model_rel p)^2.
 steps
-    Each measured height h is an independent draw from the mixture
-    p(h) = (1 - eps) sum_c pi_c N(h; H_c, sigma_h) + eps / h_max over the
-    allowed heights H_c = delta_tj + n d from the candidate's termination t
-    to every termination j of the face (up or down), weights
-    pi_c ~ rho^n (single steps most common), plus an outlier floor
-    eps / h_max.  A height that matches no allowed step falls on the floor and
-    counts against the candidate.
-uncertainties
-    sigma^2 = sigma_measured^2 + (model_rel * predicted)^2: the model adds a
-    relative uncertainty (relaxation, tip convolution) to predicted lengths.
+    Each measured height h is an independent draw from
+    p(h) = (1 - eps) sum_c w_c N(h; H_c, s_c) + eps / h_max over the allowed
+    steps c between terraces of the candidate's terminations (H_c =
+    delta + n d), with weights w_c proportional to pi_lower pi_upper rho^n:
+    the terminations weigh in by how much of the surface they cover.  A
+    single termination (with its symmetry-equivalent copies) allows only
+    the steps between its own terraces; a mixed surface of two terminations
+    also the steps between them, its fractions pi marginalised over a
+    uniform prior on a grid.  eps / h_max is the documented outlier
+    allowance (default 5 % over 50 Å).
 prior
-    log pi(F) = -index_weight (|h|+|k|+|l| - 1) - bond_weight (w_F/w_min - 1),
-    log pi(t|F) = -bond_weight (w_t/w_F - 1), normalised within the face,
-    with w the weighted broken-bond density of a termination, w_F the
-    cheapest termination of face F and w_min the cheapest of all faces.  A
-    polar (Tasker III) termination keeps half its mass as 1x1 and gives the
-    other half, in equal parts, to its best (up to four) reconstruction cells
-    from :mod:`termination.surface.polarity`.  ``flat_prior`` makes every candidate
-    equally likely a priori.
+    log pi(F) = -index_weight (|h|+|k|+|l| - 1) - bond_weight (w_F - w_min)/W,
+    with w the weighted broken-bond density of the cheapest cut of a face,
+    w_min the cheapest over all faces, and W = max(w_min, median(w)/2), so
+    that a van der Waals gap (w = 0) is favoured without making other faces
+    impossible.  Within a face, termination classes get
+    |class| exp(-bond_weight (w_t - w_F)/W), normalised; a share
+    (``mixed_share``, default 0.2) goes to mixed surfaces of the cheapest
+    terminations; a polar termination gives half its mass to its
+    reconstruction cells.  ``flat_prior`` makes every candidate equally
+    likely.
+
+The posterior of a candidate is exp(log prior + sum log L), normalised.  It
+is relative: :mod:`termination.identification.fit` checks separately that
+the best candidate fits at all.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field
 
 import numpy as np
 
+from termination.bulk.summary import StructureSummary
 from termination.defaults import MAX_INDEX
 from termination.errors import MeasurementError
-from termination.identification.candidates import candidate_table, logsumexp
-from termination.identification.measurement import Measurement
-from termination.reports import StructureSummary
-from termination.surface.corrugation import Visibility
-from termination.surface.miller import hkl_text as _hkl
+from termination.identification.candidates import Candidate, CandidateTable, candidate_table, fraction_grid, logsumexp
+from termination.identification.fit import FitCheck, fit_check
+from termination.identification.lattices import (
+    angle_log_likelihood,
+    lattice_readings,
+    pair_log_likelihood,
+    spacing_log_likelihood,
+)
+from termination.identification.measurement import Measurement, Value
+from termination.identification.model import MatchModel
+from termination.identification.verdict import Verdict, verdict
+from termination.surface.corrugation import ApparentLattice, Visibility
+from termination.surface.terminations import TerminationRef
+from termination.units import ANGSTROM, DEG
 
 __all__ = [
     "Criterion",
     "FaceProbability",
     "MatchReport",
     "MatchRow",
+    "StepCriterion",
+    "Terms",
     "effective_measurement",
     "match",
     "measurement_visibility",
     "score",
 ]
 
+_SQRT_2PI = math.sqrt(2 * math.pi)
+
 
 @dataclass(frozen=True)
 class Criterion:
-    """One measured value against a candidate's prediction."""
+    """One measured value against a candidate's prediction.
+
+    ``predicted`` is the nearest predicted value (None when the candidate
+    predicts none, e.g. no visible lattice) and ``residual`` is
+    (measured - predicted) / sigma, in units of sigma, with sigma the total
+    uncertainty used.  The unit of ``measured``, ``sigma`` and ``predicted`` is
+    given by the key that holds the criterion (``tilt_deg``, ``spacings_angstrom``).
+    """
 
     measured: float
     sigma: float
@@ -88,53 +107,104 @@ class Criterion:
 
 
 @dataclass(frozen=True)
+class StepCriterion:
+    """A measured step and the allowed step that explains it: which terraces, how many extra periods.
+
+    ``lower`` and ``upper`` are the terminations below and above the step;
+    ``multiple`` is n in delta + n d; ``outlier`` is True when no allowed step
+    lies within 3 sigma (the step falls on the outlier allowance).
+    """
+
+    measured: float
+    sigma: float
+    predicted: float | None
+    residual: float | None
+    lower: TerminationRef | None
+    upper: TerminationRef | None
+    multiple: int | None
+    outlier: bool
+
+
+@dataclass(frozen=True)
+class Terms:
+    """Log-likelihood contribution of each criterion (None where nothing was measured), and the log prior."""
+
+    log_prior: float
+    tilt: float | None
+    lattice: float | None
+    steps: float | None
+
+
+@dataclass(frozen=True)
 class MatchRow:
+    """One ranked candidate: its probability, the terms that make it, each measured value against its prediction.
+
+    ``terraces`` are the terminations its terraces show (two for a mixed
+    surface, with ``fractions`` their posterior mean shares);
+    ``multiplicity`` is the number of symmetry-equivalent terminations the
+    first one stands for and ``relation`` how they are related.
+    """
+
     rank: int
-    hkl: tuple
-    termination: str
-    termination_id: str
+    hkl: tuple[int, int, int]
+    termination: TerminationRef
+    terraces: tuple[TerminationRef, ...]
+    fractions: tuple[float, ...]
+    multiplicity: int
+    relation: str | None
     cell: str | None
     probability: float
     log_likelihood: float
-    log_prior: float
-    tilt: Criterion | None
-    spacings: tuple
-    row_angle: Criterion | None
-    steps: tuple
-    apparent_lattice: dict
-    d: float
+    terms: Terms
+    tilt: Criterion | None = field(metadata=DEG)
+    spacings: tuple[Criterion, ...] = field(metadata=ANGSTROM)
+    row_angle: Criterion | None = field(metadata=DEG)
+    steps: tuple[StepCriterion, ...] = field(metadata=ANGSTROM)
+    apparent_lattice: ApparentLattice
+    d: float = field(metadata=ANGSTROM)
+
+    @property
+    def label(self) -> str:
+        return "+".join(t.label for t in self.terraces)
 
 
 @dataclass(frozen=True)
 class FaceProbability:
-    """Posterior probability of a face, summed over its terminations and cells."""
+    """Posterior probability of a face, summed over its terminations, cells and terrace mixes."""
 
-    hkl: tuple
+    hkl: tuple[int, int, int]
     probability: float
 
 
 @dataclass(frozen=True)
 class MatchReport:
+    """Result of ``termination match``: the measurement as scored, the ranked candidates, the fit and the verdict.
+
+    ``measurement`` is the measurement with the uncertainties actually used
+    (defaults applied, the mount term included in the tilt's sigma).
+    """
+
     structure: StructureSummary
-    mount: tuple | None
-    measurement: dict
-    candidates: tuple
-    faces: tuple
+    mount: tuple[int, int, int] | None
+    measurement: Measurement
+    candidates: tuple[MatchRow, ...]
+    faces: tuple[FaceProbability, ...]
+    fit: FitCheck
     verdict: str
+    decided_by: str
     warning: str | None
-    notes: tuple
+    notes: tuple[str, ...]
 
 
-def _log_normal(x, mu, s):
-    with np.errstate(invalid="ignore"):
-        return -0.5 * ((x - mu) / s) ** 2 - np.log(s * np.sqrt(2 * np.pi))
+# --------------------------------------------------------------------------- measurement
 
 
-def effective_measurement(measurement, model):
-    """Measured values and their uncertainties with the documented defaults applied.
+def effective_measurement(measurement: Measurement, model: MatchModel) -> dict:
+    """Measured values and the uncertainties used, with the documented defaults applied.
 
-    Returns a dict with ``tilt``, ``row_angle`` ((value, sigma) or None),
-    ``spacings`` and ``steps`` ((M, 2) arrays of value, sigma).
+    Returns a dict with ``tilt`` and ``row_angle`` ((value, sigma) or None) and
+    ``spacings`` and ``steps`` ((M, 2) arrays of value, sigma).  The tilt's
+    sigma includes the mount term in quadrature.
     """
     m = measurement
     floor = 1e-3  # a zero uncertainty would make the densities singular
@@ -148,216 +218,336 @@ def effective_measurement(measurement, model):
     def pairs(values, rel, minimum):
         return np.array([pair(v, lambda x: max(rel * abs(x), minimum)) for v in values], dtype=float).reshape(-1, 2)
 
+    tilt = pair(m.tilt, lambda _: model.tilt_sigma_deg)
+    if tilt is not None:
+        tilt = (tilt[0], math.hypot(tilt[1], model.mount_sigma_deg))
     return {
-        "tilt": pair(m.tilt, lambda _: model.tilt_sigma_deg),
+        "tilt": tilt,
         "row_angle": pair(m.row_angle, lambda _: model.row_angle_sigma_deg),
         "spacings": pairs(m.spacings, model.spacing_rel, model.spacing_min_angstrom),
         "steps": pairs(m.steps, model.step_rel, model.step_min_angstrom),
     }
 
 
-def _with_floor(log_density, eps, value_range):
-    """log((1 - eps) p + eps / range): a density with a uniform outlier floor."""
-    return np.logaddexp(np.log1p(-eps) + log_density, np.log(eps / value_range))
+# --------------------------------------------------------------------------- one candidate
 
 
-def _pad(seqs, fill=np.nan):
-    n = max((len(s) for s in seqs), default=0)
-    out = np.full((len(seqs), max(n, 1)), fill, dtype=float)
-    for i, s in enumerate(seqs):
-        out[i, : len(s)] = s
-    return out
+@dataclass
+class _Scored:
+    """Everything computed for one candidate (internal)."""
+
+    loglik: float
+    terms: Terms
+    fractions: np.ndarray
+    lattice_class: int
+    reading: tuple[float, float, float] | None
+    swapped: bool
+    lattice_z: list[float]
 
 
-def _terms(table, eff):
-    """Per-candidate log-likelihood terms (vectorised over candidates)."""
-    model = table.model
-    cands = table.candidates
-    nc = len(cands)
-    out = {}
-    if eff["tilt"] is not None:
-        if table.mount is None:
-            raise MeasurementError("a tilt needs the mount face: give --mount H K L")
-        theta, s = eff["tilt"]
-        T = _pad([c.tilts for c in cands])
-        lp = _log_normal(theta, T, s)
-        lp = np.where(np.isnan(T), -np.inf, lp)
-        n = np.sum(~np.isnan(T), axis=1)
-        with np.errstate(divide="ignore"):
-            out["tilt"] = np.where(n > 0, logsumexp(lp, axis=1) - np.log(np.maximum(n, 1)), -np.inf)
-    if len(eff["spacings"]):
-        P = np.array([c.periodicities for c in cands])  # (C, K)
-        s_m, sig = eff["spacings"][:, 0], eff["spacings"][:, 1]
-        s_tot = np.sqrt(sig[None, None, :] ** 2 + (model.model_rel * P[:, :, None]) ** 2)
-        lp = _log_normal(s_m[None, None, :], P[:, :, None], s_tot)  # (C, K, M)
-        lp = np.where(np.isnan(lp), -np.inf, lp)  # no visible lattice predicted
-        mix = logsumexp(lp, axis=1) - np.log(P.shape[1])
-        s_max = max(model.outlier_range_angstrom, 1.5 * float(s_m.max()))
-        out["spacings"] = _with_floor(mix, model.outlier_fraction, s_max).sum(axis=1)
-    if eff["row_angle"] is not None:
-        alpha, s = eff["row_angle"]
-        g = np.array([c.apparent[2] for c in cands], dtype=float)
-        g[~np.isfinite(g)] = np.nan
-        pred = np.where(np.abs(alpha - g) <= np.abs(alpha - (180 - g)), g, 180 - g)
-        lp = np.where(np.isnan(pred), -np.inf, _log_normal(alpha, pred, s))
-        out["row_angle"] = _with_floor(lp, model.outlier_fraction, 180.0)
+def _tilt_term(c: Candidate, eff) -> float | None:
+    if eff["tilt"] is None:
+        return None
+    theta, s = eff["tilt"]
+    if not c.tilts:
+        return -math.inf
+    lp = -0.5 * ((theta - np.asarray(c.tilts)) / s) ** 2 - math.log(s * _SQRT_2PI)
+    return float(logsumexp(lp) - math.log(len(c.tilts)))
+
+
+def _lattice_term(lattices: tuple[ApparentLattice, ...], periods: tuple[float, ...], eff, model: MatchModel):
+    """(log L, best reading, swapped) of the spacings and row angle under one class's lattices."""
+    spacings, alpha = eff["spacings"], eff["row_angle"]
+    if not len(spacings) and alpha is None:
+        return None, None, False
+    readings = np.vstack([lattice_readings(la.a, la.b, la.gamma) for la in lattices])
+    weights = np.full(len(readings), 1.0 / len(readings))
+    p = np.asarray(periods, float)
+    pw = np.full(len(p), 1.0 / len(p))
+    total, best, swapped = 0.0, None, False
+    rest = spacings
+    if len(spacings) >= 2:
+        value, k, swapped = pair_log_likelihood(
+            readings,
+            weights,
+            tuple(spacings[0]),
+            tuple(spacings[1]),
+            alpha,
+            model_rel=model.model_rel,
+            dof=model.tail_dof,
+        )
+        total += value
+        best = tuple(float(v) for v in readings[k])
+        rest = spacings[2:]
+    elif alpha is not None:
+        total += angle_log_likelihood(alpha, readings[:, 2], weights, dof=model.tail_dof)
+    for s in rest:
+        total += spacing_log_likelihood(tuple(s), p, pw, model_rel=model.model_rel, dof=model.tail_dof)
+    return total, best, swapped
+
+
+def _step_density(c: Candidate, eff, model: MatchModel):
+    """(C, M) normal densities of every measured step under every allowed step, and the sigmas used."""
+    h = eff["steps"][:, 0]
+    sig = eff["steps"][:, 1]
+    H = np.asarray(c.step_heights, float)
+    s = np.sqrt(sig[None, :] ** 2 + (model.model_rel * H[:, None]) ** 2)
+    dens = np.exp(-0.5 * ((h[None, :] - H[:, None]) / s) ** 2) / (s * _SQRT_2PI)
+    return dens, s
+
+
+def _step_weights(c: Candidate, grid: np.ndarray) -> np.ndarray:
+    """(G, C) normalised weights of the allowed steps at each grid point of class fractions."""
+    lower = np.asarray(c.step_lower, int)
+    upper = np.asarray(c.step_upper, int)
+    w = grid[:, lower] * grid[:, upper] * np.asarray(c.step_factors, float)[None, :]
+    return w / w.sum(axis=1, keepdims=True)
+
+
+def _score_one(c: Candidate, eff, model: MatchModel) -> _Scored:
+    tilt = _tilt_term(c, eff)
+    k = len(c.classes)
+    grid = fraction_grid(k)
+    lat = [_lattice_term(c.lattices[i], c.periods[i], eff, model) for i in range(k)]
+    has_lattice = lat[0][0] is not None
+    with np.errstate(divide="ignore"):
+        log_grid = np.log(grid)
+    total_g = np.zeros(len(grid))
+    lattice_g = None
+    if has_lattice:
+        lattice_g = logsumexp(log_grid + np.array([v[0] for v in lat])[None, :], axis=1)
+        total_g = total_g + lattice_g
+    steps_g = None
     if len(eff["steps"]):
-        H = _pad([c.step_heights for c in cands])
-        W = _pad([c.step_weights for c in cands], fill=0.0)
-        h, sig = eff["steps"][:, 0], eff["steps"][:, 1]
-        s_tot = np.sqrt(sig[None, None, :] ** 2 + (model.model_rel * np.nan_to_num(H)[:, :, None]) ** 2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            lp = _log_normal(h[None, None, :], H[:, :, None], s_tot) + np.log(W)[:, :, None]
-        lp = np.where(np.isnan(H)[:, :, None], -np.inf, lp)
-        mix = logsumexp(lp, axis=1)  # (C, M)
-        h_max = max(model.outlier_range_angstrom, 1.5 * float(h.max()))
-        out["steps"] = _with_floor(mix, model.outlier_fraction, h_max).sum(axis=1)
-    for k in out:
-        out[k] = np.asarray(out[k], dtype=float).reshape(nc)
-    return out
+        if c.step_heights:
+            dens, _ = _step_density(c, eff, model)
+            mix = _step_weights(c, grid) @ dens  # (G, M)
+        else:
+            mix = np.zeros((len(grid), len(eff["steps"])))
+        eps = model.step_outlier_fraction
+        with np.errstate(divide="ignore"):
+            steps_g = np.log((1 - eps) * mix + eps / model.step_range_angstrom).sum(axis=1)
+        total_g = total_g + steps_g
+    post = total_g - logsumexp(total_g)
+    weights = np.exp(post)
+    fractions = weights @ grid
+    mean_total = float(logsumexp(total_g) - math.log(len(grid)))
+
+    def marginal(values):
+        if values is None:
+            return None
+        return float(logsumexp(values) - math.log(len(grid)))
+
+    loglik = (tilt if tilt is not None else 0.0) + mean_total
+    terms = Terms(log_prior=c.log_prior, tilt=tilt, lattice=marginal(lattice_g), steps=marginal(steps_g))
+    best_class = 0
+    if has_lattice and k > 1:
+        best_class = int(np.argmax(np.log(np.maximum(fractions, 1e-300)) + np.array([v[0] for v in lat])))
+    return _Scored(loglik, terms, fractions, best_class, lat[best_class][1], lat[best_class][2], [])
 
 
-def score(table, measurement, top=None):
+# --------------------------------------------------------------------------- rows
+
+
+def _z(value: float, predicted: float, sigma: float) -> float:
+    return (value - predicted) / sigma
+
+
+def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
+    """Per-criterion predictions and residuals of a scored candidate (for the table, the JSON and the fit)."""
+    tilt = None
+    if eff["tilt"] is not None:
+        v, s = eff["tilt"]
+        if c.tilts:
+            pred = min(c.tilts, key=lambda t: abs(v - t))
+            tilt = Criterion(v, s, pred, _z(v, pred, s))
+        else:
+            tilt = Criterion(v, s, None, None)
+    lattice = c.lattices[sc.lattice_class][0]
+    spacings: list[Criterion] = []
+    row_angle = None
+    sp = eff["spacings"]
+
+    def spacing_criterion(value, sigma, predicted):
+        if predicted is None or not math.isfinite(predicted):
+            return Criterion(value, sigma, None, None)
+        total = math.hypot(sigma, model.model_rel * predicted)
+        return Criterion(value, total, predicted, _z(value, predicted, total))
+
+    rest = sp
+    angles = [lattice.gamma] if math.isfinite(lattice.gamma) else []
+    if len(sp) >= 2 and sc.reading is not None:
+        p1, p2, g = sc.reading
+        if sc.swapped:
+            p1, p2 = p2, p1
+        spacings += [spacing_criterion(sp[0][0], sp[0][1], p1), spacing_criterion(sp[1][0], sp[1][1], p2)]
+        angles = [g] if math.isfinite(g) else []
+        rest = sp[2:]
+    periods = [p for p in c.periods[sc.lattice_class] if math.isfinite(p)]
+    for v, s in rest:
+        pred = min(periods, key=lambda p: abs(v - p) / math.hypot(s, model.model_rel * p)) if periods else None
+        spacings.append(spacing_criterion(v, s, pred))
+    if eff["row_angle"] is not None:
+        v, s = eff["row_angle"]
+        if angles:
+            g = angles[0]
+            pred = g if abs(v - g) <= abs(v - (180 - g)) else 180 - g
+            row_angle = Criterion(v, s, pred, _z(v, pred, s))
+        else:
+            row_angle = Criterion(v, s, None, None)
+    steps = []
+    if len(eff["steps"]):
+        refs = {m: ref for ref, members in zip(c.classes, c.members) for m in members}
+        if c.step_heights:
+            dens, sig = _step_density(c, eff, model)
+            w = _step_weights(c, sc.fractions[None, :])[0]
+            resp = w[:, None] * dens  # (C, M)
+            H = np.asarray(c.step_heights)
+        for m, (v, s) in enumerate(eff["steps"]):
+            if not c.step_heights:
+                steps.append(StepCriterion(v, s, None, None, None, None, None, True))
+                continue
+            zs = (v - H) / sig[:, m]
+            j = int(np.argmax(resp[:, m])) if resp[:, m].max() > 0 else int(np.argmin(np.abs(zs)))
+            if abs(zs[j]) > 3:
+                j = int(np.argmin(np.abs(zs)))
+            outlier = bool(abs(zs[j]) > 3)
+            steps.append(
+                StepCriterion(
+                    measured=float(v),
+                    sigma=float(sig[j, m]),
+                    predicted=float(H[j]),
+                    residual=float(zs[j]),
+                    lower=refs.get(c.step_lower_id[j]),
+                    upper=refs.get(c.step_upper_id[j]),
+                    multiple=int(c.step_multiples[j]),
+                    outlier=outlier,
+                )
+            )
+    return tilt, tuple(spacings), row_angle, tuple(steps), lattice
+
+
+def _row(rank: int, c: Candidate, sc: _Scored, p: float, eff, model: MatchModel) -> MatchRow:
+    tilt, spacings, row_angle, steps, lattice = _criteria(c, sc, eff, model)
+    return MatchRow(
+        rank=rank,
+        hkl=c.hkl,
+        termination=c.termination,
+        terraces=c.classes,
+        fractions=tuple(float(f) for f in sc.fractions),
+        multiplicity=c.multiplicity,
+        relation=c.relation,
+        cell=c.cell,
+        probability=float(p),
+        log_likelihood=float(sc.loglik),
+        terms=sc.terms,
+        tilt=tilt,
+        spacings=spacings,
+        row_angle=row_angle,
+        steps=steps,
+        apparent_lattice=lattice,
+        d=c.d,
+    )
+
+
+def _fit(row: MatchRow, model: MatchModel) -> FitCheck:
+    residuals = []
+    if row.tilt is not None:
+        residuals.append(("tilt", row.tilt.residual if row.tilt.residual is not None else math.inf))
+    for s in row.spacings:
+        residuals.append(("lattice", s.residual if s.residual is not None else math.inf))
+    if row.row_angle is not None:
+        residuals.append(("lattice", row.row_angle.residual if row.row_angle.residual is not None else math.inf))
+    return fit_check(
+        residuals,
+        [s.residual for s in row.steps],
+        outlier_fraction=model.step_outlier_fraction,
+        alpha=model.fit_alpha,
+        outlier_alpha=model.fit_outlier_alpha,
+    )
+
+
+# --------------------------------------------------------------------------- ranking
+
+
+def score(table: CandidateTable, measurement: Measurement, top: int | None = None) -> MatchReport:
     """Posterior probabilities of the candidates of ``table`` given ``measurement``.
 
     Returns
     -------
     MatchReport
-        Candidates ranked by probability (``top`` of them), with per-criterion
-        predictions and residuals in units of sigma.
+        Candidates ranked by probability (``top`` of them), each with its
+        per-criterion predictions, residuals and log-likelihood terms; the fit
+        check of the best; the verdict and what decided it.
     """
     if not isinstance(measurement, Measurement):
         raise MeasurementError("measurement must be a Measurement")
     if top is not None and (int(top) != top or top < 1):
         raise MeasurementError(f"--top must be a positive integer, got {top}")
-    eff = effective_measurement(measurement, table.model)
+    model = table.model
+    eff = effective_measurement(measurement, model)
     if eff["tilt"] is None and not len(eff["spacings"]) and eff["row_angle"] is None and not len(eff["steps"]):
         raise MeasurementError("nothing to match: give a tilt, spacings, a row angle or step heights")
-    terms = _terms(table, eff)
-    loglik = sum(terms.values())
-    prior = np.array([c.log_prior for c in table.candidates])
-    post = loglik + prior
+    if eff["tilt"] is not None and table.mount is None:
+        raise MeasurementError("a tilt needs the mount face: give --mount H K L")
+    cands = table.candidates
+    scored = [_score_one(c, eff, model) for c in cands]
+    loglik = np.array([s.loglik for s in scored])
+    post = loglik + np.array([c.log_prior for c in cands])
     if not np.any(np.isfinite(post)):
         raise MeasurementError("no candidate is compatible with the measurement (check the mount and tilt)")
     prob = np.exp(post - logsumexp(post))
     order = np.lexsort((np.arange(len(prob)), -np.round(prob, 12)))
-    shown = order if top is None else order[: int(top)]
-    rows = tuple(
-        _row(rank + 1, table.candidates[i], prob[i], loglik[i], eff, table.model) for rank, i in enumerate(shown)
+    rows_all = [_row(rank + 1, cands[i], scored[i], prob[i], eff, model) for rank, i in enumerate(order)]
+    faces = _face_marginals(cands, prob)
+    fit = _fit(rows_all[0], model)
+    decision: Verdict = verdict(
+        rows_all, [cands[i] for i in order], faces, fit, len(cands), default_visibility=table.visibility == Visibility()
     )
-    faces = _face_marginals(table.candidates, prob)
-    second = (
-        None
-        if len(order) < 2
-        else _row(2, table.candidates[order[1]], prob[order[1]], loglik[order[1]], eff, table.model)
-    )
-    verdict, warning = _verdict(rows[0], second, len(table.candidates), faces)
+    shown = rows_all if top is None else rows_all[: int(top)]
     notes = table.notes + (
         "An identification is a ranked hypothesis from a model, not proof: confirm it with an independent probe.",
     )
     return MatchReport(
         structure=table.structure,
         mount=table.mount,
-        measurement=_echo(eff),
-        candidates=rows,
+        measurement=_echo(eff, table.mount, table.max_index),
+        candidates=tuple(shown),
         faces=faces,
-        verdict=verdict,
-        warning=warning,
+        fit=fit,
+        verdict=decision.text,
+        decided_by=decision.decided_by,
+        warning=decision.warning,
         notes=notes,
     )
 
 
-def _echo(eff):
-    def pairs(a):
-        return [{"value": float(v), "sigma": float(s)} for v, s in a]
+def _echo(eff, mount, max_index) -> Measurement:
+    """The measurement as scored: values with the uncertainties actually used."""
 
-    return {
-        "tilt": None if eff["tilt"] is None else {"value": eff["tilt"][0], "sigma": eff["tilt"][1]},
-        "row_angle": None if eff["row_angle"] is None else {"value": eff["row_angle"][0], "sigma": eff["row_angle"][1]},
-        "spacings": pairs(eff["spacings"]),
-        "steps": pairs(eff["steps"]),
-    }
+    def values(a):
+        return tuple(Value(float(v), float(sg)) for v, sg in a)
 
-
-def _nearest(value, options, sigma_of):
-    options = np.asarray(options, dtype=float)
-    if options.size == 0:
-        return None, None
-    sig = np.array([sigma_of(p) for p in options])
-    z = (value - options) / sig
-    if not np.any(np.isfinite(z)):
-        return None, None
-    i = int(np.nanargmin(np.abs(z)))
-    return float(options[i]), float(z[i])
-
-
-def _row(rank, c, p, ll, eff, model):
-    tilt = None
-    if eff["tilt"] is not None:
-        v, s = eff["tilt"]
-        pred, res = _nearest(v, c.tilts, lambda _: s)
-        tilt = Criterion(v, s, pred, res)
-    spacings = tuple(
-        Criterion(v, s, *_nearest(v, c.periodicities, lambda p, s=s: np.hypot(s, model.model_rel * p)))
-        for v, s in eff["spacings"]
-    )
-    row_angle = None
-    if eff["row_angle"] is not None:
-        v, s = eff["row_angle"]
-        g = c.apparent[2]
-        pred = g if abs(v - g) <= abs(v - (180 - g)) else 180 - g
-        row_angle = Criterion(v, s, pred, (v - pred) / s)
-    steps = tuple(
-        Criterion(v, s, *_nearest(v, c.step_heights, lambda h, s=s: np.hypot(s, model.model_rel * h)))
-        for v, s in eff["steps"]
-    )
-    return MatchRow(
-        rank=rank,
-        hkl=c.hkl,
-        termination=c.termination,
-        termination_id=c.termination_id,
-        cell=c.cell,
-        probability=float(p),
-        log_likelihood=float(ll),
-        log_prior=float(c.log_prior),
-        tilt=tilt,
-        spacings=spacings,
-        row_angle=row_angle,
-        steps=steps,
-        apparent_lattice={"a": c.apparent[0], "b": c.apparent[1], "gamma": c.apparent[2]},
-        d=c.d,
+    return Measurement(
+        mount=mount,
+        max_index=max_index,
+        tilt=None if eff["tilt"] is None else Value(*eff["tilt"]),
+        row_angle=None if eff["row_angle"] is None else Value(*eff["row_angle"]),
+        spacings=values(eff["spacings"]),
+        steps=values(eff["steps"]),
     )
 
 
-def _face_marginals(candidates, prob):
+def _face_marginals(candidates, prob) -> tuple[FaceProbability, ...]:
     """Faces ranked by their summed probability."""
-    total = {}
+    total: dict[tuple[int, int, int], float] = {}
     for c, p in zip(candidates, prob):
         total[c.hkl] = total.get(c.hkl, 0.0) + float(p)
     ranked = sorted(total.items(), key=lambda kv: (-round(kv[1], 12), kv[0]))
     return tuple(FaceProbability(hkl=h, probability=p) for h, p in ranked)
 
 
-def _verdict(best, second, n_candidates, faces):
-    cell = "" if best.cell is None else f" {best.cell}"
-    verdict = (
-        f"Most likely {_hkl(best.hkl)} {best.termination}-terminated{cell}, probability {best.probability:.2f} "
-        f"among {n_candidates} candidates; face {_hkl(faces[0].hkl)} with probability {faces[0].probability:.2f} "
-        "over its terminations (a ranked hypothesis, not proof)."
-    )
-    warning = None
-    if second is not None and second.probability > 0 and best.probability / second.probability < 2.0:
-        warning = (
-            f"Ambiguous: the runner-up {_hkl(second.hkl)} {second.termination}"
-            f"{'' if second.cell is None else ' ' + second.cell} is within a factor of 2 "
-            f"(p = {second.probability:.2f}); measure more (steps, a second spacing, the tilt) to separate them."
-        )
-        if len(faces) > 1 and faces[1].probability > 0 and faces[0].probability / faces[1].probability < 2.0:
-            warning += f" The faces {_hkl(faces[0].hkl)} and {_hkl(faces[1].hkl)} are themselves within a factor of 2."
-    return verdict, warning
-
-
-def match(crystal, measurement, *, top=None, **options):
+def match(crystal, measurement: Measurement, *, top: int | None = None, **options) -> MatchReport:
     """Rank the faces and terminations of ``crystal`` against ``measurement``.
 
     ``options`` go to :func:`termination.identification.candidates.candidate_table`;
@@ -373,9 +563,9 @@ def match(crystal, measurement, *, top=None, **options):
     return score(table, measurement, top=top)
 
 
-def measurement_visibility(measurement):
+def measurement_visibility(measurement: Measurement) -> Visibility:
     """The corrugation model a measurement file asks for (visible species, weights, decay length)."""
-    kw = {}
+    kw: dict = {}
     if measurement.visible:
         kw["visible"] = measurement.visible
     if measurement.weights:

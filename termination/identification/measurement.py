@@ -11,19 +11,19 @@ File format (TOML, lengths in Å, angles in degrees, every key optional)::
     # termination measurement file
     mount = [0, 0, 1]                            # face the crystal was mounted on
     max_index = 3
-    tilt = { value = 30.0, sigma = 3.0 }         # terrace plane vs mount face, deg
-    row_angle = { value = 60.0, sigma = 3.0 }    # deg
-    spacings = [ { value = 4.6, sigma = 0.2 } ]  # corrugation periodicities, Å
-    steps = [ { value = 1.25, sigma = 0.1 } ]    # step heights, Å
+    tilt = { value = 54.0, sigma = 2.0 }           # terrace plane vs mount face, deg
+    row_angle = { value = 90.0, sigma = 4.0 }      # deg
+    spacings = [ { value = 4.19, sigma = 0.15 } ]  # corrugation periodicities, Å
+    steps = [ { value = 2.97, sigma = 0.12 } ]     # step heights, Å
     [visibility]
     visible = ["Sn"]
     weights = { Na = 0.2 }
     decay_length = 1.0                           # Å
 
-A measured value is written as a table ``{ value = 30.0, sigma = 3.0 }``;
+A measured value is written as a table ``{ value = 54.0, sigma = 2.0 }``;
 ``sigma`` may be left out, and then the consumer applies its documented
-default. A bare number (``tilt = 30.0``) or a string in the command-line
-syntax (``tilt = "30+-3"``) is read too.
+default. A bare number (``tilt = 54.0``) or a string in the command-line
+syntax (``tilt = "54+-2"``) is read too.
 
 The step list of ``termination match --steps FILE`` is a plain text file with
 one height in Å per line, an optional second column with its sigma, ``#``
@@ -38,8 +38,11 @@ import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
+from termination.defaults import MAX_LENGTH_ANGSTROM
 from termination.errors import MeasurementError
+from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
+from termination.units import ANGSTROM, DEG
 
 __all__ = [
     "Measurement",
@@ -58,6 +61,11 @@ __all__ = [
 _VALUE_RE = re.compile(rf"^\s*(?P<value>{NUMBER_PATTERN})\s*(?:(?:\+-|\+/-|±)\s*(?P<sigma>{NUMBER_PATTERN}))?\s*$")
 _SYMBOL_RE = re.compile(r"^[A-Z][a-z]{0,2}$")
 _BARE_KEY_RE = re.compile(r"^[A-Za-z0-9_-]+$")
+
+#: Largest number of spacings or of steps in one measurement.
+MAX_VALUES = 10_000
+#: Largest accepted uncertainty of a measured value (Å or degrees).
+SIGMA_LIMIT = 1000.0
 
 _TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "visibility"}
 _VISIBILITY_KEYS = {"visible", "weights", "decay_length"}
@@ -87,8 +95,8 @@ class Value:
 
     Examples
     --------
-    >>> Value(30.0, 3.0)
-    Value(value=30.0, sigma=3.0)
+    >>> Value(54.0, 2.0)
+    Value(value=54.0, sigma=2.0)
     """
 
     value: float
@@ -138,13 +146,13 @@ class Measurement:
 
     mount: tuple[int, int, int] | None = None
     max_index: int | None = None
-    tilt: Value | None = None
-    row_angle: Value | None = None
-    spacings: tuple[Value, ...] = ()
-    steps: tuple[Value, ...] = ()
+    tilt: Value | None = field(default=None, metadata=DEG)
+    row_angle: Value | None = field(default=None, metadata=DEG)
+    spacings: tuple[Value, ...] = field(default=(), metadata=ANGSTROM)
+    steps: tuple[Value, ...] = field(default=(), metadata=ANGSTROM)
     visible: tuple[str, ...] = ()
     weights: dict[str, float] = field(default_factory=dict)
-    decay_length: float | None = None
+    decay_length: float | None = field(default=None, metadata=ANGSTROM)
 
     def __post_init__(self):
         _check_measurement(self)
@@ -194,9 +202,16 @@ def _check_measurement(m):
     for name in ("spacings", "steps"):
         values = tuple(getattr(m, name))
         unit = "spacing" if name == "spacings" else "step height"
+        if len(values) > MAX_VALUES:
+            raise MeasurementError(f"at most {MAX_VALUES} {name} can be matched, got {len(values)}")
         for v in values:
-            _check_value(v, f"{unit} (Å)", 0.0, math.inf, True, True)
+            _check_value(v, f"{unit} (Å)", 0.0, MAX_LENGTH_ANGSTROM, True, False)
         set_(m, name, values)
+    for name in ("tilt", "row_angle", "spacings", "steps"):
+        value = getattr(m, name)
+        for v in value if isinstance(value, tuple) else (value,):
+            if v is not None and v.sigma is not None and v.sigma > SIGMA_LIMIT:
+                raise MeasurementError(f"sigma of {name} must be at most {SIGMA_LIMIT:g}, got {v.sigma:g}")
     visible = tuple(m.visible)
     for s in visible:
         if not isinstance(s, str) or not _SYMBOL_RE.match(s):
@@ -221,7 +236,7 @@ def _check_measurement(m):
 
 
 def parse_value(text):
-    """Parse a measured value written as ``30``, ``30+-3``, ``30±3`` or ``30 +/- 3``.
+    """Parse a measured value written as ``54``, ``54+-2``, ``54±2`` or ``54 +/- 2``.
 
     Parameters
     ----------
@@ -241,18 +256,18 @@ def parse_value(text):
 
     Examples
     --------
-    >>> parse_value("30+-3")
-    Value(value=30.0, sigma=3.0)
-    >>> parse_value("1.25 ± 0.1")
-    Value(value=1.25, sigma=0.1)
-    >>> parse_value("4.6")
-    Value(value=4.6, sigma=None)
+    >>> parse_value("54+-2")
+    Value(value=54.0, sigma=2.0)
+    >>> parse_value("2.97 ± 0.12")
+    Value(value=2.97, sigma=0.12)
+    >>> parse_value("4.19")
+    Value(value=4.19, sigma=None)
     """
     if not isinstance(text, str):
-        raise MeasurementError(f"a measured value must be text like '30+-3', got {text!r}")
+        raise MeasurementError(f"a measured value must be text like '54+-2', got {text!r}")
     match = _VALUE_RE.match(text)
     if match is None:
-        raise MeasurementError(f"cannot read {text!r} as a measured value; write e.g. '30', '30+-3' or '30±3'")
+        raise MeasurementError(f"cannot read {text!r} as a measured value; write e.g. '54', '54+-2' or '54±2'")
     value = float(match["value"])
     sigma = match["sigma"]
     if sigma is not None:
@@ -416,10 +431,10 @@ def format_measurement(measurement, *, comment=None):
 
     Examples
     --------
-    >>> print(format_measurement(Measurement(mount=(0, 0, 1), steps=(Value(1.25, 0.1),))), end="")
+    >>> print(format_measurement(Measurement(mount=(0, 0, 1), steps=(Value(2.97, 0.12),))), end="")
     # termination measurement file
     mount = [0, 0, 1]
-    steps = [ { value = 1.25, sigma = 0.1 } ]  # Å
+    steps = [ { value = 2.97, sigma = 0.12 } ]  # Å
     """
     if not isinstance(measurement, Measurement):
         raise MeasurementError(f"expected a Measurement, got {type(measurement).__name__}")
@@ -454,16 +469,7 @@ def format_measurement(measurement, *, comment=None):
 
 
 def _write_new(path, text, force, error):
-    path = Path(path)
-    mode = "w" if force else "x"
-    try:
-        with open(path, mode, encoding="utf-8") as fh:
-            fh.write(text)
-    except FileExistsError:
-        raise error(f"{str(path)!r} exists; pass force=True (--force) to overwrite it") from None
-    except OSError as exc:
-        raise error(f"cannot write {str(path)!r}: {exc.strerror}") from None
-    return path
+    return write_text(path, text, force=force, error=error)
 
 
 def write_measurement(path, measurement, *, force=False, comment=None):
@@ -508,8 +514,8 @@ def read_steps(path):
     ----------
     path : str or path-like
         Text file. Each non-blank line holds a height and optionally its
-        sigma, separated by whitespace or a comma; ``1.25+-0.1`` and
-        ``1.25 ± 0.1`` are read too. ``#`` starts a comment.
+        sigma, separated by whitespace or a comma; ``2.97+-0.12`` and
+        ``2.97 ± 0.12`` are read too. ``#`` starts a comment.
 
     Returns
     -------
@@ -561,10 +567,10 @@ def format_steps(steps, *, comment=None):
 
     Examples
     --------
-    >>> print(format_steps([Value(1.25, 0.01), Value(2.5)]), end="")
+    >>> print(format_steps([Value(2.97, 0.01), Value(5.9)]), end="")
     # step height (Å)  sigma (Å)
-    1.25 0.01
-    2.5
+    2.97 0.01
+    5.9
     """
     lines = []
     if comment:

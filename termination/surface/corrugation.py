@@ -16,23 +16,32 @@ fractional-order spots (a 2x1 vacancy row: half-order spots).
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from collections.abc import Collection, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import cast
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from termination.algebra.integer import row_basis
 from termination.algebra.lattice2d import cell_notation, coset_representatives, reduced_obtuse
+from termination.arrays import BoolArray, ComplexArray, FloatArray, IntArray
 from termination.bulk.elements import check_symbol
 from termination.defaults import (
     DECAY_LENGTH_ANGSTROM,
+    FRACTIONAL_EPS,
+    LENGTH_EPS_ANGSTROM,
     MAX_DEPTH_ANGSTROM,
     MAX_SPOT_ORDER,
     MAXIMUM_FRACTION,
+    ROUNDING_EPS,
     SITE_TOL_ANGSTROM,
     SPOT_THRESHOLD,
 )
 from termination.errors import StructureError
+from termination.surface.reconstructions import Reconstruction
+from termination.surface.terminations import FaceTerminations
+from termination.units import ANGSTROM, DEG, PER_ANGSTROM
 
 __all__ = [
     "ApparentLattice",
@@ -49,21 +58,19 @@ __all__ = [
     "termination_corrugation",
 ]
 
-# Relative |F|/F(0) below this is rounding noise, whatever the threshold.
-_NOISE = 1e-9
-
 
 @dataclass(frozen=True)
 class Spot:
     """One Fourier spot of the corrugation.
 
     ``g`` is (h, k) in units of the 1x1 surface reciprocal mesh (a*, b*, with
-    a . a* = 1), fractional for a reconstruction cell; ``length`` is |G| in
-    1/Å (no factor 2 pi); ``intensity`` is |F(G)|/F(0).
+    a . a* = 1): integers for the 1x1 cell, fractional for a reconstruction
+    cell; ``length`` is |G| in 1/Å (no factor 2 pi); ``intensity`` is
+    |F(G)|/F(0).
     """
 
-    g: tuple
-    length: float
+    g: tuple[float, float]
+    length: float = field(metadata=PER_ANGSTROM)
     intensity: float
 
 
@@ -75,9 +82,9 @@ class ApparentLattice:
     period ``a``); ``a`` and ``b`` are inf when no spot is visible.
     """
 
-    a: float
-    b: float
-    gamma: float
+    a: float = field(metadata=ANGSTROM)
+    b: float = field(metadata=ANGSTROM)
+    gamma: float = field(metadata=DEG)
 
 
 @dataclass(frozen=True)
@@ -105,31 +112,31 @@ class CorrugationPattern:
 
     label: str
     apparent_lattice: ApparentLattice
-    neighbour_distance: float
-    row_spacings: tuple
-    row_angles: tuple
-    spots: tuple
+    neighbour_distance: float = field(metadata=ANGSTROM)
+    row_spacings: tuple[float, ...] = field(metadata=ANGSTROM)
+    row_angles: tuple[float, ...] = field(metadata=DEG)
+    spots: tuple[Spot, ...]
     cell: str | None
 
 
 # Array functions ------------------------------------------------------------------------
 
 
-def structure_factor(g_cartesian, inplane, amplitudes):
+def structure_factor(g_cartesian: ArrayLike, inplane: ArrayLike, amplitudes: ArrayLike) -> ComplexArray:
     """2D structure factor F(G) = sum_j A_j exp(2 pi i G . r_j).
 
     Parameters
     ----------
-    g_cartesian : (M, 2) ndarray
+    g_cartesian : (M, 2) array_like
         Reciprocal vectors in 1/Å without the factor 2 pi (G . a = integer).
-    inplane : (N, 2) ndarray
+    inplane : (N, 2) array_like
         Site positions in the plane, Cartesian, Å.
-    amplitudes : (N,) ndarray
+    amplitudes : (N,) array_like
         Site amplitudes A_j.
 
     Returns
     -------
-    F : (M,) complex ndarray
+    F : (M,) ComplexArray
 
     Examples
     --------
@@ -138,52 +145,55 @@ def structure_factor(g_cartesian, inplane, amplitudes):
     [2.0, 0.0]
     """
     phase = np.exp(2j * np.pi * (np.asarray(g_cartesian, float) @ np.asarray(inplane, float).T))
-    return phase @ np.asarray(amplitudes, float)
+    return cast(ComplexArray, phase @ np.asarray(amplitudes, float))
 
 
-def reciprocal_points(cell_inplane, g_max):
+def reciprocal_points(cell_inplane: ArrayLike, g_max: float) -> tuple[IntArray, FloatArray]:
     """Reciprocal-lattice points of a 2D cell with 0 < |G| <= g_max.
 
     Parameters
     ----------
-    cell_inplane : (2, 2) ndarray
+    cell_inplane : (2, 2) array_like
         Cell vectors as rows, Cartesian, Å.
     g_max : float
         Largest |G|, 1/Å (no 2 pi).
 
     Returns
     -------
-    n : (M, 2) int ndarray
+    n : (M, 2) IntArray
         Indices in the reciprocal basis of the cell (rows of inv(cell).T).
-    g : (M, 2) ndarray
+    g : (M, 2) FloatArray
         G = n @ inv(cell).T, Cartesian, 1/Å.
     """
     cell = np.asarray(cell_inplane, float)
     recip = np.linalg.inv(cell).T
     # G = n @ recip  =>  n_i = G . cell_i, so |n_i| <= g_max |cell_i|.
-    bound = np.floor(g_max * np.linalg.norm(cell, axis=1) + 1e-9).astype(int)
+    bound = np.floor(g_max * np.linalg.norm(cell, axis=1) + ROUNDING_EPS).astype(np.int64)
     i, j = np.meshgrid(np.arange(-bound[0], bound[0] + 1), np.arange(-bound[1], bound[1] + 1), indexing="ij")
     n = np.column_stack([i.ravel(), j.ravel()])
     g = n @ recip
     length = np.linalg.norm(g, axis=1)
-    keep = (length > 0) & (length <= g_max * (1 + 1e-9))
+    keep = (length > 0) & (length <= g_max * (1 + ROUNDING_EPS))
     return n[keep], g[keep]
 
 
-def _angle(u, v):
+def _angle(u: FloatArray, v: FloatArray) -> float:
+    """Angle between two vectors, degrees (0..180)."""
     c = (u @ v) / (np.linalg.norm(u) * np.linalg.norm(v))
     return float(np.degrees(np.arccos(np.clip(c, -1.0, 1.0))))
 
 
-def _line_angle(u, v):
+def _line_angle(u: FloatArray, v: FloatArray) -> float:
+    """Angle between the lines along two vectors, degrees (0..90)."""
     a = _angle(u, v)
     return min(a, 180.0 - a)
 
 
-def _visible_lattice(n_visible, recip):
-    """Basis of the reciprocal lattice generated by the visible indices.
+def _visible_lattice(n_visible: IntArray, recip: FloatArray) -> tuple[int, FloatArray]:
+    """Basis of the reciprocal lattice generated by the visible indices ``n_visible`` (V, 2).
 
-    Returns (rank, basis (rank, 2) Cartesian 1/Å).
+    Returns (rank, basis (rank, 2) Cartesian 1/Å); ``recip`` holds the (2, 2)
+    reciprocal rows of the cell.
     """
     if len(n_visible) == 0:
         return 0, np.zeros((0, 2))
@@ -198,8 +208,8 @@ def _visible_lattice(n_visible, recip):
     return 1, (int(np.gcd.reduce(np.abs(coeff))) * p)[None, :].astype(float) @ recip
 
 
-def _neighbour_distance(sites, basis, site_tol):
-    """Shortest distance between maxima, periodic in the 2D lattice ``basis`` (rows)."""
+def _neighbour_distance(sites: FloatArray, basis: FloatArray, site_tol: float) -> float:
+    """Shortest distance between maxima ``sites`` (N, 2), periodic in the 2D lattice ``basis`` (rows), Å."""
     frac = sites @ np.linalg.inv(basis)
     diff = frac[:, None, :] - frac[None, :, :]
     diff -= np.rint(diff)
@@ -210,31 +220,31 @@ def _neighbour_distance(sites, basis, site_tol):
 
 
 def pattern_from_sites(
-    inplane,
-    amplitudes,
-    cell_inplane,
-    mesh_inplane,
+    inplane: ArrayLike,
+    amplitudes: ArrayLike,
+    cell_inplane: ArrayLike,
+    mesh_inplane: ArrayLike,
     *,
-    threshold=SPOT_THRESHOLD,
-    max_order=MAX_SPOT_ORDER,
-    maximum_fraction=MAXIMUM_FRACTION,
-    site_tol_angstrom=SITE_TOL_ANGSTROM,
-    label="",
-    cell=None,
-):
+    threshold: float = SPOT_THRESHOLD,
+    max_order: float = MAX_SPOT_ORDER,
+    maximum_fraction: float = MAXIMUM_FRACTION,
+    site_tol_angstrom: float = SITE_TOL_ANGSTROM,
+    label: str = "",
+    cell: str | None = None,
+) -> CorrugationPattern:
     """Visible spots, apparent lattice, maxima and rows of a weighted site pattern.
 
     Parameters
     ----------
-    inplane : (N, 2) ndarray
+    inplane : (N, 2) array_like
         Sites of one cell, Cartesian in the face frame, Å.
-    amplitudes : (N,) ndarray
+    amplitudes : (N,) array_like
         Non-negative site amplitudes; all zero gives a flat pattern (no spots,
         apparent lattice inf x inf).
-    cell_inplane : (2, 2) ndarray
+    cell_inplane : (2, 2) array_like
         Rows: the cell the sites repeat with (the mesh, or a supercell of it), Å.
-    mesh_inplane : (2, 2) ndarray
-        Rows: the 1x1 mesh a, b; spot indices are given in its reciprocal basis.
+    mesh_inplane : (2, 2) array_like
+        Rows: the 1x1 mesh a, b (Å); spot indices are given in its reciprocal basis.
     threshold : float
         A spot is visible when |F(G)|/F(0) > threshold.
     max_order : float
@@ -264,28 +274,28 @@ def pattern_from_sites(
     """
     cell_arr = np.asarray(cell_inplane, float)
     mesh = np.asarray(mesh_inplane, float)
-    amplitudes = np.asarray(amplitudes, float)
-    inplane = np.asarray(inplane, float)
+    amp = np.asarray(amplitudes, float)
+    sites = np.asarray(inplane, float)
     inf = float("inf")
-    if not amplitudes.sum() > 0:  # nothing images: no corrugation
+    if not amp.sum() > 0:  # nothing images: no corrugation
         flat = ApparentLattice(a=inf, b=inf, gamma=90.0)
         return CorrugationPattern(label, flat, inf, (), (), (), cell)
     recip = np.linalg.inv(cell_arr).T
     g_max = float(max_order) * float(np.max(np.linalg.norm(np.linalg.inv(mesh).T, axis=1)))
     n, g = reciprocal_points(cell_arr, g_max)
-    F = structure_factor(g, inplane, amplitudes)
-    intensity = np.abs(F) / amplitudes.sum()
-    vis = intensity > max(float(threshold), _NOISE)
+    F = structure_factor(g, sites, amp)
+    intensity = np.abs(F) / amp.sum()
+    vis = intensity > max(float(threshold), ROUNDING_EPS)  # |F|/F(0) below it is rounding noise
     # Spot indices in the 1x1 reciprocal basis: G = h a* + k b*, h = G . a.
     hk = g[vis] @ mesh.T
     hk_int = np.rint(hk)
-    hk = np.where(np.abs(hk - hk_int) < 1e-9, hk_int, np.round(hk, 10)) + 0.0
+    hk = np.where(np.abs(hk - hk_int) < FRACTIONAL_EPS, hk_int, np.round(hk, 10)) + 0.0
     length = np.linalg.norm(g[vis], axis=1)
     order = np.lexsort((hk[:, 1], hk[:, 0], np.round(length, 9)))
     integral = np.allclose(cell_arr, mesh)
     spots = tuple(
         Spot(
-            g=tuple(int(v) for v in hk[i]) if integral else tuple(float(v) for v in hk[i]),
+            g=(int(hk[i, 0]), int(hk[i, 1])) if integral else (float(hk[i, 0]), float(hk[i, 1])),
             length=float(length[i]),
             intensity=float(intensity[vis][i]),
         )
@@ -293,7 +303,9 @@ def pattern_from_sites(
     )
 
     rank, gbasis = _visible_lattice(n[vis], recip)
-    maxima = inplane[amplitudes >= float(maximum_fraction) * amplitudes.max()]
+    maxima = sites[amp >= float(maximum_fraction) * amp.max()]
+    row_spacings: tuple[float, ...]
+    row_angles: tuple[float, ...]
     if rank == 2:
         real = np.linalg.inv(gbasis).T
         v1, v2 = reduced_obtuse(real[0], real[1])
@@ -323,7 +335,7 @@ def pattern_from_sites(
     )
 
 
-def lattice_type(lattice, length_tol_angstrom=0.02, angle_tol_degrees=0.5):
+def lattice_type(lattice: ApparentLattice, length_tol_angstrom: float = 0.02, angle_tol_degrees: float = 0.5) -> str:
     """2D Bravais type of an apparent lattice.
 
     Returns one of 'square', 'hexagonal', 'rectangular', 'centred rectangular',
@@ -368,7 +380,8 @@ class Visibility:
     Attributes
     ----------
     visible : tuple of str or None
-        Only these species image (weight 1, the others 0); None: all.
+        Only these species image (weight 1, the others 0); None: all.  Any
+        iterable of symbols is accepted and stored sorted.
     weights : tuple of (str, float)
         Weight overrides per species, w >= 0 (``{"B": 0.3}`` is accepted and
         stored sorted); they apply also to species ``visible`` leaves out.
@@ -389,23 +402,25 @@ class Visibility:
     """
 
     visible: tuple[str, ...] | None = None
-    weights: tuple[tuple[str, float], ...] = ()
-    decay_length_angstrom: float = DECAY_LENGTH_ANGSTROM
-    max_depth_angstrom: float | None = None
+    weights: tuple[tuple[str, float], ...] = field(default=(), metadata={"mapping": True})
+    decay_length_angstrom: float = field(default=DECAY_LENGTH_ANGSTROM, metadata=ANGSTROM)
+    max_depth_angstrom: float | None = field(default=None, metadata=ANGSTROM)
     threshold: float = SPOT_THRESHOLD
     max_order: float = MAX_SPOT_ORDER
     maximum_fraction: float = MAXIMUM_FRACTION
-    site_tol_angstrom: float = SITE_TOL_ANGSTROM
+    site_tol_angstrom: float = field(default=SITE_TOL_ANGSTROM, metadata=ANGSTROM)
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
+        """Check every setting and store it in its normal form (sorted tuples, floats)."""
         set_ = object.__setattr__
         if self.visible is not None:
             if isinstance(self.visible, str):
                 raise StructureError(f"visible must be a list of element symbols, got {self.visible!r}")
             set_(self, "visible", tuple(sorted({check_symbol(el) for el in self.visible})))
-        items = self.weights.items() if isinstance(self.weights, Mapping) else self.weights
-        w = {}
-        for el, value in items:
+        given: object = self.weights  # a mapping is accepted too (see the attributes)
+        pairs: Iterable[tuple[str, float]] = given.items() if isinstance(given, Mapping) else self.weights
+        w: dict[str, float] = {}
+        for el, value in pairs:
             try:
                 v = float(value)
             except (TypeError, ValueError):
@@ -454,28 +469,32 @@ class Visibility:
         if not np.any(species_weights(present, self.visible, self.weight_map) > 0):
             raise error(f"no atom images: the weights of {', '.join(present)} are all zero")
 
-    def amplitudes(self, species, depth):
-        """w(species) exp(-depth / lambda) per atom."""
+    def amplitudes(self, species: Sequence[str], depth: ArrayLike) -> FloatArray:
+        """(N,) w(species) exp(-depth / lambda) per atom; ``depth`` (N,) below the top layer, Å."""
         return species_weights(species, self.visible, self.weight_map) * np.exp(
             -np.asarray(depth, float) / self.decay_length_angstrom
         )
 
 
-def species_weights(species, visible, weights):
-    """w(species): 1, or 0 outside ``visible``; ``weights`` override."""
+def species_weights(
+    species: Sequence[str], visible: Collection[str] | None, weights: Mapping[str, float]
+) -> FloatArray:
+    """(N,) w(species): 1, or 0 outside ``visible``; ``weights`` override."""
     uniq, inverse = np.unique(np.asarray(species, dtype=object).astype(str), return_inverse=True)
     w = np.array([weights.get(el, 1.0 if visible is None or el in visible else 0.0) for el in uniq], dtype=float)
     return w[inverse]
 
 
-def _surface_sites(ft, key, max_depth):
-    """Species, in-plane positions and depths of the atoms that image."""
+def _surface_sites(
+    ft: FaceTerminations, key: str, max_depth: float | None
+) -> tuple[tuple[str, ...], FloatArray, FloatArray, FloatArray]:
+    """Species, in-plane positions (N, 2), depths (N,) of the atoms that image, and the (2, 2) mesh rows (Å)."""
     if max_depth is None:
         sa = ft.surface_atoms(key, ft.d)
         keep = sa.unit == 0
     else:
         sa = ft.surface_atoms(key, float(max_depth))
-        keep = np.ones(len(sa.depth), bool)
+        keep = np.ones(len(sa.depth), dtype=np.bool_)
     species = tuple(s for s, k in zip(sa.species, keep) if k)
     return species, sa.inplane[keep], sa.depth[keep], np.asarray(sa.mesh_inplane, float)
 
@@ -483,7 +502,9 @@ def _surface_sites(ft, key, max_depth):
 # Public entry points -------------------------------------------------------------------
 
 
-def termination_corrugation(face_terminations, key, visibility=None):
+def termination_corrugation(
+    face_terminations: FaceTerminations, key: str, visibility: Visibility | None = None
+) -> CorrugationPattern:
     """Predicted corrugation (spots, apparent lattice, rows) of one termination.
 
     Parameters
@@ -538,7 +559,16 @@ def termination_corrugation(face_terminations, key, visibility=None):
     return _pattern(inplane, v.amplitudes(species, depth), mesh, mesh, v, t.label, None)
 
 
-def _pattern(inplane, amplitudes, cell, mesh, v, label, cell_name):
+def _pattern(
+    inplane: FloatArray,
+    amplitudes: FloatArray,
+    cell: FloatArray,
+    mesh: FloatArray,
+    v: Visibility,
+    label: str,
+    cell_name: str | None,
+) -> CorrugationPattern:
+    """:func:`pattern_from_sites` with the settings of ``v``."""
     return pattern_from_sites(
         inplane,
         amplitudes,
@@ -553,29 +583,33 @@ def _pattern(inplane, amplitudes, cell, mesh, v, label, cell_name):
     )
 
 
-def _check_matrix(matrix):
+def _check_matrix(matrix: ArrayLike) -> IntArray:
+    """The supercell matrix as a non-singular (2, 2) IntArray, or StructureError naming it."""
     try:
         M = np.asarray(matrix, dtype=float)
     except (TypeError, ValueError):
         raise StructureError(f"supercell matrix must be 2x2 integers, got {matrix!r}") from None
     if M.shape != (2, 2) or not np.all(np.isfinite(M)) or np.any(M != np.rint(M)):
         raise StructureError(f"supercell matrix must be 2x2 integers, got {np.asarray(matrix).tolist()}")
-    Mi = np.rint(M).astype(np.int64)
+    Mi: IntArray = np.rint(M).astype(np.int64)
     if round(np.linalg.det(M)) == 0:
         raise StructureError(f"supercell matrix {Mi.tolist()} is singular")
     return Mi
 
 
-def _check_changes(changed_inplane, changed_depth, mode, changed_species):
+def _check_changes(
+    changed_inplane: ArrayLike, changed_depth: ArrayLike, mode: str, changed_species: str | Iterable[str] | None
+) -> tuple[FloatArray, FloatArray, list[str] | None]:
+    """Changed sites (k, 2) and depths (k,) as float arrays, and their species (one per site) if given."""
     if mode not in ("remove", "add"):
         raise StructureError(f"mode must be 'remove' or 'add', got {mode!r}")
-    C = np.asarray(changed_inplane, dtype=float).reshape(-1, 2) if len(changed_inplane) else np.zeros((0, 2))
+    C = np.asarray(changed_inplane, dtype=float).reshape(-1, 2) if np.size(changed_inplane) else np.zeros((0, 2))
     Z = np.asarray(changed_depth, dtype=float).reshape(-1)
     if len(C) != len(Z):
         raise StructureError(f"{len(C)} changed sites but {len(Z)} changed depths")
     if not (np.all(np.isfinite(C)) and np.all(np.isfinite(Z))):
         raise StructureError("changed sites and depths must be finite numbers, got NaN or inf")
-    if mode == "remove" and np.any(Z < -1e-6):
+    if mode == "remove" and np.any(Z < -LENGTH_EPS_ANGSTROM):
         raise StructureError(f"a removed site must lie at depth >= 0, got {Z.min():g} Å")
     sp = None
     if changed_species is not None:
@@ -587,24 +621,28 @@ def _check_changes(changed_inplane, changed_depth, mode, changed_species):
     return C, Z, sp
 
 
-def _matches(points, depths, sites, site_depths, cell, tol):
+def _matches(
+    points: FloatArray, depths: FloatArray, sites: FloatArray, site_depths: FloatArray, cell: FloatArray, tol: float
+) -> BoolArray:
     """(k, N) bool: site k coincides with point N modulo ``cell`` (within tol, Å)."""
     diff = points[None, :, :] - sites[:, None, :]
     frac = diff @ np.linalg.inv(cell)
     frac -= np.rint(frac)
     dist = np.linalg.norm(frac @ cell, axis=-1)
-    return (dist < tol) & (np.abs(depths[None, :] - site_depths[:, None]) < tol)
+    return cast(BoolArray, (dist < tol) & (np.abs(depths[None, :] - site_depths[:, None]) < tol))
 
 
-def _bulk_species(ft, key, sites, depths, tol):
-    """Species of the bulk-continuation sites (depth < 0: above the top layer)."""
+def _bulk_species(
+    ft: FaceTerminations, key: str, sites: FloatArray, depths: FloatArray, tol: float
+) -> list[str | None]:
+    """Species of the bulk-continuation sites (depth < 0: above the top layer); None where no atom sits."""
     d = ft.d
-    shift = np.maximum(np.ceil((-depths - 1e-9) / d), 0.0)
+    shift = np.maximum(np.ceil((-depths - ROUNDING_EPS) / d), 0.0)
     z = depths + shift * d
     r = sites - shift[:, None] * np.asarray(ft.atoms.stack_inplane, float)[None, :]
     sa = ft.surface_atoms(key, float(z.max()) + tol)
     hit = _matches(sa.inplane, sa.depth, r, z, np.asarray(sa.mesh_inplane, float), tol)
-    out = []
+    out: list[str | None] = []
     for k in range(len(z)):
         idx = np.flatnonzero(hit[k])
         out.append(sa.species[idx[0]] if len(idx) else None)
@@ -612,17 +650,17 @@ def _bulk_species(ft, key, sites, depths, tol):
 
 
 def supercell_corrugation(
-    face_terminations,
-    key,
-    matrix,
-    changed_inplane=(),
-    changed_depth=(),
-    mode="remove",
+    face_terminations: FaceTerminations,
+    key: str,
+    matrix: ArrayLike,
+    changed_inplane: ArrayLike = (),
+    changed_depth: ArrayLike = (),
+    mode: str = "remove",
     *,
-    changed_species=None,
-    cell=None,
-    visibility=None,
-):
+    changed_species: str | Iterable[str] | None = None,
+    cell: str | None = None,
+    visibility: Visibility | None = None,
+) -> CorrugationPattern:
     """Predicted corrugation of a reconstruction cell of a termination.
 
     Parameters
@@ -671,7 +709,7 @@ def supercell_corrugation(
     """
     M = _check_matrix(matrix)
     C, Z, sp = _check_changes(changed_inplane, changed_depth, mode, changed_species)
-    extra_species = [] if sp is None else sp
+    extra_species: list[str] = [] if sp is None else sp
     v = Visibility() if visibility is None else visibility
     v.check(tuple(face_terminations.atoms.species) + tuple(extra_species))
     species, inplane, depth, mesh = _surface_sites(face_terminations, key, v.max_depth_angstrom)
@@ -690,7 +728,7 @@ def supercell_corrugation(
                     f"removed site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is not an atom "
                     f"of termination {key!r}"
                 )
-        keep = ~hit.any(axis=0)
+        keep = cast(BoolArray, ~hit.any(axis=0))
         pos, dep = pos[keep], dep[keep]
         spc = tuple(s for s, k in zip(spc, keep) if k)
     else:
@@ -701,7 +739,7 @@ def supercell_corrugation(
                     f"added site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is already occupied"
                 )
         bulk = _bulk_species(face_terminations, key, C, Z, tol)
-        add_species = []
+        add_species: list[str] = []
         for k in range(len(Z)):
             s = sp[k] if sp is not None else bulk[k]
             if s is None:
@@ -722,7 +760,12 @@ def supercell_corrugation(
     )
 
 
-def reconstruction_corrugation(face_terminations, key, reconstruction, visibility=None):
+def reconstruction_corrugation(
+    face_terminations: FaceTerminations,
+    key: str,
+    reconstruction: Reconstruction,
+    visibility: Visibility | None = None,
+) -> CorrugationPattern:
     """Corrugation of a reconstruction record of the polarity step.
 
     Parameters

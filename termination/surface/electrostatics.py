@@ -2,7 +2,13 @@
 
 from __future__ import annotations
 
+from typing import cast
+
 import numpy as np
+from numpy.typing import ArrayLike
+
+from termination.arrays import FloatArray
+from termination.defaults import ZERO_EPS
 
 __all__ = ["COULOMB_EV_ANGSTROM", "ewald_pair_matrix"]
 
@@ -10,7 +16,9 @@ __all__ = ["COULOMB_EV_ANGSTROM", "ewald_pair_matrix"]
 COULOMB_EV_ANGSTROM = 14.399645
 
 
-def ewald_pair_matrix(cell, positions, alpha=None, *, cutoff_erfc=6.0):
+def ewald_pair_matrix(
+    cell: ArrayLike, positions: ArrayLike, alpha: float | None = None, *, cutoff_erfc: float = 6.0
+) -> FloatArray:
     """Pair potential matrix of a 2D-periodic set of unit point charges in one plane (2D Ewald sum).
 
     Parameters
@@ -27,7 +35,7 @@ def ewald_pair_matrix(cell, positions, alpha=None, *, cutoff_erfc=6.0):
 
     Returns
     -------
-    (n, n) ndarray
+    (n, n) FloatArray
         Phi, 1/Å, such that the energy of charges q (units of e) with a
         uniform neutralising background in the same plane is
         E = (1/2) q^T Phi q (e²/Å; times :data:`COULOMB_EV_ANGSTROM` for eV).
@@ -51,8 +59,8 @@ def ewald_pair_matrix(cell, positions, alpha=None, *, cutoff_erfc=6.0):
     """
     from scipy.special import erfc  # lazy: keeps scipy off the planes/match start-up path
 
-    cell = np.asarray(cell, dtype=float)
-    pos = np.asarray(positions, dtype=float).reshape(-1, 2)
+    cell = np.asarray(cell, dtype=np.float64)
+    pos = np.asarray(positions, dtype=np.float64).reshape(-1, 2)
     area = abs(np.linalg.det(cell))
     if alpha is None:
         alpha = np.sqrt(np.pi / area)
@@ -73,11 +81,11 @@ def ewald_pair_matrix(cell, positions, alpha=None, *, cutoff_erfc=6.0):
     i, j = np.meshgrid(np.arange(-ng[0], ng[0] + 1), np.arange(-ng[1], ng[1] + 1), indexing="ij")
     g = 2 * np.pi * (np.stack([i.ravel(), j.ravel()], axis=1) @ recip)
     gn = np.linalg.norm(g, axis=1)
-    keep = (gn > 1e-12) & (gn <= gc)
+    keep = (gn > ZERO_EPS) & (gn <= gc)
     g, gn = g[keep], gn[keep]
     weight = erfc(gn / (2 * alpha)) / gn
     phase = np.einsum("ijk,gk->ijg", diff, g)
     phi += (2 * np.pi / area) * (np.cos(phase) @ weight)
     phi -= 2 * np.sqrt(np.pi) / (alpha * area)
     phi[np.diag_indices_from(phi)] -= 2 * alpha / np.sqrt(np.pi)
-    return phi
+    return cast(FloatArray, phi)

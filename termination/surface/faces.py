@@ -8,16 +8,22 @@ reciprocal vector G = h b1 + k b2 + l b3.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
 from functools import lru_cache
+from typing import SupportsFloat, SupportsInt, cast
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from termination.algebra.integer import primitive_index, rationalise, unimodular_completion
 from termination.algebra.lattice2d import gauss_reduce
+from termination.arrays import FloatArray, IntArray
+from termination.bulk.crystal import Crystal
 from termination.defaults import ANGLE_EPS_DEG, MAX_INDEX, MAX_INDEX_LIMIT
 from termination.errors import PlaneError
-from termination.surface.miller import check_hkl
+from termination.surface.miller import HKL, check_hkl, hkl_tuple
+from termination.units import ANGSTROM, ANGSTROM2, DEG
 
 __all__ = [
     "Face",
@@ -35,14 +41,15 @@ __all__ = [
 class Mesh:
     """Reduced primitive 2D surface lattice (Å, degrees, Å²).
 
-    ``gamma`` follows the obtuse convention (90° <= gamma <= 120°) of
-    surface crystallography.
+    ``a <= b`` are the lengths of the mesh vectors (Å), ``gamma`` the angle
+    between them in the obtuse convention (90° <= gamma <= 120°) of surface
+    crystallography, ``area`` the area of the cell (Å²).
     """
 
-    a: float
-    b: float
-    gamma: float
-    area: float
+    a: float = field(metadata=ANGSTROM)
+    b: float = field(metadata=ANGSTROM)
+    gamma: float = field(metadata=DEG)
+    area: float = field(metadata=ANGSTROM2)
 
 
 @dataclass(frozen=True, eq=False)
@@ -57,17 +64,17 @@ class Face:
         All symmetry-equivalent indices under the crystal's point group.
     d : float
         Spacing of the lattice planes (centring included), Å.
-    normal : (3,) ndarray
+    normal : (3,) FloatArray
         Outward unit normal, Cartesian.
     mesh : Mesh
         Reduced surface mesh.
-    mesh_fractional : (2, 3) ndarray
+    mesh_fractional : (2, 3) FloatArray
         Mesh vectors as rows, fractional coordinates of the conventional cell;
         right-handed with ``normal`` and ``|a| <= |b|``.
-    stack_fractional : (3,) ndarray
+    stack_fractional : (3,) FloatArray
         Lattice vector from one plane to the next (``stack . normal = d``),
         fractional, shortened by in-plane mesh vectors.
-    frame : (3, 3) ndarray
+    frame : (3, 3) FloatArray
         Rows e1 (along mesh a), e2, e3 = normal: the surface frame, Cartesian.
     tilt : float or None
         Angle to the mount face, degrees (minimum over the variants).
@@ -78,54 +85,55 @@ class Face:
         normal onto the variant's normal (None when ``tilt`` is 0).
     """
 
-    hkl: tuple
-    variants: tuple
-    d: float
-    normal: np.ndarray
+    hkl: HKL
+    variants: tuple[HKL, ...]
+    d: float = field(metadata=ANGSTROM)
+    normal: FloatArray
     mesh: Mesh
-    mesh_fractional: np.ndarray
-    stack_fractional: np.ndarray
-    frame: np.ndarray
-    tilt: float | None = None
-    tilt_variant: tuple | None = None
-    tilt_axis: tuple | None = None
+    mesh_fractional: FloatArray
+    stack_fractional: FloatArray
+    frame: FloatArray
+    tilt: float | None = field(default=None, metadata=DEG)
+    tilt_variant: HKL | None = None
+    tilt_axis: HKL | None = None
 
     @property
-    def multiplicity(self):
+    def multiplicity(self) -> int:
+        """Number of symmetry-equivalent indices."""
         return len(self.variants)
 
 
-def _miller_rotations(crystal):
+def _miller_rotations(crystal: Crystal) -> IntArray:
     """(P, 3, 3) matrices acting on row Miller indices: h' = h @ inv(R)."""
     return np.rint(np.linalg.inv(crystal.point_group)).astype(np.int64)
 
 
-def face_variants(crystal, hkl):
+def face_variants(crystal: Crystal, hkl: Iterable[SupportsFloat]) -> tuple[HKL, ...]:
     """Symmetry-equivalent Miller indices of ``hkl``, sorted, as tuples."""
     h = np.asarray(check_hkl(hkl), dtype=np.int64)
     orbit = np.einsum("i,pij->pj", h, _miller_rotations(crystal))
-    return tuple(sorted({tuple(int(x) for x in v) for v in orbit}))
+    return tuple(sorted({hkl_tuple(v) for v in orbit}))
 
 
-def _choice_key(v):
+def _choice_key(v: Sequence[int]) -> tuple[int, int, int, int, int]:
     """Preference among variants: fewest negative entries, ascending order, larger l, k, h."""
     negatives = sum(x < 0 for x in v)
     unsorted = sum(abs(v[i]) > abs(v[i + 1]) for i in range(2))
     return (negatives, unsorted, -v[2], -v[1], -v[0])
 
 
-def _representative(orbit, laue_orbit):
+def _representative(orbit: set[HKL], laue_orbit: set[HKL]) -> HKL:
     """Readable representative: the Laue choice r if in the orbit, else -r, else the best."""
     r = min(laue_orbit, key=_choice_key)
     if r in orbit:
         return r
-    neg = tuple(-x for x in r)
+    neg = (-r[0], -r[1], -r[2])
     if neg in orbit:
         return neg
     return min(orbit, key=_choice_key)
 
 
-def face_geometry(crystal, hkl, mount=None):
+def face_geometry(crystal: Crystal, hkl: Iterable[SupportsFloat], mount: Iterable[SupportsFloat] | None = None) -> Face:
     """Geometry of the face ``hkl`` of ``crystal``.
 
     Parameters
@@ -155,22 +163,23 @@ def face_geometry(crystal, hkl, mount=None):
 
 
 @lru_cache(maxsize=32)
-def _cell_tables(crystal):
-    """Per-crystal matrices used for every face (cached; a Crystal is immutable).
+def _cell_tables(crystal: Crystal) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Per-crystal (3, 3) matrices used for every face (cached; a Crystal is immutable).
 
     Returns the primitive basis in Cartesian rows (Å), the reciprocal rows
     (1/Å) and the inverse of the lattice matrix.
     """
-    inverse = np.linalg.inv(crystal.lattice)
+    inverse = cast(FloatArray, np.linalg.inv(crystal.lattice))
     return crystal.primitive_fractional @ crystal.lattice, crystal.reciprocal, inverse
 
 
-def _cross(a, b):
-    """Cross product of two 3-vectors (np.cross has a large per-call overhead)."""
+def _cross(a: FloatArray, b: FloatArray) -> FloatArray:
+    """Cross product of two (3,) vectors (np.cross has a large per-call overhead)."""
     return np.array([a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]])
 
 
-def _geometry(crystal, h, variants, mount):
+def _geometry(crystal: Crystal, h: HKL, variants: tuple[HKL, ...], mount: HKL | None) -> Face:
+    """:class:`Face` of the checked index ``h`` (see :func:`face_geometry`)."""
     P = crystal.primitive_fractional
     prim_cart, reciprocal, frac_basis_inv = _cell_tables(crystal)
     h_p = primitive_index(rationalise(P @ np.asarray(h, dtype=float), 12))
@@ -196,11 +205,13 @@ def _geometry(crystal, h, variants, mount):
     area = float(np.linalg.norm(_cross(a1, a2)))
     e1 = a1 / la
     frame = np.array([e1, _cross(normal, e1), normal])
-    tilt = variant = axis = None
+    tilt: float | None = None
+    variant: HKL | None = None
+    axis: HKL | None = None
     if mount is not None:
         tilt, variant, axis = tilt_to_mount(crystal, variants, mount)
     return Face(
-        hkl=tuple(h),
+        hkl=h,
         variants=variants,
         d=d,
         normal=normal,
@@ -214,7 +225,7 @@ def _geometry(crystal, h, variants, mount):
     )
 
 
-def interplanar_angle(crystal, hkl1, hkl2):
+def interplanar_angle(crystal: Crystal, hkl1: Iterable[SupportsFloat], hkl2: Iterable[SupportsFloat]) -> float:
     """Angle between the normals of two planes, degrees (metric-tensor formula).
 
     Notes
@@ -228,7 +239,7 @@ def interplanar_angle(crystal, hkl1, hkl2):
     return float(np.degrees(np.arccos(np.clip(c, -1.0, 1.0))))
 
 
-def variant_tilts(crystal, variants, mount):
+def variant_tilts(crystal: Crystal, variants: ArrayLike, mount: ArrayLike) -> FloatArray:
     """Angle between the mount face and each of ``variants``, degrees.
 
     Parameters
@@ -248,11 +259,20 @@ def variant_tilts(crystal, variants, mount):
     m /= np.linalg.norm(m)
     G = np.asarray(variants, dtype=float).reshape(-1, 3) @ B
     G /= np.linalg.norm(G, axis=1)[:, None]
-    return np.degrees(np.arccos(np.clip(G @ m, -1.0, 1.0)))
+    return cast(FloatArray, np.degrees(np.arccos(np.clip(G @ m, -1.0, 1.0))))
 
 
-def tilt_to_mount(crystal, variants, mount):
+def tilt_to_mount(
+    crystal: Crystal, variants: Sequence[Sequence[SupportsInt]], mount: Iterable[SupportsInt]
+) -> tuple[float, HKL, HKL | None]:
     """Smallest angle between the mount face and any of ``variants``.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    variants : (V, 3) int sequence
+        Miller indices, e.g. :attr:`Face.variants`.
+    mount : (3,) int sequence
 
     Returns
     -------
@@ -265,21 +285,26 @@ def tilt_to_mount(crystal, variants, mount):
         variant's normal: the cross product of the two reciprocal vectors is
         the direct-lattice vector mount x variant (in index space).
     """
-    angles = variant_tilts(crystal, variants, mount)
+    rows = [hkl_tuple(v) for v in variants]
+    m = hkl_tuple(mount)
+    angles = variant_tilts(crystal, rows, m)
     # Deterministic tie-break: smallest angle, then the preferred index form.
-    order = sorted(range(len(variants)), key=lambda i: (round(angles[i], 6), _choice_key(variants[i])))
+    rounded = np.round(angles, 6)
+    order = sorted(range(len(rows)), key=lambda i: (float(rounded[i]), _choice_key(rows[i])))
     best = order[0]
     tilt = float(angles[best])
-    variant = tuple(variants[best])
-    axis = None
+    variant = rows[best]
+    axis: HKL | None = None
     if tilt > ANGLE_EPS_DEG:
-        axis = primitive_index(np.cross(np.asarray(mount, dtype=np.int64), np.asarray(variant, dtype=np.int64)))
+        axis = hkl_tuple(primitive_index(np.cross(np.asarray(m, dtype=np.int64), np.asarray(variant, dtype=np.int64))))
         if not any(axis):  # antiparallel: any axis in the plane will do
             axis = None
     return tilt, variant, axis
 
 
-def distinct_faces(crystal, max_index=MAX_INDEX, mount=None):
+def distinct_faces(
+    crystal: Crystal, max_index: int = MAX_INDEX, mount: Iterable[SupportsFloat] | None = None
+) -> tuple[Face, ...]:
     """All symmetry-distinct faces with indices up to ``max_index``.
 
     Parameters
@@ -303,7 +328,7 @@ def distinct_faces(crystal, max_index=MAX_INDEX, mount=None):
         raise PlaneError(f"max index must be an integer, got {max_index!r}") from None
     if n != max_index or not 1 <= n <= MAX_INDEX_LIMIT:
         raise PlaneError(f"max index must be an integer from 1 to {MAX_INDEX_LIMIT}, got {max_index}")
-    mount = None if mount is None else check_hkl(mount, "mount")
+    mount_hkl = None if mount is None else check_hkl(mount, "mount")
     r = np.arange(-n, n + 1)
     grid = np.array(np.meshgrid(r, r, r, indexing="ij")).reshape(3, -1).T
     g = np.gcd.reduce(np.abs(grid), axis=1)
@@ -316,9 +341,9 @@ def distinct_faces(crystal, max_index=MAX_INDEX, mount=None):
     _, first = np.unique(keys, return_index=True)
     faces = []
     for i in first:
-        orbit = set(map(tuple, orbits[i].tolist()))
-        laue = orbit | {tuple(-x for x in v) for v in orbit}
+        orbit = {hkl_tuple(v) for v in orbits[i].tolist()}
+        laue = orbit | {(-v[0], -v[1], -v[2]) for v in orbit}
         rep = _representative(orbit, laue)
-        faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount))
+        faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount_hkl))
     faces.sort(key=lambda f: (sum(x * x for x in f.hkl), _choice_key(f.hkl)))
     return tuple(faces)

@@ -8,14 +8,18 @@ atomic layer.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
+from numpy.typing import ArrayLike
 
+from termination.arrays import FloatArray, IntArray
+from termination.bulk.crystal import Crystal
 from termination.defaults import LAYER_TOL_ANGSTROM
 from termination.errors import StructureError
 from termination.surface.faces import Face
 from termination.surface.miller import hkl_text
+from termination.units import ANGSTROM, E
 
 __all__ = ["FaceAtoms", "Layer", "cluster_layers", "face_atoms"]
 
@@ -29,31 +33,33 @@ class FaceAtoms:
     face : Face
     species : tuple of str
         One entry per atom of the primitive cell.
-    heights : (N,) ndarray
+    heights : (N,) FloatArray
         Height along the outward normal, in [0, d), Å.
-    inplane : (N, 2) ndarray
+    inplane : (N, 2) FloatArray
         Cartesian in-plane coordinates along the face frame (e1, e2), Å.
-    conventional_index : (N,) int ndarray
+    conventional_index : (N,) IntArray
         Index of each atom in the crystal's conventional cell.
-    mesh_inplane : (2, 2) ndarray
+    mesh_inplane : (2, 2) FloatArray
         Mesh vectors a, b as rows in (e1, e2) coordinates, Å.
-    stack_inplane : (2,) ndarray
-        In-plane part of the stacking vector: the copy of an atom one period
-        higher (z + d) sits at ``inplane + stack_inplane``.
-    charges : (N,) ndarray or None
+    stack_inplane : (2,) FloatArray
+        In-plane part of the stacking vector, Å: the copy of an atom one
+        period higher (z + d) sits at ``inplane + stack_inplane``.
+    charges : (N,) FloatArray or None
+        Formal charges (units of e) when the crystal carries them.
     """
 
     face: Face
-    species: tuple
-    heights: np.ndarray
-    inplane: np.ndarray
-    conventional_index: np.ndarray
-    mesh_inplane: np.ndarray
-    stack_inplane: np.ndarray
-    charges: np.ndarray | None
+    species: tuple[str, ...]
+    heights: FloatArray = field(metadata=ANGSTROM)
+    inplane: FloatArray = field(metadata=ANGSTROM)
+    conventional_index: IntArray
+    mesh_inplane: FloatArray = field(metadata=ANGSTROM)
+    stack_inplane: FloatArray = field(metadata=ANGSTROM)
+    charges: FloatArray | None = field(metadata=E)
 
     @property
-    def d(self):
+    def d(self) -> float:
+        """Period of the face, Å."""
         return self.face.d
 
 
@@ -66,13 +72,13 @@ class Layer:
     ``composition`` counts atoms per surface primitive cell.
     """
 
-    height: float
-    depth: float
-    composition: dict
-    atoms: tuple
+    height: float = field(metadata=ANGSTROM)
+    depth: float = field(metadata=ANGSTROM)
+    composition: dict[str, int]
+    atoms: tuple[int, ...]
 
 
-def face_atoms(crystal, face):
+def face_atoms(crystal: Crystal, face: Face) -> FaceAtoms:
     """Primitive-cell atoms of ``face`` with heights and in-plane coordinates.
 
     Notes
@@ -118,7 +124,9 @@ def face_atoms(crystal, face):
     )
 
 
-def cluster_layers(heights, period, layer_tol_angstrom=LAYER_TOL_ANGSTROM):
+def cluster_layers(
+    heights: ArrayLike, period: float | None, layer_tol_angstrom: float = LAYER_TOL_ANGSTROM
+) -> tuple[IntArray, FloatArray]:
     """Group heights into layers by single linkage, periodic in ``period`` or not.
 
     Parameters
@@ -132,9 +140,9 @@ def cluster_layers(heights, period, layer_tol_angstrom=LAYER_TOL_ANGSTROM):
 
     Returns
     -------
-    labels : (N,) int ndarray
+    labels : (N,) IntArray
         Layer index per atom, layers numbered by increasing mean height.
-    centres : (L,) ndarray
+    centres : (L,) FloatArray
         Mean height of each layer (in [0, period) when periodic).
 
     Examples

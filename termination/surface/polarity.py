@@ -25,25 +25,40 @@ it.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from fractions import Fraction
+from typing import Literal, TypedDict, Unpack
 
 import numpy as np
 
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import count_species
-from termination.defaults import CHARGE_TOL_E, DIPOLE_TOL_E_PER_ANGSTROM, FRACTION_TOL, MAX_CELL, MAX_PATTERNS
+from termination.defaults import (
+    CHARGE_TOL_E,
+    DIPOLE_TOL_E_PER_ANGSTROM,
+    FRACTION_TOL,
+    MAX_CELL,
+    MAX_PATTERNS,
+    RELATIVE_EPS,
+)
 from termination.errors import ChargeError
 from termination.surface.layers import cluster_layers
-from termination.surface.miller import hkl_text
+from termination.surface.miller import HKL, hkl_text
 from termination.surface.reconstructions import (
+    Reconstruction,
     _reconstructions,
     check_max_cell,
     compensation_sites,
 )
+from termination.surface.terminations import FaceTerminations, SurfaceAtoms
+from termination.units import ANGSTROM, ANGSTROM2, E_ANGSTROM, E_PER_ANGSTROM, E
 
 __all__ = [
+    "CompensationSiteKind",
     "FacePolarity",
     "LayerCharge",
+    "PolarityTolerances",
+    "TaskerType",
     "TerminationPolarity",
     "face_is_polar",
     "face_polarity",
@@ -52,13 +67,28 @@ __all__ = [
 ]
 
 
+#: Tasker's classification of a termination's repeat unit.
+TaskerType = Literal["I", "II", "III"]
+#: Which sites a compensation fraction counts.
+CompensationSiteKind = Literal["top unit", "top layer"]
+
+
+class PolarityTolerances(TypedDict, total=False):
+    """Tolerances of :func:`termination_polarity` that :func:`face_polarity` and :func:`face_is_polar` pass on."""
+
+    charge_tol_e: float
+    dipole_tol_e_per_angstrom: float
+    fraction_tol: float
+    max_patterns: int
+
+
 @dataclass(frozen=True)
 class LayerCharge:
     """One atomic layer of the repeat unit: depth below the top layer (Å), atoms and charge per surface cell (e)."""
 
-    depth: float
-    composition: dict
-    charge: float
+    depth: float = field(metadata=ANGSTROM)
+    composition: dict[str, int]
+    charge: float = field(metadata=E)
 
 
 @dataclass(frozen=True)
@@ -82,7 +112,7 @@ class TerminationPolarity:
     compensation : float or None
         dq / Q: fraction of the sites to remove (< 0) or add (> 0); 0 when
         non-polar; None when the top unit and top layer are neutral.
-    sites : str or None
+    site_kind : str or None
         'top unit' or 'top layer': which sites ``compensation`` counts.
     site_label : str or None
         One such site ('Na', 'B6').
@@ -93,30 +123,33 @@ class TerminationPolarity:
 
     id: str
     label: str
-    tasker_type: str
-    layers: tuple
-    dipole: float
-    dipole_per_area: float
-    compensating_charge: float
+    tasker_type: TaskerType
+    layers: tuple[LayerCharge, ...]
+    dipole: float = field(metadata=E_ANGSTROM)
+    dipole_per_area: float = field(metadata=E_PER_ANGSTROM)
+    compensating_charge: float = field(metadata=E)
     compensation: float | None
-    sites: str | None
+    site_kind: CompensationSiteKind | None
     site_label: str | None
-    reconstructions: tuple
+    reconstructions: tuple[Reconstruction, ...]
     note: str | None
 
 
 @dataclass(frozen=True)
 class FacePolarity:
-    """Polarity of a face: its inequivalent terminations; ``polar`` when all are Tasker type III."""
+    """Polarity of a face: its inequivalent terminations; ``polar`` when all are Tasker type III.
 
-    hkl: tuple
-    d: float
-    area: float
+    ``d`` is the period of the face (Å), ``area`` that of its surface primitive cell (Å²).
+    """
+
+    hkl: HKL
+    d: float = field(metadata=ANGSTROM)
+    area: float = field(metadata=ANGSTROM2)
     polar: bool
-    terminations: tuple
+    terminations: tuple[TerminationPolarity, ...]
 
 
-def layer_charges(ru, tol_angstrom):
+def layer_charges(ru: SurfaceAtoms, tol_angstrom: float) -> tuple[LayerCharge, ...]:
     """Layers of a repeat unit (single linkage in depth, top first) with their charges.
 
     Parameters
@@ -143,29 +176,31 @@ def layer_charges(ru, tol_angstrom):
     return tuple(out)
 
 
-def _fraction_text(f):
+def _fraction_text(f: float) -> str:
+    """|f| as '1/4' when it is a simple fraction, else as a decimal."""
     fr = Fraction(abs(f)).limit_denominator(24)
-    return f"{fr.numerator}/{fr.denominator}" if abs(float(fr) - abs(f)) < 1e-6 else f"{abs(f):.4g}"
+    return f"{fr.numerator}/{fr.denominator}" if abs(float(fr) - abs(f)) < RELATIVE_EPS else f"{abs(f):.4g}"
 
 
 def termination_polarity(
-    crystal,
-    face_terminations,
-    termination_key,
+    crystal: Crystal | None,
+    face_terminations: FaceTerminations,
+    termination_key: str,
     *,
-    max_cell=MAX_CELL,
-    charge_tol_e=CHARGE_TOL_E,
-    dipole_tol_e_per_angstrom=DIPOLE_TOL_E_PER_ANGSTROM,
-    fraction_tol=FRACTION_TOL,
-    max_patterns=MAX_PATTERNS,
-    with_reconstructions=True,
-):
+    max_cell: int = MAX_CELL,
+    charge_tol_e: float = CHARGE_TOL_E,
+    dipole_tol_e_per_angstrom: float = DIPOLE_TOL_E_PER_ANGSTROM,
+    fraction_tol: float = FRACTION_TOL,
+    max_patterns: int = MAX_PATTERNS,
+    with_reconstructions: bool = True,
+) -> TerminationPolarity:
     """Layer charges, dipole, Tasker type, compensation and reconstructions of one termination.
 
     Parameters
     ----------
-    crystal : Crystal
-        Bulk crystal (for the termination's symmetry).
+    crystal : Crystal or None
+        Bulk crystal (for the termination's symmetry); may be None only when
+        ``with_reconstructions`` is False.
     face_terminations : FaceTerminations
         Built from a crystal with charges (its atoms carry them).
     termination_key : str
@@ -206,7 +241,9 @@ def termination_polarity(
     J. Goniakowski, F. Finocchi and C. Noguera, Rep. Prog. Phys. 71, 016501 (2008).
     """
     ft = face_terminations
-    max_cell = check_max_cell(max_cell)
+    n_cells = check_max_cell(max_cell)
+    if with_reconstructions and crystal is None:
+        raise TypeError("termination_polarity needs the crystal to search reconstructions")
     t = ft.termination(termination_key)
     ru = ft.repeat_unit(t.id)
     layers = layer_charges(ru, ft.layer_tol_angstrom)
@@ -221,6 +258,7 @@ def termination_polarity(
     mu = float(q @ ru.depth)
     dq = mu / d
     charged = any(abs(L.charge) > charge_tol_e for L in layers)
+    tasker: TaskerType
     if not charged:
         tasker = "I"
     elif abs(mu) / area <= dipole_tol_e_per_angstrom:
@@ -228,12 +266,16 @@ def termination_polarity(
     else:
         tasker = "III"
     note = None
-    compensation, sites_kind, site_label, recs = 0.0, None, None, ()
+    compensation: float | None = 0.0
+    sites_kind: CompensationSiteKind | None = None
+    site_label: str | None = None
+    recs: tuple[Reconstruction, ...] = ()
     if tasker == "I" and abs(mu) / area > dipole_tol_e_per_angstrom:
         note = "neutral layers, but their rumpling gives the repeat unit a dipole"
     if tasker == "III":
         group = compensation_sites(ft, t.id, "auto", charge_tol_e)
-        Q = float(np.sum(group.charge))
+        # The atoms carry charges (checked above), so the sites do too.
+        Q = 0.0 if group.charge is None else float(np.sum(group.charge))
         sites_kind = "top unit" if group.kind == "unit" else "top layer"
         site_label = group.label
         if abs(Q) <= charge_tol_e:
@@ -246,12 +288,10 @@ def termination_polarity(
                     f"compensation needs {_fraction_text(compensation)} of the {sites_kind}: more than "
                     "these sites can give"
                 )
-            elif with_reconstructions:
-                recs = _reconstructions(
-                    crystal, ft, t.id, compensation, int(max_cell), group, fraction_tol, max_patterns
-                )
+            elif with_reconstructions and crystal is not None:
+                recs = _reconstructions(crystal, ft, t.id, compensation, n_cells, group, fraction_tol, max_patterns)
                 if not recs:
-                    note = f"no supercell up to index {max_cell} realises {_fraction_text(compensation)} of the sites"
+                    note = f"no supercell up to index {n_cells} realises {_fraction_text(compensation)} of the sites"
     return TerminationPolarity(
         id=t.id,
         label=t.label,
@@ -261,14 +301,21 @@ def termination_polarity(
         dipole_per_area=mu / area,
         compensating_charge=dq,
         compensation=compensation,
-        sites=sites_kind,
+        site_kind=sites_kind,
         site_label=site_label,
         reconstructions=recs,
         note=note,
     )
 
 
-def face_polarity(crystal, face_terminations, *, max_cell=MAX_CELL, with_reconstructions=True, **tolerances):
+def face_polarity(
+    crystal: Crystal,
+    face_terminations: FaceTerminations,
+    *,
+    max_cell: int = MAX_CELL,
+    with_reconstructions: bool = True,
+    **tolerances: Unpack[PolarityTolerances],
+) -> FacePolarity:
     """Polarity of every inequivalent termination of one face.
 
     Parameters
@@ -305,7 +352,7 @@ def face_polarity(crystal, face_terminations, *, max_cell=MAX_CELL, with_reconst
     )
 
 
-def face_is_polar(face_terminations, **tolerances):
+def face_is_polar(face_terminations: FaceTerminations, **tolerances: Unpack[PolarityTolerances]) -> bool | None:
     """True when every termination of the face is Tasker type III; None when its atoms carry no charges.
 
     Cheap: no supercell search.  ``tolerances`` as in :func:`termination_polarity`.

@@ -13,34 +13,61 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import combinations
 from math import comb
+from typing import Literal, SupportsInt
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from termination.algebra.lattice2d import (
+    Wood,
     coset_representatives,
     gauss_reduce,
     supercell_classes,
     translation_permutations,
     wood_notation,
 )
+from termination.arrays import FloatArray, IntArray
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import composition_label, count_species
-from termination.defaults import CHARGE_TOL_E, FRACTION_TOL, LENGTH_EPS_ANGSTROM, MAX_CELL, MAX_CELL_LIMIT, MAX_PATTERNS
+from termination.defaults import (
+    CHARGE_TOL_E,
+    FRACTION_TOL,
+    LENGTH_EPS_ANGSTROM,
+    MAX_CELL,
+    MAX_CELL_LIMIT,
+    MAX_PATTERNS,
+    ROUNDING_EPS,
+)
 from termination.errors import PlaneError
 from termination.surface.electrostatics import COULOMB_EV_ANGSTROM, ewald_pair_matrix
 from termination.surface.symmetry import termination_operations
-from termination.surface.terminations import SurfaceAtoms
+from termination.surface.terminations import FaceTerminations, SurfaceAtoms
+from termination.units import ANGSTROM, EV, E
 
 __all__ = [
     "CRITERION",
     "CompensationSites",
+    "Matrix2",
+    "Mode",
     "PatternRanking",
     "Reconstruction",
+    "SiteChoice",
+    "SiteKind",
     "check_max_cell",
     "compensation_sites",
     "rank_patterns",
     "reconstructions",
     "supercell_sites",
 ]
+
+#: A (2, 2) integer matrix as nested tuples (rows), e.g. a supercell in mesh units.
+Matrix2 = tuple[tuple[int, int], tuple[int, int]]
+#: Whether a reconstruction removes top sites (vacancies) or adds them (adatoms).
+Mode = Literal["remove", "add"]
+#: What one compensation site is: a whole top unit or one atom (or formula unit) of the top layer.
+SiteKind = Literal["unit", "layer"]
+#: The ``sites`` argument of :func:`reconstructions`: a :data:`SiteKind` or 'auto'.
+SiteChoice = Literal["auto", "unit", "layer"]
 
 CRITERION = (
     "2D Ewald energy of the changed sites as point charges in the surface plane with a uniform "
@@ -54,11 +81,11 @@ class Reconstruction:
 
     Attributes
     ----------
-    matrix : tuple
+    matrix : Matrix2
         (2, 2) ints; rows are the supercell vectors in units of the mesh
         vectors a, b (``A_super = matrix @ mesh_inplane``); the Wood cell's
         basis when the notation is primitive, else a reduced basis.
-    hnf : tuple
+    hnf : Matrix2
         (2, 2) ints; row Hermite normal form of the same supercell.
     wood : str or None
         Wood notation ('(2×1)', 'c(2×2)', '(√3×√3)R30°'), None if none applies.
@@ -70,17 +97,17 @@ class Reconstruction:
         'remove' or 'add'.
     site_label : str
         What one site is ('Na', 'B6', 'SrTiO').
-    cell_inplane : (2, 2) ndarray
+    cell_inplane : (2, 2) FloatArray
         Supercell vectors as rows, Cartesian in the face frame (e1, e2), Å.
-    changed_inplane : (k, 2) ndarray
+    changed_inplane : (k, 2) FloatArray
         Cartesian in-plane positions (face frame, Å) of the changed sites of
         the best pattern: one atom per site (the topmost atom of a unit).
-    changed_depth : (k,) ndarray
+    changed_depth : (k,) FloatArray
         Their depths below the top layer, Å; negative for adatoms.
     changed_species : tuple of str
         Species of those atoms.
-    changed_atoms_inplane, changed_atoms_depth, changed_atoms_species
-        Every atom of the changed sites (a whole B6 unit, say), same frame.
+    changed_atoms_inplane, changed_atoms_depth, changed_atoms_species : (m, 2) FloatArray, (m,) FloatArray, tuple of str
+        Every atom of the changed sites (a whole B6 unit, say), same frame and units.
     criterion : str
         How patterns are ranked (:data:`CRITERION`).
     score : float
@@ -89,22 +116,22 @@ class Reconstruction:
         Distinct patterns with exactly this cell's period, up to a translation.
     """
 
-    matrix: tuple
-    hnf: tuple
+    matrix: Matrix2
+    hnf: Matrix2
     wood: str | None
     sites: int
     changed: int
-    mode: str
+    mode: Mode
     site_label: str
-    cell_inplane: np.ndarray
-    changed_inplane: np.ndarray
-    changed_depth: np.ndarray
-    changed_species: tuple
-    changed_atoms_inplane: np.ndarray
-    changed_atoms_depth: np.ndarray
-    changed_atoms_species: tuple
+    cell_inplane: FloatArray = field(metadata=ANGSTROM)
+    changed_inplane: FloatArray = field(metadata=ANGSTROM)
+    changed_depth: FloatArray = field(metadata=ANGSTROM)
+    changed_species: tuple[str, ...]
+    changed_atoms_inplane: FloatArray = field(metadata=ANGSTROM)
+    changed_atoms_depth: FloatArray = field(metadata=ANGSTROM)
+    changed_atoms_species: tuple[str, ...]
     criterion: str
-    score: float
+    score: float = field(metadata=EV)
     patterns: int
 
 
@@ -112,23 +139,26 @@ class Reconstruction:
 class CompensationSites:
     """The candidate sites of a termination's compensation: whole top units or top-layer atoms.
 
-    ``inplane`` and ``depth`` locate one representative atom per site (face
-    frame, Å); ``members`` index the atoms of each site in ``unit``, the
-    termination's repeat unit; ``charge`` is the charge of each site (e),
-    None without charges.
+    ``inplane`` ((g, 2) FloatArray) and ``depth`` ((g,) FloatArray) locate one
+    representative atom per site (face frame, Å) and ``species`` names it;
+    ``members`` holds g IntArrays indexing the atoms of each site in ``unit``,
+    the termination's repeat unit; ``charge`` ((g,) FloatArray) is the charge
+    of each site (e), None without charges.
     """
 
-    kind: str
+    kind: SiteKind
     label: str
-    inplane: np.ndarray  # (g, 2) representative atom per site
-    depth: np.ndarray  # (g,)
-    species: tuple  # (g,) representative species
-    charge: np.ndarray | None  # (g,) site charges
-    members: tuple  # g arrays of repeat-unit atom indices
+    inplane: FloatArray = field(metadata=ANGSTROM)
+    depth: FloatArray = field(metadata=ANGSTROM)
+    species: tuple[str, ...]
+    charge: FloatArray | None = field(metadata=E)
+    members: tuple[IntArray, ...]
     unit: SurfaceAtoms = field(repr=False)
 
 
-def compensation_sites(ft, key, kind="auto", charge_tol_e=CHARGE_TOL_E):
+def compensation_sites(
+    ft: FaceTerminations, key: str, kind: SiteChoice = "auto", charge_tol_e: float = CHARGE_TOL_E
+) -> CompensationSites:
     """The candidate sites of termination ``key``: one per top unit, or the top layer's sites.
 
     ``kind`` is 'unit', 'layer' or 'auto': the unit when it has several
@@ -140,13 +170,13 @@ def compensation_sites(ft, key, kind="auto", charge_tol_e=CHARGE_TOL_E):
     in_unit = np.flatnonzero(ru.unit == 0)
     in_layer = np.flatnonzero(np.abs(ru.depth) <= max(tol, LENGTH_EPS_ANGSTROM))
     q = None if ru.charges is None else np.asarray(ru.charges, dtype=float)
-    if kind == "auto":
-        kind = "layer"
-        if len(t.layers) > 1:
-            kind = "unit" if q is None or abs(q[in_unit].sum()) > charge_tol_e else "layer"
-    if kind == "unit" and len(t.layers) == 1:
-        kind = "layer"
-    if kind == "unit":
+    site_kind: SiteKind = "layer" if kind == "auto" else kind
+    if kind == "auto" and len(t.layers) > 1:
+        site_kind = "unit" if q is None or abs(q[in_unit].sum()) > charge_tol_e else "layer"
+    if site_kind == "unit" and len(t.layers) == 1:
+        site_kind = "layer"
+    members: tuple[IntArray, ...]
+    if site_kind == "unit":
         members = (in_unit,)
     else:
         if len(count_species(ru.species[i] for i in in_layer)) == 1:
@@ -155,7 +185,10 @@ def compensation_sites(ft, key, kind="auto", charge_tol_e=CHARGE_TOL_E):
             # Several species in one layer: the whole layer of a surface cell
             # is one site (its formula unit), unless it repeats within the cell.
             members = (in_layer,)
-    inplane, depth, rep_species, charge = [], [], [], []
+    inplane: list[FloatArray] = []
+    depth: list[float] = []
+    rep_species: list[str] = []
+    charge: list[float] = []
     inv_mesh = np.linalg.inv(ru.mesh_inplane)
     for m in members:
         # One atom stands for a site: its topmost atom; among several, the one
@@ -171,12 +204,12 @@ def compensation_sites(ft, key, kind="auto", charge_tol_e=CHARGE_TOL_E):
             off -= np.rint(off)
             top = tops[np.argmin(np.linalg.norm(off @ ru.mesh_inplane, axis=1))]
         inplane.append(ru.inplane[top])
-        depth.append(ru.depth[top])
+        depth.append(float(ru.depth[top]))
         rep_species.append(ru.species[top])
-        charge.append(np.nan if q is None else q[m].sum())
+        charge.append(np.nan if q is None else float(q[m].sum()))
     label = composition_label(count_species(ru.species[i] for i in members[0]))
     return CompensationSites(
-        kind=kind,
+        kind=site_kind,
         label=label,
         inplane=np.array(inplane).reshape(-1, 2),
         depth=np.array(depth, dtype=float),
@@ -187,7 +220,7 @@ def compensation_sites(ft, key, kind="auto", charge_tol_e=CHARGE_TOL_E):
     )
 
 
-def supercell_sites(hnf, mesh_inplane, base_inplane):
+def supercell_sites(hnf: ArrayLike, mesh_inplane: ArrayLike, base_inplane: ArrayLike) -> tuple[FloatArray, FloatArray]:
     """Cartesian in-plane positions of all sites of the supercell.
 
     Parameters
@@ -200,17 +233,17 @@ def supercell_sites(hnf, mesh_inplane, base_inplane):
 
     Returns
     -------
-    positions : (D g, 2) ndarray
-        Site ``coset * g + base`` at base_inplane[base] + reps[coset] @ mesh.
-    cell : (2, 2) ndarray
+    positions : (D g, 2) FloatArray
+        Site ``coset * g + base`` at base_inplane[base] + reps[coset] @ mesh, Å.
+    cell : (2, 2) FloatArray
         Supercell rows, Å.
     """
-    hnf = np.asarray(hnf, dtype=np.int64)
-    mesh = np.asarray(mesh_inplane, dtype=float)
-    base = np.asarray(base_inplane, dtype=float).reshape(-1, 2)
-    shifts = coset_representatives(hnf) @ mesh
+    h = np.asarray(hnf, dtype=np.int64)
+    mesh = np.asarray(mesh_inplane, dtype=np.float64)
+    base = np.asarray(base_inplane, dtype=np.float64).reshape(-1, 2)
+    shifts = coset_representatives(h) @ mesh
     positions = (shifts[:, None, :] + base[None, :, :]).reshape(-1, 2)
-    return positions, hnf @ mesh
+    return positions, h @ mesh
 
 
 @dataclass(frozen=True, eq=False)
@@ -219,10 +252,10 @@ class PatternRanking:
 
     Attributes
     ----------
-    patterns : (P, k) int ndarray
+    patterns : (P, k) IntArray
         Changed-site indices of one pattern per class of mesh translations,
         for every class with exactly the supercell's period, best first.
-    energy_ev : (P,) ndarray
+    energy_ev : (P,) FloatArray
         Energy per changed site, E = (q²/2) sum_{i,j in pattern} Phi_ij / k,
         in eV (lower is better).
     distinct : int
@@ -231,26 +264,33 @@ class PatternRanking:
         Number of k-subsets of the sites, C(n, k).
     """
 
-    patterns: np.ndarray
-    energy_ev: np.ndarray
+    patterns: IntArray
+    energy_ev: FloatArray = field(metadata=EV)
     distinct: int
     total: int
 
 
 @lru_cache(maxsize=64)
-def _subsets_touching_first_cell(n, k, g):
-    """k-subsets of range(n), as sorted rows, whose smallest element is < g (cached, read-only)."""
-    blocks = []
+def _subsets_touching_first_cell(n: int, k: int, g: int) -> IntArray:
+    """(m, k) k-subsets of range(n), as sorted rows, whose smallest element is < g (cached, read-only)."""
+    blocks: list[IntArray] = []
     for first in range(min(g, n - k + 1)):
-        rest = list(combinations(range(first + 1, n), k - 1))
-        rest = np.array(rest, dtype=np.int64).reshape(len(rest), k - 1)
+        combos = list(combinations(range(first + 1, n), k - 1))
+        rest = np.array(combos, dtype=np.int64).reshape(len(combos), k - 1)
         blocks.append(np.hstack([np.full((len(rest), 1), first, dtype=np.int64), rest]))
     out = np.vstack(blocks) if blocks else np.zeros((0, k), dtype=np.int64)
     out.flags.writeable = False
     return out
 
 
-def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX_PATTERNS):
+def rank_patterns(
+    cell: ArrayLike,
+    positions: ArrayLike,
+    k: int,
+    permutations: ArrayLike,
+    charge: float = 1.0,
+    max_patterns: int = MAX_PATTERNS,
+) -> PatternRanking | None:
     """Rank the ways of changing ``k`` of the supercell's sites by their 2D Ewald energy.
 
     Parameters
@@ -324,25 +364,27 @@ def rank_patterns(cell, positions, k, permutations, charge=1.0, max_patterns=MAX
     return PatternRanking(combos[order], energy[order], len(combos), total)
 
 
-def check_max_cell(max_cell):
+def check_max_cell(max_cell: SupportsInt) -> int:
     """``max_cell`` as an int, or PlaneError naming it."""
     try:
-        ok = int(max_cell) == max_cell and 1 <= max_cell <= MAX_CELL_LIMIT
+        n = int(max_cell)
+        ok = n == max_cell and 1 <= n <= MAX_CELL_LIMIT
     except (TypeError, ValueError, OverflowError):
         ok = False
     if not ok:
         raise PlaneError(f"max cell must be an integer from 1 to {MAX_CELL_LIMIT}, got {max_cell}")
-    return int(max_cell)
+    return n
 
 
-def _wood_rank(w):
+def _wood_rank(w: Wood | None) -> tuple[int, float]:
+    """Preference among Wood notations of one class: unrotated primitive first, none last."""
     if w is None:
         return (4, 0.0)
     return (2 * (w.angle > 0) + int(w.centred), -w.m + w.n if w.m < w.n else 0.0)
 
 
-def _reduced_basis(hnf, mesh):
-    """Shortest right-handed basis of the supercell lattice, in mesh units."""
+def _reduced_basis(hnf: IntArray, mesh: FloatArray) -> IntArray:
+    """Shortest right-handed basis of the (2, 2) supercell lattice, in mesh units; ``mesh`` rows in Å."""
     v1, v2 = gauss_reduce(*(np.asarray(hnf, dtype=float) @ mesh))
     basis = np.rint(np.array([v1, v2]) @ np.linalg.inv(mesh)).astype(np.int64)
     if round(np.linalg.det(basis)) < 0:
@@ -353,25 +395,25 @@ def _reduced_basis(hnf, mesh):
     options = [np.array(o) for o in ((p, q), (-p, -q), (q, -p), (-q, p))]
     a = mesh[0]
 
-    def angle(o):
+    def angle(o: IntArray) -> float:
         v = o[0] @ mesh
-        return (np.degrees(np.arctan2(a[0] * v[1] - a[1] * v[0], a @ v)) + 1e-9) % 360.0
+        return float((np.degrees(np.arctan2(a[0] * v[1] - a[1] * v[0], a @ v)) + ROUNDING_EPS) % 360.0)
 
     return min(options, key=lambda o: (round(angle(o), 6), tuple(o.ravel())))
 
 
 def reconstructions(
-    crystal,
-    face_terminations,
-    termination_key,
-    fraction,
-    max_cell=MAX_CELL,
+    crystal: Crystal,
+    face_terminations: FaceTerminations,
+    termination_key: str,
+    fraction: float,
+    max_cell: int = MAX_CELL,
     *,
-    sites="auto",
-    fraction_tol=FRACTION_TOL,
-    charge_tol_e=CHARGE_TOL_E,
-    max_patterns=MAX_PATTERNS,
-):
+    sites: SiteChoice = "auto",
+    fraction_tol: float = FRACTION_TOL,
+    charge_tol_e: float = CHARGE_TOL_E,
+    max_patterns: int = MAX_PATTERNS,
+) -> tuple[Reconstruction, ...]:
     """Supercells in which a termination's top sites can be removed or added by ``fraction``.
 
     Parameters
@@ -432,17 +474,27 @@ def reconstructions(
     f = float(fraction)
     if not (np.isfinite(f) and 0 < abs(f) < 1):
         raise PlaneError(f"fraction of sites to change must lie strictly between -1 and 1 and not be 0, got {fraction}")
-    max_cell = check_max_cell(max_cell)
+    n_cells = check_max_cell(max_cell)
     if sites not in ("auto", "unit", "layer"):
         raise PlaneError(f"sites must be 'auto', 'unit' or 'layer', got {sites!r}")
     ft = face_terminations
     group = compensation_sites(ft, termination_key, sites, charge_tol_e)
-    return _reconstructions(crystal, ft, termination_key, f, int(max_cell), group, fraction_tol, max_patterns)
+    return _reconstructions(crystal, ft, termination_key, f, n_cells, group, fraction_tol, max_patterns)
 
 
-def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_patterns):
+def _reconstructions(
+    crystal: Crystal,
+    ft: FaceTerminations,
+    key: str,
+    f: float,
+    max_cell: int,
+    group: CompensationSites,
+    fraction_tol: float,
+    max_patterns: int,
+) -> tuple[Reconstruction, ...]:
+    """:func:`reconstructions` after its input checks, for the sites ``group``."""
     mesh = np.asarray(ft.atoms.mesh_inplane, dtype=float)
-    mode = "remove" if f < 0 else "add"
+    mode: Mode = "remove" if f < 0 else "add"
     g = len(group.inplane)
     base = group.inplane.copy()
     base_depth = group.depth.copy()
@@ -461,10 +513,10 @@ def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_pat
     for members in supercell_classes(max_cell, ops):
         det = int(members[0][0, 0] * members[0][1, 1])
         n = det * g
-        k = abs(f) * n
-        if abs(k - round(k)) > fraction_tol or not 0 < round(k) < n:
+        share = abs(f) * n
+        if abs(share - round(share)) > fraction_tol or not 0 < round(share) < n:
             continue
-        k = int(round(k))
+        k = int(round(share))
         woods = [wood_notation(h, mesh) for h in members]
         pick = min(range(len(members)), key=lambda i: (_wood_rank(woods[i]), tuple(members[i].ravel())))
         hnf, wood = members[pick], woods[pick]
@@ -478,7 +530,9 @@ def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_pat
         reps = coset_representatives(hnf)
         coset, which = best // g, best % g
         shifts = reps[coset] @ mesh
-        atom_xy, atom_z, atom_sp = [], [], []
+        atom_xy: list[FloatArray] = []
+        atom_z: list[FloatArray] = []
+        atom_sp: list[str] = []
         for c, b in zip(coset, which):
             m = group.members[b]
             atom_xy.append(ru.inplane[m] + reps[c] @ mesh + shift_inplane)
@@ -490,8 +544,8 @@ def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_pat
             matrix = _reduced_basis(hnf, mesh)
         out.append(
             Reconstruction(
-                matrix=tuple(tuple(int(v) for v in row) for row in matrix),
-                hnf=tuple(tuple(int(v) for v in row) for row in hnf),
+                matrix=_matrix2(matrix),
+                hnf=_matrix2(hnf),
                 wood=None if wood is None else wood.label,
                 sites=n,
                 changed=k,
@@ -511,3 +565,9 @@ def _reconstructions(crystal, ft, key, f, max_cell, group, fraction_tol, max_pat
         )
     out.sort(key=lambda r: (round(r.score, 6), r.sites, r.hnf))
     return tuple(out)
+
+
+def _matrix2(matrix: IntArray) -> Matrix2:
+    """A (2, 2) integer array as nested tuples of Python ints."""
+    (a, b), (c, d) = ((int(v) for v in row) for row in matrix)
+    return (a, b), (c, d)

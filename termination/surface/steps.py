@@ -19,6 +19,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
 from termination.defaults import LENGTH_EPS_ANGSTROM
+from termination.units import ANGSTROM
 
 __all__ = ["AllowedStep", "StepHeights", "allowed_heights", "class_steps", "step_offset", "steps_from"]
 
@@ -35,7 +36,7 @@ class StepHeights:
     to_label: str = field(metadata={"json": "to"})
     from_ids: tuple[str, ...]
     to_ids: tuple[str, ...]
-    heights: tuple[float, ...] = field(metadata={"unit": "angstrom"})
+    heights: tuple[float, ...] = field(metadata=ANGSTROM)
 
 
 @dataclass(frozen=True)
@@ -45,7 +46,7 @@ class AllowedStep:
     lower: str
     upper: str
     multiple: int
-    height: float = field(metadata={"unit": "angstrom"})
+    height: float = field(metadata=ANGSTROM)
 
 
 def step_offset(z_lower: float, z_upper: float, d: float, tol_angstrom: float) -> float:

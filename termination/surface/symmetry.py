@@ -10,21 +10,27 @@ mesh coordinates as integer matrices.
 from __future__ import annotations
 
 from functools import lru_cache
+from typing import cast
 
 import numpy as np
+
+from termination.arrays import BoolArray, FloatArray, IntArray
+from termination.bulk.crystal import Crystal
+from termination.defaults import ANGLE_EPS_DEG, RELATIVE_EPS
+from termination.surface.faces import Face
 
 __all__ = ["describe_operation", "face_operations", "keeps_face", "operation_tables", "termination_operations"]
 
 
 @lru_cache(maxsize=32)
-def operation_tables(crystal):
+def operation_tables(crystal: Crystal) -> tuple[IntArray, IntArray]:
     """Per-operation tables of the crystal's space group (cached; a Crystal is immutable).
 
     Returns
     -------
-    rinv : (M, 3, 3) int ndarray
+    rinv : (M, 3, 3) IntArray
         R^-1, acting on row Miller indices (h' = h R^-1).
-    preference : (M,) int ndarray
+    preference : (M,) IntArray
         0 for the identity rotation (pure translations), 1 for other proper
         rotations, 3 for improper ones: the order in which operations are
         tried when describing how two terminations are related.
@@ -33,37 +39,43 @@ def operation_tables(crystal):
     improper = np.linalg.det(rots) < 0
     not_identity = np.trace(rots, axis1=1, axis2=2) != 3
     rinv = np.rint(np.linalg.inv(rots)).astype(np.int64)
-    return rinv, 2 * improper.astype(int) + not_identity.astype(int)
+    return rinv, 2 * improper.astype(np.int64) + not_identity.astype(np.int64)
 
 
-def keeps_face(crystal, face):
-    """(M,) bool: the operations with h R^-1 = h."""
+def keeps_face(crystal: Crystal, face: Face) -> BoolArray:
+    """(M,) BoolArray: the operations with h R^-1 = h."""
     rinv, _ = operation_tables(crystal)
     h = np.asarray(face.hkl, dtype=np.int64)
-    return np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1)
+    return cast(BoolArray, np.all(np.einsum("i,nij->nj", h, rinv) == h, axis=1))
 
 
-def face_operations(crystal, face):
-    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h."""
+def face_operations(crystal: Crystal, face: Face) -> tuple[IntArray, FloatArray]:
+    """Space-group operations that map the face onto itself: (R, t) with h R^-1 = h.
+
+    R is (K, 3, 3), t (K, 3), both in the fractional basis of the crystal.
+    """
     keep = keeps_face(crystal, face)
     return crystal.rotations[keep], crystal.translations[keep]
 
 
-def describe_operation(crystal, face, R):
-    """In-plane action of a rotation R (fractional) that keeps the face normal."""
+def describe_operation(crystal: Crystal, face: Face, R: IntArray) -> str:
+    """In-plane action of a rotation R ((3, 3), fractional) that keeps the face normal.
+
+    'translated', 'rotated 90°' or 'mirror at 45°' (angles from mesh vector a).
+    """
     A = crystal.lattice
     Rc = A.T @ R @ np.linalg.inv(A.T)
     e1, e2 = face.frame[0], face.frame[1]
     v = Rc @ e1
     angle = float(np.degrees(np.arctan2(v @ e2, v @ e1)))
     if np.linalg.det(R) > 0:
-        if abs(angle) < 1e-6:
+        if abs(angle) < ANGLE_EPS_DEG:
             return "translated"
         return f"rotated {angle % 360:.0f}°"
     return f"mirror at {(angle / 2) % 180:.0f}°"
 
 
-def termination_operations(crystal, face, *, shift_tol_angstrom=1e-4):
+def termination_operations(crystal: Crystal, face: Face, *, shift_tol_angstrom: float = 1e-4) -> IntArray:
     """2D point operations of a semi-infinite crystal cut parallel to ``face``, on mesh coordinates.
 
     Parameters
@@ -75,7 +87,7 @@ def termination_operations(crystal, face, *, shift_tol_angstrom=1e-4):
 
     Returns
     -------
-    (K, 2, 2) int ndarray
+    (K, 2, 2) IntArray
         Distinct S with u -> u S (u a row of mesh coordinates), identity first.
 
     Notes
@@ -96,11 +108,11 @@ def termination_operations(crystal, face, *, shift_tol_angstrom=1e-4):
     keep = shift <= shift_tol_angstrom
     mesh = np.asarray(face.mesh_fractional, dtype=float)
     pinv = np.linalg.pinv(mesh)
-    out = []
+    out: list[IntArray] = []
     for R in rots[keep]:
         S = mesh @ R.T @ pinv
         Si = np.rint(S).astype(np.int64)
-        if np.max(np.abs(S - Si)) > 1e-6 or not np.allclose(Si @ mesh, mesh @ R.T, atol=1e-6):
+        if np.max(np.abs(S - Si)) > RELATIVE_EPS or not np.allclose(Si @ mesh, mesh @ R.T, atol=RELATIVE_EPS):
             continue
         if not any(np.array_equal(Si, o) for o in out):
             out.append(Si)

@@ -26,18 +26,25 @@ Rules (documented in the README):
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from typing import NamedTuple, SupportsFloat
 
 import numpy as np
 
-from termination.bulk.bonds import bond_graph
+from termination.arrays import FloatArray, IntArray
+from termination.bulk.bonds import BondGraph, bond_graph
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import composition_label
 from termination.defaults import (
     BOND_FACTOR,
     LAYER_TOL_ANGSTROM,
+    LENGTH_EPS_ANGSTROM,
     MAX_MULTIPLE,
     MAX_MULTIPLE_LIMIT,
+    ROUNDING_EPS,
     UNIT_RATIO,
+    ZERO_EPS,
 )
 from termination.errors import StructureError
 from termination.surface.faces import Face, face_geometry
@@ -45,6 +52,7 @@ from termination.surface.layers import FaceAtoms, Layer, cluster_layers, face_at
 from termination.surface.miller import hkl_text
 from termination.surface.steps import StepHeights, class_steps
 from termination.surface.symmetry import describe_operation, keeps_face, operation_tables
+from termination.units import ANGSTROM, PER_NM2, E
 
 __all__ = [
     "Cut",
@@ -60,10 +68,13 @@ class Cut:
     """A gap between consecutive layers (per surface primitive cell).
 
     ``below`` and ``above`` are layer indices (top-first numbering);
-    ``height`` is the cut plane's height in [0, d), Å.
+    ``height`` is the cut plane's height in [0, d), Å; ``broken_bonds``,
+    ``weighted_bonds`` (weighted by w = (r_i+r_j)/R) and ``unit_bonds`` count
+    the bonds crossing it per surface primitive cell; ``allowed`` says whether
+    it is a cut (see the module notes).
     """
 
-    height: float
+    height: float = field(metadata=ANGSTROM)
     below: int
     above: int
     broken_bonds: float
@@ -82,7 +93,7 @@ class Termination:
         'T1', 'T2', ... in order of increasing broken-bond density.
     label : str
         Composition of the top unit, electropositive element first ('SrO', 'B6').
-    composition : dict
+    composition : dict of str to int
         Atoms of the top unit per surface primitive cell.
     depth : float
         Depth of the top layer below the highest layer of the period, Å.
@@ -100,12 +111,12 @@ class Termination:
 
     id: str
     label: str
-    composition: dict
-    depth: float
-    layers: tuple
-    cut_height: float
-    broken_bonds_per_nm2: float
-    weighted_bonds_per_nm2: float
+    composition: dict[str, int]
+    depth: float = field(metadata=ANGSTROM)
+    layers: tuple[int, ...]
+    cut_height: float = field(metadata=ANGSTROM)
+    broken_bonds_per_nm2: float = field(metadata=PER_NM2)
+    weighted_bonds_per_nm2: float = field(metadata=PER_NM2)
     equivalent_to: str | None
     relation: str | None
 
@@ -114,22 +125,36 @@ class Termination:
 class SurfaceAtoms:
     """Atoms below a termination's surface (one surface primitive cell wide).
 
-    ``depth`` is measured down from the top layer (0 for the top layer, Å);
-    ``unit`` is 0 for the top termination unit, 1 for the next, ...;
-    ``inplane`` is in the face frame (e1, e2), Å.
+    Attributes
+    ----------
+    species : tuple of str
+        One entry per atom.
+    inplane : (N, 2) FloatArray
+        Position in the face frame (e1, e2), Å.
+    depth : (N,) FloatArray
+        Depth below the top layer (0 for the top layer), Å.
+    unit : (N,) IntArray
+        0 for the top termination unit, 1 for the next, ...
+    charges : (N,) FloatArray or None
+        Formal charges, units of e.
+    mesh_inplane : (2, 2) FloatArray
+        Mesh vectors a, b as rows in the face frame, Å.
     """
 
-    species: tuple
-    inplane: np.ndarray
-    depth: np.ndarray
-    unit: np.ndarray
-    charges: np.ndarray | None
-    mesh_inplane: np.ndarray
+    species: tuple[str, ...]
+    inplane: FloatArray = field(metadata=ANGSTROM)
+    depth: FloatArray = field(metadata=ANGSTROM)
+    unit: IntArray
+    charges: FloatArray | None = field(metadata=E)
+    mesh_inplane: FloatArray = field(metadata=ANGSTROM)
 
 
 @dataclass(frozen=True, eq=False)
 class FaceTerminations:
-    """Layers, cuts, terminations and steps of one face."""
+    """Layers, cuts, terminations and steps of one face.
+
+    ``layer_tol_angstrom`` and ``unit_ratio`` are the settings they were found with.
+    """
 
     face: Face
     atoms: FaceAtoms
@@ -137,19 +162,20 @@ class FaceTerminations:
     cuts: tuple[Cut, ...]
     terminations: tuple[Termination, ...]
     steps: tuple[StepHeights, ...]
-    layer_tol_angstrom: float
+    layer_tol_angstrom: float = field(metadata=ANGSTROM)
     unit_ratio: float
 
     @property
-    def d(self):
+    def d(self) -> float:
+        """Period of the face, Å."""
         return self.face.d
 
     @property
-    def smallest_step(self):
+    def smallest_step(self) -> float:
         """Smallest allowed step height of the face, Å."""
         return min(h for s in self.steps for h in s.heights)
 
-    def termination(self, key):
+    def termination(self, key: str) -> Termination:
         """Termination by id ('T2') or label ('SrO'; the first one with it)."""
         for t in self.terminations:
             if key in (t.id, t.label):
@@ -157,10 +183,11 @@ class FaceTerminations:
         known = ", ".join(f"{t.id} ({t.label})" for t in self.terminations)
         raise StructureError(f"face {hkl_text(self.face.hkl)} has no termination {key!r}; it has {known}")
 
-    def _top_height(self, t):
+    def _top_height(self, t: Termination) -> float:
+        """Height of the top layer of ``t`` in [0, d), Å."""
         return self.layers[t.layers[0]].height
 
-    def surface_atoms(self, key, max_depth_angstrom):
+    def surface_atoms(self, key: str, max_depth_angstrom: float) -> SurfaceAtoms:
         """Atoms from the top layer of termination ``key`` down to ``max_depth_angstrom``.
 
         Returns
@@ -169,9 +196,9 @@ class FaceTerminations:
             Periodic images along the normal are included, so any depth works.
         """
         t = self.termination(key)
-        return self._atoms_between(t, -1e-6, float(max_depth_angstrom))
+        return self._atoms_between(t, -LENGTH_EPS_ANGSTROM, float(max_depth_angstrom))
 
-    def repeat_unit(self, key):
+    def repeat_unit(self, key: str) -> SurfaceAtoms:
         """The atoms of one period, from the cut above termination ``key`` down.
 
         Depths are measured from the top layer; atoms satisfy
@@ -182,10 +209,11 @@ class FaceTerminations:
         t = self.termination(key)
         z_top = self._top_height(t)
         cut_depth = -((t.cut_height - z_top) % self.d)
-        out = self._atoms_between(t, cut_depth, cut_depth + self.d - 1e-9)
+        out = self._atoms_between(t, cut_depth, cut_depth + self.d - ROUNDING_EPS)
         return out
 
-    def _atoms_between(self, t, dmin, dmax):
+    def _atoms_between(self, t: Termination, dmin: float, dmax: float) -> SurfaceAtoms:
+        """Atoms (periodic images included) with dmin <= depth <= dmax below the top layer of ``t``, Å."""
         a = self.atoms
         d = self.d
         z_top = self._top_height(t)
@@ -193,20 +221,21 @@ class FaceTerminations:
         base = z_top - a.heights
         kmin = np.floor((base - dmax) / d).astype(int)
         kmax = np.ceil((base - dmin) / d).astype(int)
-        idx, ks = [], []
+        rows: list[int] = []
+        images: list[int] = []
         for i in range(len(base)):
             for k in range(kmin[i], kmax[i] + 1):
-                depth = base[i] - k * d
-                if dmin <= depth <= dmax:
-                    idx.append(i)
-                    ks.append(k)
-        idx = np.array(idx, dtype=int)
-        ks = np.array(ks, dtype=float)
+                z = base[i] - k * d
+                if dmin <= z <= dmax:
+                    rows.append(i)
+                    images.append(k)
+        idx = np.array(rows, dtype=np.int64)
+        ks = np.array(images, dtype=np.float64)
         depth = base[idx] - ks * d
         inplane = a.inplane[idx] + ks[:, None] * a.stack_inplane[None, :]
         allowed = [c.height for c in self.cuts if c.allowed]
         z_atom = z_top - depth
-        unit = np.zeros(len(idx), dtype=int)
+        unit = np.zeros(len(idx), dtype=np.int64)
         for c in allowed:
             # allowed cut planes strictly between the atom and the top cut
             unit += (np.floor((z_top - c) / d) - np.floor((z_atom - c) / d)).astype(int)
@@ -222,16 +251,16 @@ class FaceTerminations:
 
 
 def face_terminations(
-    crystal,
-    hkl,
+    crystal: Crystal,
+    hkl: Iterable[SupportsFloat],
     *,
-    layer_tol_angstrom=LAYER_TOL_ANGSTROM,
-    bond_factor=BOND_FACTOR,
-    bond_cutoff_angstrom=None,
-    unit_ratio=UNIT_RATIO,
-    max_multiple=MAX_MULTIPLE,
-    face=None,
-):
+    layer_tol_angstrom: float = LAYER_TOL_ANGSTROM,
+    bond_factor: float = BOND_FACTOR,
+    bond_cutoff_angstrom: float | None = None,
+    unit_ratio: float = UNIT_RATIO,
+    max_multiple: int = MAX_MULTIPLE,
+    face: Face | None = None,
+) -> FaceTerminations:
     """Layers, terminations and step heights of the face ``hkl``.
 
     Parameters
@@ -274,29 +303,44 @@ def face_terminations(
     return _face_terminations(crystal, face, graph, tol, ratio, int(max_multiple))
 
 
-def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
+class _Candidate(NamedTuple):
+    """An allowed cut above layer ``k`` and the unit below it, before ids and labels are given."""
+
+    k: int
+    comp: dict[str, int]
+    depth: float
+    layers: tuple[int, ...]
+    cut: float
+    bb: float
+    wb: float
+
+
+def _face_terminations(
+    crystal: Crystal, face: Face, graph: BondGraph, tol: float, ratio: float, max_multiple: int
+) -> FaceTerminations:
+    """:func:`face_terminations` after its input checks."""
     d = face.d
     atoms = face_atoms(crystal, face)
     labels, centres = cluster_layers(atoms.heights, d, tol)
     nl = len(centres)
     # Top-first numbering: layer 0 is the highest of the period.
     top_first = np.argsort(-centres, kind="stable")
-    new_index = np.empty(nl, dtype=int)
+    new_index = np.empty(nl, dtype=np.int64)
     new_index[top_first] = np.arange(nl)
     labels = new_index[labels]
     centres = centres[top_first]
     layers = []
     for k in range(nl):
-        members = np.flatnonzero(labels == k)
-        comp = {}
-        for i in members:
+        in_layer = [int(i) for i in np.flatnonzero(labels == k)]
+        comp: dict[str, int] = {}
+        for i in in_layer:
             comp[atoms.species[i]] = comp.get(atoms.species[i], 0) + 1
         layers.append(
             Layer(
                 height=float(centres[k]),
                 depth=float(centres[0] - centres[k]),
                 composition=comp,
-                atoms=tuple(int(i) for i in members),
+                atoms=tuple(in_layer),
             )
         )
 
@@ -310,12 +354,12 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
 
     counts, weighted, unit = _crossings(crystal, face, graph, cut_heights)
     area_nm2 = face.mesh.area / 100.0
-    allowed = unit <= unit.min() + 1e-9
+    allowed = unit <= unit.min() + ROUNDING_EPS
     wmin = weighted[allowed].min()
-    if wmin <= 1e-12:
-        allowed &= weighted <= 1e-12
+    if wmin <= ZERO_EPS:
+        allowed &= weighted <= ZERO_EPS
     else:
-        allowed &= weighted <= ratio * wmin * (1 + 1e-9)
+        allowed &= weighted <= ratio * wmin * (1 + ROUNDING_EPS)
     cuts = tuple(
         Cut(
             height=float(cut_heights[k]),
@@ -331,7 +375,7 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
 
     # Units: from an allowed cut above layer k down to the next allowed cut.
     allowed_layers = [k for k in range(nl) if allowed[k]]
-    units = {}
+    units: dict[int, tuple[int, ...]] = {}
     for k in allowed_layers:
         members = [k]
         j = (k + 1) % nl
@@ -342,16 +386,16 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
 
     classes, relations = _equivalence(crystal, face, cut_heights, allowed_layers, tol, d)
 
-    raw = []
+    raw: list[_Candidate] = []
     for k in allowed_layers:
-        comp = {}
+        unit_comp: dict[str, int] = {}
         for m in units[k]:
             for el, n in layers[m].composition.items():
-                comp[el] = comp.get(el, 0) + n
+                unit_comp[el] = unit_comp.get(el, 0) + n
         raw.append(
-            dict(
+            _Candidate(
                 k=k,
-                comp=comp,
+                comp=unit_comp,
                 depth=layers[k].depth,
                 layers=units[k],
                 cut=float(cut_heights[k]),
@@ -359,48 +403,49 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
                 wb=float(weighted[k] / area_nm2),
             )
         )
-    order = sorted(range(len(raw)), key=lambda i: (round(raw[i]["bb"], 6), round(raw[i]["wb"], 6), raw[i]["depth"]))
-    ids = {raw[i]["k"]: f"T{n + 1}" for n, i in enumerate(order)}
+    order = sorted(range(len(raw)), key=lambda i: (round(raw[i].bb, 6), round(raw[i].wb, 6), raw[i].depth))
+    ids = {raw[i].k: f"T{n + 1}" for n, i in enumerate(order)}
 
     # Labels: equivalent terminations share one; inequivalent namesakes get primes.
     rep_of = {
         k: min((j for j in allowed_layers if classes[j] == classes[k]), key=lambda j: ids[j]) for k in allowed_layers
     }
-    label_of, used = {}, {}
+    label_of: dict[int, str] = {}
+    used: dict[str, int] = {}
     for i in order:
-        k = raw[i]["k"]
+        k = raw[i].k
         if rep_of[k] != k:
             continue
-        base = composition_label(raw[i]["comp"])
+        base = composition_label(raw[i].comp)
         label_of[k] = base + "'" * used.get(base, 0)
         used[base] = used.get(base, 0) + 1
-    terminations = []
+    found = []
     for i in order:
         r = raw[i]
-        k = r["k"]
+        k = r.k
         rep = rep_of[k]
-        terminations.append(
+        found.append(
             Termination(
                 id=ids[k],
                 label=label_of[rep],
-                composition=r["comp"],
-                depth=r["depth"],
-                layers=r["layers"],
-                cut_height=r["cut"],
-                broken_bonds_per_nm2=r["bb"],
-                weighted_bonds_per_nm2=r["wb"],
+                composition=r.comp,
+                depth=r.depth,
+                layers=r.layers,
+                cut_height=r.cut,
+                broken_bonds_per_nm2=r.bb,
+                weighted_bonds_per_nm2=r.wb,
                 equivalent_to=None if rep == k else ids[rep],
                 relation=None if rep == k else relations.get((rep, k)),
             )
         )
-    terminations = tuple(terminations)
+    terminations = tuple(found)
     tops = {t.id: layers[t.layers[0]].height for t in terminations}
-    members = [
+    classes_of_ids = [
         (t.label, tuple(u.id for u in terminations if (u.equivalent_to or u.id) == t.id))
         for t in terminations
         if t.equivalent_to is None
     ]
-    steps = class_steps(members, tops, d, max_multiple, tol)
+    steps = class_steps(classes_of_ids, tops, d, max_multiple, tol)
     return FaceTerminations(
         face=face,
         atoms=atoms,
@@ -413,8 +458,12 @@ def _face_terminations(crystal, face, graph, tol, ratio, max_multiple):
     )
 
 
-def _crossings(crystal, face, graph, cut_heights):
-    """Bonds crossing each cut plane, per surface primitive cell.
+def _crossings(
+    crystal: Crystal, face: Face, graph: BondGraph, cut_heights: FloatArray
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Bonds crossing each cut plane, per surface primitive cell: counts, weighted counts, unit bonds, each (C,).
+
+    ``cut_heights`` (C,) are the heights of the cut planes in [0, d), Å.
 
     A bond from height z to z + dz (dz > 0) crosses the planes c + k d with
     z < c + k d <= z + dz; their number is floor((z + dz - c)/d) - floor((z - c)/d).
@@ -424,7 +473,7 @@ def _crossings(crystal, face, graph, cut_heights):
     gnorm = np.linalg.norm(G)
     z_conv = (crystal.positions @ np.asarray(face.hkl, dtype=float)) / gnorm % d
     dz = graph.vector @ (G / gnorm)
-    up = dz > 1e-9
+    up = dz > ROUNDING_EPS
     z0 = z_conv[graph.source[up]][:, None]
     z1 = z0 + dz[up][:, None]
     c = cut_heights[None, :]
@@ -436,8 +485,14 @@ def _crossings(crystal, face, graph, cut_heights):
     return counts, weighted, unit
 
 
-def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
-    """Classes of symmetry-equivalent allowed cuts and the relating operation."""
+def _equivalence(
+    crystal: Crystal, face: Face, cut_heights: FloatArray, allowed_layers: list[int], tol: float, d: float
+) -> tuple[dict[int, int], dict[tuple[int, int], str]]:
+    """Classes of symmetry-equivalent allowed cuts and the relating operation.
+
+    Returns the class (its smallest layer index) of each allowed cut, keyed by
+    layer index, and for related pairs (i, j) how i maps onto j.
+    """
     keep = keeps_face(crystal, face)
     # Identity first, then proper rotations, then improper ones (stable, so
     # spglib's order is kept within each group): the first operation that
@@ -448,14 +503,14 @@ def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
     shifts = (trans @ np.asarray(face.hkl, dtype=float)) / np.linalg.norm(G) % d
     parent = {k: k for k in allowed_layers}
 
-    def find(k):
+    def find(k: int) -> int:
         while parent[k] != k:
             k = parent[k]
         return k
 
-    relations = {}
-    allowed = np.asarray(allowed_layers, dtype=int)
-    reach = max(tol, 1e-6)
+    relations: dict[tuple[int, int], str] = {}
+    allowed = np.asarray(allowed_layers, dtype=np.int64)
+    reach = max(tol, LENGTH_EPS_ANGSTROM)
     for i in allowed_layers:
         target = (cut_heights[i] + shifts) % d  # (M,)
         diff = (cut_heights[allowed][None, :] - target[:, None] + d / 2) % d - d / 2
@@ -471,3 +526,15 @@ def _equivalence(crystal, face, cut_heights, allowed_layers, tol, d):
                 parent[max(ri, rj)] = min(ri, rj)
     classes = {k: find(k) for k in allowed_layers}
     return classes, relations
+
+
+@dataclass(frozen=True)
+class TerminationRef:
+    """A termination named in a result: its id ('T2') and label ('SrO')."""
+
+    id: str
+    label: str
+
+    @classmethod
+    def of(cls, termination: Termination) -> TerminationRef:
+        return cls(termination.id, termination.label)

@@ -35,7 +35,7 @@ def test_poscar_read_through_ase_matches_prototype(proto, tmp_path):
     assert c.spacegroup_number == 225 and c.natoms == 4  # spglib
     ref = planes_report(proto("fcc:Cu"), 2)
     got = planes_report(c, 2)
-    assert [(p.hkl, round(p.d, 6)) for p in got.planes] == [(p.hkl, round(p.d, 6)) for p in ref.planes]
+    assert [(p.hkl, round(p.d, 6)) for p in got.faces] == [(p.hkl, round(p.d, 6)) for p in ref.faces]
 
 
 def test_partial_occupancy_is_rejected(tmp_path):

@@ -45,8 +45,11 @@ def test_match_json_fields():
     assert len(data["candidates"]) == 3
     best = data["candidates"][0]
     assert best["rank"] == 1 and best["hkl"] == [0, 0, 1]
-    assert {"termination", "probability", "log_likelihood", "tilt", "spacings", "steps"} <= set(best)
-    assert {"measured", "predicted", "residual"} <= set(best["spacings"][0])
+    assert {"termination", "probability", "log_likelihood", "tilt_deg", "spacings_angstrom", "steps_angstrom"} <= set(
+        best
+    )
+    assert set(best["termination"]) == {"id", "label"}
+    assert {"measured", "predicted", "residual"} <= set(best["spacings_angstrom"][0])
     assert abs(sum(c["probability"] for c in data["candidates"]) - 1) < 0.05 or best["probability"] > 0.9
 
 
@@ -172,7 +175,7 @@ def test_huge_values_give_one_line_and_no_numeric_warnings():
     r = runner.invoke(cli.app, ["planes", "rocksalt:Na,Cl", "--a", "1e300"])
     assert r.exit_code == 2 and len(r.stderr.strip().splitlines()) == 1 and "1000" in r.stderr
     r = runner.invoke(cli.app, ["match", "fcc:Cu", "--mount", "0", "0", "1", "--spacing", "1e300", "--json"])
-    assert r.exit_code == 0 and r.stderr == ""
+    assert r.exit_code == 2 and len(r.stderr.strip().splitlines()) == 1 and "1e+300" in r.stderr
 
 
 def test_empty_steps_file_names_the_file(tmp_path):

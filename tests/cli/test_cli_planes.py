@@ -23,15 +23,16 @@ def test_planes_json_has_documented_fields():
     r = invoke("planes", "zincblende:Ga,As", "--max-index", "1", "--json")
     assert r.exit_code == 0
     data = json.loads(r.stdout)
-    assert {"structure", "mount", "planes"} <= set(data)
-    hkls = [p["hkl"] for p in data["planes"]]
+    assert {"structure", "mount", "faces"} <= set(data)
+    hkls = [p["hkl"] for p in data["faces"]]
     assert [1, 1, 1] in hkls and [-1, -1, -1] in hkls
-    assert set(data["planes"][0]) >= {"hkl", "d", "tilt", "multiplicity", "mesh"}
+    assert set(data["faces"][0]) >= {"hkl", "d_angstrom", "tilt_deg", "multiplicity", "mesh", "terminations"}
+    assert data["schema_version"] and data["command"] == "planes"
     assert "As" in data["structure"]["caution"]  # toxic-element handling caution
 
 
 def test_structures_lists_prototypes():
-    r = invoke("structures")
+    r = invoke("structures", "--wide")
     assert r.exit_code == 0 and "half-heusler" in r.output and "4b" in r.output
     data = json.loads(invoke("structures", "--json").stdout)
     assert any(p["name"] == "hexaboride" and p["free_parameter_x"] == 0.2 for p in data["prototypes"])

@@ -16,12 +16,13 @@ def test_terminations_table():
 def test_terminations_json_fields():
     r = runner.invoke(cli.app, ["terminations", "hexaboride:La,B", "--plane", "0", "0", "1", "--json"])
     data = json.loads(r.stdout)
-    assert data["plane"] == [0, 0, 1] and abs(data["d"] - 4.157) < 1e-9
+    assert data["hkl"] == [0, 0, 1] and abs(data["d_angstrom"] - 4.157) < 1e-9
     assert {t["label"] for t in data["terminations"]} == {"B6", "La"}
     t = data["terminations"][0]
-    assert {"label", "composition", "depth", "broken_bonds_per_nm2", "equivalent_to"} <= set(t)
-    assert {"from", "to", "heights"} <= set(data["steps"][0])
-    assert {"depth", "composition"} <= set(data["layers"][0])
+    assert {"id", "label", "composition", "depth_angstrom", "broken_bonds_per_nm2", "equivalent_to"} <= set(t)
+    assert {"a_angstrom", "b_angstrom", "gamma_deg"} == set(t["apparent_lattice"])  # nested in its termination
+    assert {"from", "to", "heights_angstrom"} <= set(data["steps"][0])
+    assert {"depth_angstrom", "composition"} <= set(data["layers"][0])
 
 
 def test_terminations_bad_input():

@@ -6,6 +6,7 @@ from termination.identification.candidates import candidate_table
 from termination.identification.likelihood import match, score
 from termination.identification.measurement import Measurement, Value
 from termination.identification.model import MatchModel
+from termination.identification.verdict import same_predictions
 from termination.surface.corrugation import Visibility
 from termination.testing import synthetic_measurement
 
@@ -22,12 +23,8 @@ def tables():
 
 
 def _same_prediction(a, b):
-    return (
-        np.allclose(sorted(a.tilts), sorted(b.tilts), atol=1e-6)
-        and np.allclose(sorted(a.periodicities), sorted(b.periodicities), atol=1e-6)
-        and np.allclose(a.apparent, b.apparent, atol=1e-6)
-        and np.allclose(sorted(a.step_heights), sorted(b.step_heights), atol=1e-6)
-    )
+    # Recovery is judged on what can be measured (tilt, lattice, steps), not on composition.
+    return same_predictions(a, b, labels=False)
 
 
 def test_synthetic_measurements_are_recovered_at_rank_1(tables):
@@ -42,15 +39,25 @@ def test_synthetic_measurements_are_recovered_at_rank_1(tables):
             m = synthetic_measurement(table, i, rng, tilt_sigma=0.5, spacing_sigma=0.03, step_sigma=0.03, n_steps=6)
             best = table.candidates[_index_of(table, score(table, m, top=1).candidates[0])]
             total += 1
-            if best is not cand and not _same_prediction(best, cand):
+            if best is not cand and not _same_prediction(best, cand) and not _nested(best, cand):
                 misses += 1
     assert total > 80
     assert misses / total <= 0.05
 
 
+def _nested(a, b):
+    """One hypothesis contains the other: a mixed surface and one of its own terminations (same face and cell).
+
+    A mixed surface drawn with uneven fractions, or whose few cross steps fell on
+    the outlier allowance, is fairly reported as its majority termination.
+    """
+    ta, tb = {t.id for t in a.classes}, {t.id for t in b.classes}
+    return a.hkl == b.hkl and a.cell == b.cell and (ta <= tb or tb <= ta)
+
+
 def _index_of(table, row):
     for i, c in enumerate(table.candidates):
-        if c.hkl == row.hkl and c.termination_id == row.termination_id and c.cell == row.cell:
+        if c.hkl == row.hkl and c.classes == row.terraces and c.cell == row.cell:
             return i
     raise KeyError(row)
 
@@ -170,22 +177,23 @@ def test_literature_surfaces_rank_first(proto, spec, measurement, options, hkl, 
     best = report.candidates[0]
     assert best.hkl == hkl, report.verdict
     if label:
-        assert best.termination == label
+        assert best.termination.label == label
     assert "hypothesis" in report.verdict
 
 
 def test_measured_supercell_spacing_selects_a_reconstruction(proto):
-    # SmB6(001) cleaved: (2x1) rows of the half-occupied top layer seen by STM
-    # (Rößler et al., PNAS 111, 4798 (2014), from memory); the metal-terminated (001) face
-    # needs half its top layer removed whatever the valence (Tasker 1979).
+    # CeB6 (a = 4.141 Å, from memory): the metal-terminated (001) face is Tasker type III and
+    # needs half its top layer removed whatever the valence (Tasker, J. Phys. C 12, 4977 (1979));
+    # the model's (2×1) cell has rows 2a = 8.28 Å apart.  A measurement of a and 2a with
+    # one-period steps must pick that cell over the unreconstructed surface.
     m = Measurement(
         mount=(0, 0, 1),
         tilt=V(0.5, 1),
-        spacings=(V(4.13, 0.15), V(8.2, 0.3)),
+        spacings=(V(4.14, 0.15), V(8.3, 0.3)),
         row_angle=V(90, 3),
-        steps=(V(4.1, 0.15),),
+        steps=(V(4.14, 0.15),),
     )
-    report = match(proto("hexaboride:Sm,B", a=4.133), m, top=4)
+    report = match(proto("hexaboride:Ce,B"), m, top=4)
     best = report.candidates[0]
     assert best.hkl == (0, 0, 1) and best.cell == "(2×1)"
     unreconstructed = [r for r in report.candidates if r.cell is None]

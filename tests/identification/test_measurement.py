@@ -26,10 +26,10 @@ SPEC_EXAMPLE = """\
 # termination measurement file
 mount = [0, 0, 1]                          # face the crystal was mounted on
 max_index = 3
-tilt = { value = 30.0, sigma = 3.0 }       # inclination of the imaged terrace plane to the mount face, deg
-row_angle = { value = 60.0, sigma = 3.0 }  # deg
-spacings = [ { value = 4.6, sigma = 0.2 } ]  # corrugation periodicities, Å
-steps = [ { value = 1.25, sigma = 0.1 } ]    # step heights, Å
+tilt = { value = 54.0, sigma = 2.0 }       # inclination of the imaged terrace plane to the mount face, deg
+row_angle = { value = 90.0, sigma = 4.0 }  # deg
+spacings = [ { value = 4.19, sigma = 0.15 } ]  # corrugation periodicities, Å
+steps = [ { value = 2.97, sigma = 0.12 } ]     # step heights, Å
 [visibility]
 visible = ["Sn"]
 weights = { Na = 0.2 }
@@ -39,10 +39,10 @@ decay_length = 1.0                          # Å
 FULL = Measurement(
     mount=(0, 0, 1),
     max_index=3,
-    tilt=Value(30.0, 3.0),
-    row_angle=Value(60.0, 3.0),
-    spacings=(Value(4.6, 0.2),),
-    steps=(Value(1.25, 0.1),),
+    tilt=Value(54.0, 2.0),
+    row_angle=Value(90.0, 4.0),
+    spacings=(Value(4.19, 0.15),),
+    steps=(Value(2.97, 0.12),),
     visible=("Sn",),
     weights={"Na": 0.2},
     decay_length=1.0,
@@ -52,19 +52,19 @@ FULL = Measurement(
 # ----------------------------------------------------------------- parse_value
 
 
-# the spellings the measurement format specifies: "30", "30+-3", "30±3", "30 +/- 3"
+# the spellings the measurement format specifies: "54", "54+-2", "54±2", "54 +/- 2"
 @pytest.mark.parametrize(
     "text, value, sigma",
     [
-        ("30", 30.0, None),
-        ("30+-3", 30.0, 3.0),
-        ("30±3", 30.0, 3.0),
-        ("30 +/- 3", 30.0, 3.0),
-        (" 1.25 ± 0.1 ", 1.25, 0.1),
+        ("54", 54.0, None),
+        ("54+-2", 54.0, 2.0),
+        ("54±2", 54.0, 2.0),
+        ("54 +/- 2", 54.0, 2.0),
+        (" 2.97 ± 0.12 ", 2.97, 0.12),
         ("-5.5+-0.25", -5.5, 0.25),
         ("1e1+-2e-1", 10.0, 0.2),
         (".5", 0.5, None),
-        ("4.6 +- 0", 4.6, 0.0),
+        ("4.19 +- 0", 4.19, 0.0),
     ],
 )
 def test_parse_value_accepts_the_documented_spellings(text, value, sigma):
@@ -73,7 +73,7 @@ def test_parse_value_accepts_the_documented_spellings(text, value, sigma):
     assert v.sigma == sigma
 
 
-@pytest.mark.parametrize("text", ["abc", "30+-", "nan", "inf", "30+--3", "30±-3", "", "30 3", "30+-3+-1", "1,5"])
+@pytest.mark.parametrize("text", ["abc", "54+-", "nan", "inf", "54+--2", "54±-2", "", "54 2", "54+-2+-1", "1,5"])
 def test_parse_value_rejects_garbage_and_names_it(text):
     with pytest.raises(MeasurementError) as err:
         parse_value(text)
@@ -82,7 +82,7 @@ def test_parse_value_rejects_garbage_and_names_it(text):
 
 def test_parse_value_rejects_non_text():
     with pytest.raises(MeasurementError, match="text"):
-        parse_value(30.0)
+        parse_value(54.0)
 
 
 @pytest.mark.parametrize(
@@ -131,7 +131,7 @@ def test_missing_sigma_reads_as_none(tmp_path):
     assert read_measurement(write_measurement(tmp_path / "again.toml", m)) == m
 
 
-finite = st.floats(min_value=1e-6, max_value=1e6, allow_nan=False, allow_infinity=False)
+finite = st.floats(min_value=1e-6, max_value=1e3, allow_nan=False, allow_infinity=False)  # lengths within the bound
 sigmas = st.one_of(st.none(), st.floats(min_value=0, max_value=1e3, allow_nan=False))
 values = st.builds(Value, finite, sigmas)
 symbols = st.sampled_from(["Na", "Cl", "Sn", "Ti", "Ni", "O", "Sr"])
@@ -183,13 +183,13 @@ def test_write_refuses_to_overwrite_without_force(tmp_path):
         ("tilt = { value = 3, error = 1 }", "unknown key 'error'"),
         ("tilt = { sigma = 1 }", "missing 'value'"),
         ("tilt = 'abc'", "abc"),
-        ("tilt = [30]", "tilt"),
-        ("tilt = { value = 30, sigma = -3 }", "non-negative"),
+        ("tilt = [54]", "tilt"),
+        ("tilt = { value = 54, sigma = -2 }", "non-negative"),
         ("tilt = { value = nan }", "finite"),
         ("tilt = { value = 95 }", "[0, 90]"),
         ("row_angle = { value = 180 }", "(0, 180)"),
-        ("spacings = 4.6", "list"),
-        ("spacings = [ { value = -4.6 } ]", "spacing"),
+        ("spacings = 4.19", "list"),
+        ("spacings = [ { value = -4.19 } ]", "spacing"),
         ("steps = [ { value = 0 } ]", "step height"),
         ("mount = [0, 0, 0]", "(0 0 0)"),
         ("mount = [1, 2]", "three integers"),
@@ -233,11 +233,11 @@ def test_measurement_checks_fields_when_built_in_code():
 def test_read_steps_reads_the_plain_list_format(tmp_path):
     path = tmp_path / "steps.txt"
     path.write_text(
-        "# heights from line profiles\n1.25\n\n2.50 0.05   # with sigma\n3.75, 0.1\n   1.3±0.2\n1.4 +- 0.1\n",
+        "# heights from line profiles\n2.97\n\n2.50 0.05   # with sigma\n3.75, 0.1\n   1.3±0.2\n1.4 +- 0.1\n",
         encoding="utf-8",
     )
     assert read_steps(path) == (
-        Value(1.25),
+        Value(2.97),
         Value(2.5, 0.05),
         Value(3.75, 0.1),
         Value(1.3, 0.2),
@@ -248,10 +248,10 @@ def test_read_steps_reads_the_plain_list_format(tmp_path):
 @pytest.mark.parametrize(
     "line, fragment",
     [
-        ("-1.25", "positive"),
-        ("1.25 0.1 7", "optional sigma"),
+        ("-2.97", "positive"),
+        ("2.97 0.1 7", "optional sigma"),
         ("one", "'one'"),
-        ("1.25 -0.1", "non-negative"),
+        ("2.97 -0.1", "non-negative"),
         ("nan", "'nan'"),
     ],
 )
@@ -265,7 +265,7 @@ def test_read_steps_names_file_and_line_of_a_bad_entry(tmp_path, line, fragment)
 
 
 def test_step_list_round_trip(tmp_path):
-    steps = (Value(1.25, 0.01), Value(2.5), Value(0.7, 0.0))
+    steps = (Value(2.97, 0.01), Value(2.5), Value(0.7, 0.0))
     path = write_steps(tmp_path / "s.txt", steps, comment="from scan.npy")
     assert read_steps(path) == steps
     with pytest.raises(MeasurementError, match="exists"):
@@ -309,6 +309,6 @@ def test_merge_rejects_other_types():
 
 
 def test_value_text_form():
-    assert str(Value(30.0, 3.0)) == "30±3"
-    assert str(Value(4.6)) == "4.6"
-    assert math.isclose(parse_value(str(Value(1.25, 0.1))).sigma, 0.1)
+    assert str(Value(54.0, 2.0)) == "54±2"
+    assert str(Value(4.19)) == "4.19"
+    assert math.isclose(parse_value(str(Value(2.97, 0.1))).sigma, 0.1)

@@ -126,7 +126,7 @@ def _table(report):
             round(p.mesh.gamma, 4),
             round(p.mesh.area, 5),
         )
-        for p in report.planes
+        for p in report.faces
     ]
 
 
@@ -182,8 +182,8 @@ def test_max_index_range(proto, n):
 
 def test_json_form_is_plain(proto):
     data = to_jsonable(planes_report(proto("fcc:Cu"), 1, mount=(0, 0, 1)))
-    assert data["planes"][0]["hkl"] == [0, 0, 1] and data["mount"] == [0, 0, 1]
-    assert set(data["planes"][0]["mesh"]) == {"a", "b", "gamma", "area"}
+    assert data["faces"][0]["hkl"] == [0, 0, 1] and data["mount"] == [0, 0, 1]
+    assert set(data["faces"][0]["mesh"]) == {"a_angstrom", "b_angstrom", "gamma_deg", "area_angstrom2"}
 
 
 def test_hexagonal_lattice_is_handled_generally():

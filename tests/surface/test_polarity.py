@@ -73,7 +73,7 @@ def test_rocksalt_111_is_type_III_half_the_top_layer(charged):
     by = {t.label: t for t in f.terminations}
     for label, sign in (("Na", 1), ("Cl", -1)):
         t = by[label]
-        assert t.tasker_type == "III" and t.sites == "top layer" and t.site_label == label
+        assert t.tasker_type == "III" and t.site_kind == "top layer" and t.site_label == label
         assert [round(L.charge, 9) for L in t.layers] == [sign, -sign]
         assert t.compensating_charge == pytest.approx(-sign / 2)
         assert t.compensation == pytest.approx(-0.5)
@@ -113,18 +113,17 @@ def test_perovskite_110_is_type_III(charged):
 @pytest.mark.parametrize("valence", [2, 2.5, 3])
 def test_hexaboride_metal_termination_loses_half_whatever_the_valence(charged, valence):
     # The B6 octahedron sits halfway between metal planes, so mu = q_M d/2 and
-    # dq = -q_M/2 for any metal charge q_M (Tasker 1979 counting; the issue's
-    # hexaboride example).  (2×1) rows are seen on SmB6 (001), S. Rößler et al.,
-    # PNAS 111, 4798 (2014) (from memory).
+    # dq = -q_M/2 for any metal charge q_M (Tasker, J. Phys. C 12, 4977 (1979): type III,
+    # half of the metal layer to remove); (2×1) and c(2×2) are the index-2 cells that do it.
     c = charged("hexaboride:La,B", {"La": valence})
     by = polarity(c, (0, 0, 1), max_cell=4)
     la = by["La"]
-    assert la.tasker_type == "III" and la.sites == "top layer"
+    assert la.tasker_type == "III" and la.site_kind == "top layer"
     assert la.compensating_charge == pytest.approx(-valence / 2)
     assert la.compensation == pytest.approx(-0.5)
     assert {"(2×1)", "c(2×2)"} <= set(woods(la))
     b6 = by["B6"]
-    assert b6.sites == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
+    assert b6.site_kind == "top unit" and b6.site_label == "B6" and b6.compensation == pytest.approx(-0.5)
 
 
 def test_hexaboride_reconstruction_records(charged):
@@ -145,9 +144,12 @@ def test_hexaboride_reconstruction_records(charged):
 
 
 def test_mixed_valence_hexaboride(charged):
-    # SmB6 with Sm +2.6 (intermediate valence, from memory): still half the metal
-    by = polarity(charged("hexaboride:Sm,B", {"Sm": 2.6}), (0, 0, 1), max_cell=2)
-    assert by["Sm"].compensation == pytest.approx(-0.5)
+    # EuB6 with Eu +2.2 (a non-integer valence to exercise the fraction path; the count of
+    # Tasker, J. Phys. C 12, 4977 (1979) gives half the metal layer for any metal charge)
+    by = polarity(charged("hexaboride:Eu,B", {"Eu": 2.2}), (0, 0, 1), max_cell=2)
+    assert by["Eu"].compensation == pytest.approx(-0.5)
+    assert by["Eu"].compensating_charge == pytest.approx(-1.1)
+    assert {"(2×1)", "c(2×2)"} <= set(woods(by["Eu"]))
 
 
 # Zinc blende ------------------------------------------------------------------------------------
@@ -338,11 +340,11 @@ def test_report_json_has_the_documented_fields(charged):
     (face,) = data["faces"]
     assert face["hkl"] == [1, 1, 1]
     t = face["terminations"][0]
-    assert {"label", "tasker_type", "dipole_per_area", "compensation", "reconstructions"} <= set(t)
+    assert {"label", "tasker_type", "dipole_per_area_e_per_angstrom", "compensation", "reconstructions"} <= set(t)
     rec = t["reconstructions"][0]
     assert {"matrix", "wood", "sites", "changed"} <= set(rec)
     assert rec["matrix"] == [[2, 0], [0, 1]] and rec["wood"] == "(2×1)" and rec["changed"] == 1
-    assert data["charges"]["charges"] == {"Na": 1.0, "Cl": -1.0}
+    assert data["charges"]["charges_e"] == {"Na": 1.0, "Cl": -1.0}
 
 
 def test_face_is_polar_needs_charges(proto, charged):

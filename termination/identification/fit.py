@@ -1,0 +1,188 @@
+"""Does the best candidate explain the measurements at all?  A goodness-of-fit test independent of the others.
+
+Probabilities over candidates are relative: the best of several bad
+candidates still gets probability near 1.  The fit check looks at the best
+candidate alone.  Its standardised residuals z (measured minus the nearest
+prediction, over the total sigma, for the tilt, each spacing, the row angle
+and each step) would be standard normal if the candidate were right, so
+
+- chi^2 = sum z^2 over the values, with the steps that the outlier allowance
+  sets aside left out, has a chi-square distribution with one degree of
+  freedom per value: the check fails when its tail probability is below
+  ``alpha`` (default 10^-3);
+- a step with |z| > 3 is an outlier; with an outlier fraction eps per step the
+  number of outliers among n steps is binomial, and the check fails when
+  more occur than the binomial tail allows at ``outlier_alpha`` (default
+  0.05: one outlier among up to 7 steps, two among up to 16).
+
+When it fails, the residuals point at the likely causes (wrong mount face or
+a face beyond --max-index for the tilt; a reconstruction or imaging species
+not in the model, or the x/y calibration, for the lattice; the z calibration
+or the structure for the steps).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+__all__ = ["OUTLIER_Z", "FitCheck", "allowed_outliers", "chi_square_sf", "fit_check"]
+
+#: A step farther than this many sigma from every allowed height is an outlier.
+OUTLIER_Z = 3.0
+
+
+@dataclass(frozen=True)
+class FitCheck:
+    """The goodness of fit of the best candidate.
+
+    Attributes
+    ----------
+    fits : bool
+        False when the residuals are too improbable for the model.
+    chi_square : float
+        Sum of squared standardised residuals (outlier steps set aside).
+    dof : int
+        Number of residuals in it.
+    p_value : float
+        Chi-square tail probability of ``chi_square``.
+    step_outliers, allowed_step_outliers : int
+        Steps with |z| > 3, and how many the outlier allowance accepts.
+    alpha : float
+        The test's threshold.
+    worst : tuple of str
+        The largest residual of each criterion, e.g. 'tilt +7.2σ'.
+    causes : tuple of str
+        What the failing residuals point at (empty when it fits).
+    """
+
+    fits: bool
+    chi_square: float
+    dof: int
+    p_value: float
+    step_outliers: int
+    allowed_step_outliers: int
+    alpha: float
+    worst: tuple[str, ...]
+    causes: tuple[str, ...]
+
+
+def chi_square_sf(x: float, dof: int) -> float:
+    """Tail probability P(X >= x) of a chi-square variable with ``dof`` degrees of freedom (exact, no scipy).
+
+    Notes
+    -----
+    Q(k/2, x/2): for even k, exp(-x/2) sum_{i<k/2} (x/2)^i / i!; for odd k,
+    erfc(sqrt(x/2)) + exp(-x/2) sum_{i=1}^{(k-1)/2} (x/2)^(i-1/2) / Gamma(i + 1/2).
+
+    Examples
+    --------
+    >>> round(chi_square_sf(3.841458820694124, 1), 6), round(chi_square_sf(5.991464547107979, 2), 6)
+    (0.05, 0.05)
+    """
+    if dof <= 0:
+        return 1.0
+    if x <= 0:
+        return 1.0
+    h = x / 2.0
+    if dof % 2 == 0:
+        term, total = 1.0, 1.0
+        for i in range(1, dof // 2):
+            term *= h / i
+            total += term
+        return min(1.0, math.exp(-h) * total)
+    total = math.erfc(math.sqrt(h))
+    term = math.sqrt(h) / math.gamma(1.5)
+    acc = 0.0
+    for i in range(1, (dof - 1) // 2 + 1):
+        acc += term
+        term *= h / (i + 0.5)
+    return min(1.0, total + math.exp(-h) * acc)
+
+
+def allowed_outliers(n: int, fraction: float, alpha: float) -> int:
+    """Smallest k with P(Binomial(n, fraction) > k) <= alpha: how many outlier steps are still plausible.
+
+    >>> allowed_outliers(5, 0.05, 0.05), allowed_outliers(7, 0.05, 0.05), allowed_outliers(20, 0.05, 0.05)
+    (1, 1, 3)
+    """
+    tail = 1.0
+    for k in range(n + 1):
+        tail -= math.comb(n, k) * fraction**k * (1 - fraction) ** (n - k)
+        if tail <= alpha:
+            return k
+    return n
+
+
+_CAUSES = {
+    "tilt": (
+        "the tilt fits no variant of the face: check the mount face, raise --max-index for a higher-index face, "
+        "or allow for how the sample sits on its holder (--mount-sigma)"
+    ),
+    "lattice": (
+        "the corrugation does not match: a reconstruction or adsorbate cell not among the candidates (--cell), "
+        "other imaging species (--visible, --weight), or the image's x/y calibration and drift"
+    ),
+    "steps": "step heights match no allowed step: check the z calibration, the lattice constant or the structure",
+}
+
+
+def fit_check(
+    residuals: Sequence[tuple[str, float]],
+    step_residuals: Sequence[float],
+    *,
+    outlier_fraction: float,
+    alpha: float,
+    outlier_alpha: float,
+) -> FitCheck:
+    """Goodness of fit from the standardised residuals of the best candidate.
+
+    Parameters
+    ----------
+    residuals : sequence of (criterion, z)
+        Non-step residuals; criterion is 'tilt' or 'lattice'.
+    step_residuals : sequence of float
+        z of each measured step against its nearest allowed height.
+    outlier_fraction : float
+        Probability that a step is an outlier (the model's eps).
+    alpha : float
+        Threshold of the chi-square test.
+    outlier_alpha : float
+        Threshold of the outlier count.
+
+    Returns
+    -------
+    FitCheck
+    """
+    zs = [(name, float(z)) for name, z in residuals if z is not None and math.isfinite(z)]
+    steps = [float(z) for z in step_residuals if z is not None and math.isfinite(z)]
+    missing = len(step_residuals) - len(steps)  # a step with no allowed height at all
+    outliers = sum(abs(z) > OUTLIER_Z for z in steps) + missing
+    allowed = allowed_outliers(len(step_residuals), outlier_fraction, outlier_alpha)
+    kept = [z for z in steps if abs(z) <= OUTLIER_Z] if outliers <= allowed else steps
+    chi2 = sum(z * z for _, z in zs) + sum(z * z for z in kept)
+    dof = len(zs) + len(kept)
+    p = chi_square_sf(chi2, dof)
+    fits = p >= alpha and outliers <= allowed
+    worst = []
+    for name in ("tilt", "lattice"):
+        values = [z for n, z in zs if n == name]
+        if values:
+            w = max(values, key=abs)
+            worst.append(f"{name} {w:+.1f}σ")
+    if step_residuals:
+        w = max(steps, key=abs) if steps else float("inf")
+        worst.append(f"steps {w:+.1f}σ ({outliers} of {len(step_residuals)} beyond {OUTLIER_Z:g}σ)")
+    causes: list[str] = []
+    if not fits:
+        for name in ("tilt", "lattice"):
+            if any(abs(z) > OUTLIER_Z for n, z in zs if n == name):
+                causes.append(_CAUSES[name])
+        if outliers > allowed or any(abs(z) > OUTLIER_Z for z in kept):
+            causes.append(_CAUSES["steps"])
+        if not causes:
+            causes.append("several values are each a little off: check the stated uncertainties")
+        if len(causes) == 3:
+            causes.append("nothing fits: is it the right structure and lattice constant?")
+    return FitCheck(fits, chi2, dof, p, outliers, allowed, alpha, tuple(worst), tuple(causes))
