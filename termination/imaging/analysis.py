@@ -30,7 +30,7 @@ import numpy as np
 from termination.errors import ImageError
 from termination.imaging.fourier import DriftCorrection, Lattice, measure_lattice
 from termination.imaging.parameters import ImageParameters
-from termination.imaging.reading import check_heights, parse_pixel_size
+from termination.imaging.reading import MAX_HEIGHT_ANGSTROM, check_heights, parse_pixel_size
 from termination.imaging.terraces import (
     Step,
     _coordinates,
@@ -181,7 +181,7 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     *Lattice* (:func:`termination.imaging.fourier.measure_lattice`):
     measured on each of the largest terraces and combined.
     """
-    z = check_heights(heights)
+    z = check_heights(heights, max_abs=MAX_HEIGHT_ANGSTROM)
     try:
         px = parse_pixel_size(pixel_size)
     except ImageError as exc:
