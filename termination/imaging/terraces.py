@@ -890,6 +890,9 @@ def fit_terraces(z, valid, coords, px, p):
     floor = 0.2 * p.min_step_angstrom / (math.sqrt(2 * math.pi) * sigma_s)
     structure_s = max(p.structure_smooth_px / factor, 0.5)
 
+    # Missing pixels surrounded by data are segmented from the smoothed (interpolated) heights, so that a
+    # NaN line or column never splits a terrace; only finite pixels enter any fit.
+    support = vc | (ndimage.gaussian_filter(vc.astype(np.float32), edge_s, mode="nearest") > 0.5)
     lines = _initial_line_offsets(zc, vc, yc) if p.line_offsets else np.zeros(zc.shape[0])
     background = surface = None
     solves = 0
@@ -914,7 +917,7 @@ def fit_terraces(z, valid, coords, px, p):
         g = np.hypot(gx - a, gy - b)
         del gx, gy
         thr = max(_robust_threshold(g[sub][vc[sub]], p.edge_threshold_sigmas), floor)
-        flat = vc & (g <= thr)
+        flat = support & (g <= thr)
         del g
         lev = smooth_levels - (a * xc[None, :] + b * yc[:, None])
         bounds = _level_bounds(
@@ -944,7 +947,7 @@ def fit_terraces(z, valid, coords, px, p):
             level_of = first[keep]
             labels = remap[labels]
             n = int(keep.sum())
-        fit_labels = np.where(outlier, 0, labels).astype(np.int32)
+        fit_labels = np.where(outlier | ~vc, 0, labels).astype(np.int32)
         slope, offsets, stats, lines = _refit(zc, fit_labels, n, cc, lines, background, p.line_offsets, 2)
         resid = _residual(zc, fit_labels, cc, slope, offsets, lines, background)
         on = fit_labels > 0
@@ -961,7 +964,7 @@ def fit_terraces(z, valid, coords, px, p):
                     lines = _project_lines(_aperiodic(means), yc, counts)
                 slope, offsets, stats, lines = _refit(zc, fit_labels, n, cc, lines, background, p.line_offsets, 1)
                 resid = _residual(zc, fit_labels, cc, slope, offsets, lines, background)
-        outlier = _outliers(resid, labels, p.outlier_sigmas, guard)[0] & vc
+        outlier = _outliers(resid, np.where(vc, labels, 0), p.outlier_sigmas, guard)[0] & vc
         del resid
         change = math.degrees(max(abs(math.atan(slope[0]) - math.atan(a)), abs(math.atan(slope[1]) - math.atan(b))))
         a, b = slope
@@ -975,7 +978,7 @@ def fit_terraces(z, valid, coords, px, p):
     a, b = slope
     if surface is not None:
         spacing = _node_spacing(p, factor, zc.shape)
-        fit_labels = np.where(outlier, 0, labels_b).astype(np.int32)
+        fit_labels = np.where(outlier | ~vc, 0, labels_b).astype(np.int32)
         final = _solve_surface(zc, fit_labels, n, cc, lines_b, spacing, p.background_stiffness)
         if final is not None:
             surface, background = final, final.background
@@ -1211,6 +1214,15 @@ def levelled_image(z, valid, fit, coords, p, *, dtype=np.float32):
     out[bad] = 0.0
     keep = ~bad
     del bad
+    if not valid.all():
+        # isolated missing pixels (lost lines, columns, spikes) are filled from their neighbours, so that
+        # no periodic pattern of zeros enters the Fourier transform; larger gaps stay out (zero, tapered)
+        den = ndimage.gaussian_filter(keep.astype(np.float32), 1.0, mode="constant")
+        num = ndimage.gaussian_filter(out, 1.0, mode="constant")
+        fill = ~valid & (den > 0.3)
+        out[fill] = num[fill] / den[fill]
+        keep |= fill
+        del den, num, fill
     if keep.any():
         out[keep] -= float(np.mean(out[keep], dtype=np.float64))
     return out, keep
