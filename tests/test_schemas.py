@@ -131,6 +131,7 @@ DIMENSIONLESS = {
     "fractions",
     "nan_fraction",
     "outlier_fraction",
+    "fitted_fraction",
 }
 # Records whose numbers are all dimensionless (log-likelihood terms; drift shear and stretch).
 DIMENSIONLESS_RECORDS = {"Terms", "DriftCorrection"}

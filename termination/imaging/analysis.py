@@ -91,8 +91,11 @@ class HeightMapAnalysis:
     nan_fraction : float
         Fraction of missing (NaN) pixels.
     outlier_fraction : float
-        Fraction of the finite pixels left out of the fit as adsorbates, pits
-        or other outliers.
+        Fraction of the finite pixels left out of the final fit as adsorbates,
+        pits or other outliers by the residual test.
+    fitted_fraction : float
+        Fraction of the finite pixels used in the terrace fit (the rest are
+        step edges, outliers and pieces too small to keep).
     line_offset_rms : float
         Root-mean-square offset of the scan lines, Å (0 when not fitted).
     background : bool
@@ -111,6 +114,7 @@ class HeightMapAnalysis:
     terraces: int
     nan_fraction: float
     outlier_fraction: float
+    fitted_fraction: float
     line_offset_rms: float = field(metadata=ANGSTROM)
     background: bool
     relief: float = field(metadata=ANGSTROM)
@@ -222,10 +226,18 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     steps, cov_ab = terrace_steps(fit, params)
     n_levels = len(set(np.asarray(fit.level_of).tolist()))
     slope = math.hypot(a, b)
-    if cov_ab is not None and fit.line_rms > 0:
-        y = coords[1]
+    if cov_ab is not None:
         cov_ab = cov_ab.copy()
-        cov_ab[1, 1] += fit.line_rms**2 / float(np.sum((y - y.mean()) ** 2))
+        x, y = coords
+        if fit.line_rms > 0:
+            # the linear trend of the true line offsets is indistinguishable from the y slope
+            cov_ab[1, 1] += fit.line_rms**2 / float(np.sum((y - y.mean()) ** 2))
+        if fit.background is not None:
+            # so is the linear part of a background: taken as large as the fitted background's rms height
+            # over the image, a slope of rms sqrt(12) / L along each side L
+            rms2 = fit.background.rms**2
+            cov_ab[0, 0] += 12.0 * rms2 / float(np.ptp(x) + px[0]) ** 2
+            cov_ab[1, 1] += 12.0 * rms2 / float(np.ptp(y) + px[1]) ** 2
     if cov_ab is not None and slope > 0:
         u = np.array([a, b]) / slope
         sig_slope = math.sqrt(max(float(u @ cov_ab @ u), 0.0))
@@ -262,8 +274,10 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
             "step sigmas are statistical (fit covariance with pixel correlation and the smooth relief left)"
             + ("" if params.z_calibration_fraction else "; the scanner's z calibration is not included")
         )
-    if fit.outliers > 0.001:
-        notes.append(f"{fit.outliers:.1%} of the pixels left out as adsorbates, pits or other outliers")
+    notes.append(
+        f"{fit.fitted:.0%} of the finite pixels used in the terrace fit (the rest: step edges, adsorbates, pits, "
+        "pieces too small to keep)"
+    )
     if fit.background is not None:
         notes.append(f"a smooth background (nodes {params.background_spacing_px:g} px apart) was fitted and removed")
     notes.append("tilts are relative to the scanner plane, taken as parallel to the mount face")
@@ -287,6 +301,7 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
         terraces=fit.n,
         nan_fraction=nan_fraction,
         outlier_fraction=fit.outliers,
+        fitted_fraction=fit.fitted,
         line_offset_rms=fit.line_rms,
         background=fit.background is not None,
         relief=fit.relief,

@@ -144,7 +144,7 @@ def _radial_background(power, kr, dk):
     """
     ring = (kr / dk).astype(np.int64)
     n_ring = int(ring.max()) + 1
-    logp = np.log(power + 1e-300)
+    logp = np.log(np.maximum(power.astype(np.float64), 1e-300))
     lo, hi = float(logp.min()), float(logp.max())
     key = ring.ravel() + 0.999 * (logp.ravel() - lo) / (hi - lo + 1e-12)
     order = np.sort(key)
@@ -160,9 +160,10 @@ def _radial_background(power, kr, dk):
 
 
 _MIRROR = 3  # columns of negative kx added to the half spectrum
+_ZOOM_FLOOR = 0.08  # bins: error of the fine-grid refinement of a peak of unknown shape
 
 
-def _half_power(resid, workers):
+def _half_power(resid, workers, keep_window=False):
     """Power spectrum of the Hann-windowed image, kx >= -3 bins, ky centred (single precision).
 
     Returns power (ny, nx // 2 + 1 + _MIRROR); column ``_MIRROR`` is kx = 0
@@ -174,7 +175,8 @@ def _half_power(resid, workers):
     win *= np.hanning(ny + 1)[:-1, None].astype(np.float32)
     win *= np.hanning(nx + 1)[None, :-1].astype(np.float32)
     spec = sp_fft.rfft2(win, workers=workers)
-    del win
+    if not keep_window:
+        del win
     power = np.empty((ny, spec.shape[1] + _MIRROR), dtype=np.float32)
     shift = ny // 2
     # fftshift along y while writing into the output, then the mirrored columns
@@ -187,7 +189,64 @@ def _half_power(resid, workers):
     del sq
     flip = (2 * (ny // 2) - np.arange(ny)) % ny
     power[:, :_MIRROR] = body[flip][:, _MIRROR:0:-1]
-    return power
+    return (power, win) if keep_window else power
+
+
+def _zoom_refine(win, kx_bins, ky_bins, step=0.25, half=3):
+    """Sub-bin peak positions from the transform evaluated on a fine grid around each peak.
+
+    Parameters
+    ----------
+    win : (ny, nx) float32 ndarray
+        The windowed image that was transformed.
+    kx_bins, ky_bins : (m,) ndarray
+        Peak positions on the FFT grid, bins (ky centred).
+
+    Returns
+    -------
+    dx, dy : (m,) ndarray
+        Offsets from the grid positions, bins, in [-1, 1].
+
+    Notes
+    -----
+    :math:`F(k) = \\sum_{x,y} w(x, y)\\, e^{-2\\pi i (k_x x / n_x + k_y y / n_y)}` is
+    evaluated directly (two matrix products, the first in single
+    precision) on a grid of ``step`` bins, ±``half`` steps around the
+    peak; the maximum of :math:`|F|^2` on that grid is refined by a
+    parabola through its neighbours along each axis. Unlike an
+    interpolation formula for a known window, this does not assume the
+    peak's shape, which a terrace mask changes.
+    """
+    ny, nx = win.shape
+    offs = np.arange(-half, half + 1) * step
+    x = np.arange(nx)
+    y = np.arange(ny)
+    m = len(kx_bins)
+    dx = np.zeros(m)
+    dy = np.zeros(m)
+    if m == 0:
+        return dx, dy
+    # the sums along x for every peak and fine offset at once: one single-precision matrix product each
+    phx = (2 * np.pi / nx) * np.outer(x, (np.asarray(kx_bins)[:, None] + offs[None, :]).ravel())
+    a_all = win @ np.cos(phx).astype(np.float32) - 1j * (win @ np.sin(phx).astype(np.float32))
+    del phx
+    k = offs.size
+    for i, ky0 in enumerate(ky_bins):
+        a = a_all[:, i * k : (i + 1) * k]
+        phy = (2 * np.pi / ny) * np.outer(ky0 + offs, y)
+        f = np.exp(-1j * phy) @ a.astype(np.complex128)
+        power = f.real**2 + f.imag**2
+        iy, ix = np.unravel_index(int(np.argmax(power)), power.shape)
+        for axis, idx, out in ((1, ix, dx), (0, iy, dy)):
+            line = power[iy, :] if axis == 1 else power[:, ix]
+            delta = 0.0
+            if 0 < idx < line.size - 1:
+                lm, l0, lp = np.log(line[idx - 1 : idx + 2] + 1e-300)
+                den = lm - 2 * l0 + lp
+                if den < 0:
+                    delta = 0.5 * (lm - lp) / den
+            out[i] = float(np.clip(offs[idx] + delta * step, -1.0, 1.0))
+    return dx, dy
 
 
 def _spectrum_peaks(resid, px, p, notes):
@@ -196,7 +255,7 @@ def _spectrum_peaks(resid, px, p, notes):
     Returns (g, sig) or None, with the reason appended to ``notes``.
     """
     ny, nx = resid.shape
-    power = _half_power(resid, p.workers)
+    power, win = _half_power(resid, p.workers, keep_window=True)
     cy, cx = ny // 2, _MIRROR
     dkx, dky = 1.0 / (nx * px[0]), 1.0 / (ny * px[1])
     kx = ((np.arange(power.shape[1]) - cx) * dkx).astype(np.float32)
@@ -243,11 +302,15 @@ def _spectrum_peaks(resid, px, p, notes):
     def amp(r, c):
         return np.sqrt(power64[r, c].astype(np.float64))
 
-    dx, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
-    dy, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
+    _, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
+    _, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
+    del power
+    dx, dy = _zoom_refine(win, (cols - cx).astype(np.float64), (rows - cy).astype(np.float64))
+    del win
     g = np.stack([(cols - cx + dx) * dkx, (rows - cy + dy) * dky], axis=1)
-    # FFT grid resolution (uniform over a bin) with the interpolation noise, times broadening
-    sig = np.stack([dkx * np.sqrt(1 / 12 + sx**2) * bx, dky * np.sqrt(1 / 12 + sy**2) * by], axis=1)
+    # position noise (from the three-point amplitudes) with a floor for the refinement's own error,
+    # times the broadening of the peak against the window's own width
+    sig = np.stack([dkx * np.sqrt(_ZOOM_FLOOR**2 + sx**2) * bx, dky * np.sqrt(_ZOOM_FLOOR**2 + sy**2) * by], axis=1)
     return g, sig
 
 

@@ -200,7 +200,7 @@ def _common_plane(z, labels, n_labels, coords):
         a, b = np.linalg.solve(m, np.array([Sxz, Syz]))
     except np.linalg.LinAlgError:
         a, b = 0.0, 0.0
-        m = np.eye(2) * np.inf
+        m = np.full((2, 2), np.inf)
     mx, my, mz = sx[k] / nk, sy[k] / nk, sz[k] / nk
     offsets = mz - a * mx - b * my
     rss = Szz - 2 * a * Sxz - 2 * b * Syz + a * a * Sxx + 2 * a * b * Sxy + b * b * Syy
@@ -657,7 +657,10 @@ class TerraceFit:
         smooth-surface solution (:func:`_solve_surface`), when a background
         was fitted.
     outliers : float
-        Fraction of the finite pixels masked as outliers (adsorbates, pits).
+        Fraction of the finite pixels masked as outliers (adsorbates, pits)
+        in the final fit (besides those the edge and level masks took).
+    fitted : float
+        Fraction of the finite pixels used in the final fit.
     line_rms : float
         Root-mean-square scan-line offset, Å.
     """
@@ -677,6 +680,7 @@ class TerraceFit:
     structure: float = 1.0
     relief: float = 0.0
     outliers: float = 0.0
+    fitted: float = 1.0
     line_rms: float = 0.0
     peak_relief: float = 0.0
     iterations: int = 0
@@ -1055,6 +1059,7 @@ def fit_terraces(z, valid, coords, px, p):
         near=near,
         dist=dist,
         outliers=n_out / max(int(valid.sum()), 1),
+        fitted=int(np.count_nonzero(labels)) / max(int(valid.sum()), 1),
         line_rms=float(np.sqrt(np.mean(lines**2))) if p.line_offsets else 0.0,
         iterations=iterations,
         surface_cov_ab=None if surface is None else surface.cov_ab,
