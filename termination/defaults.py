@@ -80,6 +80,8 @@ SITE_TOL_ANGSTROM = 0.2
 
 #: Smallest step height resolved in a height map, Å.
 MIN_STEP_ANGSTROM = 0.5
+#: Largest fraction of missing (NaN) pixels a height map may have.
+MAX_NAN_FRACTION = 0.5
 
 # --------------------------------------------------------------------------- numerical noise
 

@@ -22,7 +22,7 @@ Supported formats
     the dimension scaling.
 
 Every reader checks the pixel count and the data size that the header
-declares against :data:`~termination.imaging.reading.MAX_PIXELS` and the
+declares against :data:`~termination.imaging.limits.MAX_PIXELS` and the
 file size before it reads any data. Images are returned with x along
 columns increasing to the right and y along rows, one row per scan line;
 backward lines are reversed so that they read left to right, and a
@@ -39,6 +39,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from termination.errors import ImageError
+from termination.imaging.limits import check_declared
 
 __all__ = ["INSTRUMENT_SUFFIXES", "RawImage", "read_instrument_file"]
 
@@ -106,21 +107,6 @@ def _unit_angstrom(unit, what, path):
     if key not in LENGTH_UNITS_ANGSTROM:
         raise ImageError(f"{path.name}: {what} has unit {u!r}, not a length: it is not a height channel")
     return float(LENGTH_UNITS_ANGSTROM[key])
-
-
-def _check_declared(shape, itemsize, available, path):
-    """Refuse a declared image larger than the limit or than the bytes the file holds."""
-    from termination.imaging.reading import MAX_PIXELS
-
-    pixels = math.prod(int(s) for s in shape)
-    if any(int(s) <= 0 for s in shape):
-        raise ImageError(f"{path.name}: the header declares an empty image of shape {tuple(shape)}")
-    if pixels > MAX_PIXELS:
-        raise ImageError(f"{path.name}: the header declares {pixels:,} pixels, more than the limit of {MAX_PIXELS:,}")
-    if pixels * itemsize > available:
-        raise ImageError(
-            f"{path.name}: the header declares {pixels * itemsize:,} bytes of data but the file holds {available:,}"
-        )
 
 
 def _pick(channels, wanted, path, default_names):
@@ -214,7 +200,7 @@ def _read_sxm(path, channel):
             units.append(row[i_unit].strip())
             blocks.append(len(blocks))
     size = os.path.getsize(path)
-    _check_declared((len(blocks), ny, nx), 4, size - offset, path)
+    check_declared((len(blocks), ny, nx), 4, size - offset, path)
     index = _pick(channels, channel, path, ("Z",))
     data = np.fromfile(path, dtype=">f4", count=ny * nx, offset=offset + 4 * ny * nx * blocks[index])
     data = data.reshape(ny, nx).astype(np.float64)
@@ -298,7 +284,7 @@ def _read_nexus(path, channel):
         ds = group[signal]
         if ds.dtype.kind not in "iuf":
             raise ImageError(f"{path.name}: signal {signal!r} holds {ds.dtype}, not real numbers")
-        _check_declared(ds.shape, ds.dtype.itemsize, math.inf, path)
+        check_declared(ds.shape, ds.dtype.itemsize, math.inf, path)
         data = np.asarray(ds[()], dtype=np.float64)
         while data.ndim > 2 and data.shape[0] == 1:
             data = data[0]
@@ -352,7 +338,7 @@ def _read_ibw(path, channel):
     with open(path, "rb") as fh:
         head = fh.read(512)
     shape, itemsize = _ibw_declared(head, path)
-    _check_declared(shape, itemsize, os.path.getsize(path), path)
+    check_declared(shape, itemsize, os.path.getsize(path), path)
     try:
         wave = binarywave.load(str(path))["wave"]
     except Exception as exc:  # igor2 raises several types for bad files

@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, fields
 
-from termination.defaults import MIN_STEP_ANGSTROM
+from termination.defaults import MAX_NAN_FRACTION, MIN_STEP_ANGSTROM
 from termination.errors import ImageError
 
 __all__ = ["DRIFT_LATTICES", "ImageParameters"]
@@ -138,7 +138,7 @@ class ImageParameters:
     background_spacing_px: float = 8.0
     background_stiffness: float = 0.03
     outlier_sigmas: float = 4.0
-    max_nan_fraction: float = 0.5
+    max_nan_fraction: float = MAX_NAN_FRACTION
     lattice_terraces: int = 4
     drift_lattice: str | None = None
     bin: int = 1

@@ -56,6 +56,15 @@ from pathlib import Path
 import numpy as np
 
 from termination.errors import ImageError
+from termination.imaging.limits import (
+    MAX_HEIGHT_ANGSTROM,
+    MAX_PIXEL_ANGSTROM,
+    MAX_PIXELS,
+    MAX_TEXT_BYTES,
+    MIN_PIXEL_ANGSTROM,
+    MIN_PIXELS,
+    check_declared,
+)
 from termination.quantities import LENGTH_UNITS_ANGSTROM, NUMBER_PATTERN, scaled
 
 __all__ = [
@@ -76,17 +85,6 @@ __all__ = [
     "sidecar_path",
 ]
 
-#: Smallest accepted image side, pixels.
-MIN_PIXELS = 8
-#: Largest accepted image, pixels (8192 x 8192), checked from the file's header before decoding.
-MAX_PIXELS = 8192 * 8192
-#: Largest accepted text matrix, bytes.
-MAX_TEXT_BYTES = 256 * 1024 * 1024
-#: Largest accepted |height| after calibration, Å (1 mm: far beyond any scanner's range).
-MAX_HEIGHT_ANGSTROM = 1e7
-#: Smallest and largest accepted pixel size, Å (0.1 pm to 100 µm).
-MIN_PIXEL_ANGSTROM = 1e-3
-MAX_PIXEL_ANGSTROM = 1e6
 
 _LENGTH_RE = re.compile(rf"^\s*(?P<num>{NUMBER_PATTERN})?\s*(?P<unit>[A-Za-zÅµμ]+)?\s*$")
 _PIXEL_TOKEN_RE = re.compile(rf"{NUMBER_PATTERN}\s*(?:[A-Za-wyzÅµμ][A-Za-zÅµμ]*)?")
@@ -413,12 +411,6 @@ def _regular_file(path):
     return st.st_size
 
 
-def _check_declared_pixels(shape, itemsize, available, path):
-    from termination.imaging.instruments import _check_declared
-
-    _check_declared(shape, itemsize, available, path)
-
-
 def _load_npy(path, size):
     """A .npy array, its header checked (shape, type, data size against the file) before the data is read."""
     from numpy.lib import format as npformat
@@ -437,7 +429,7 @@ def _load_npy(path, size):
         ) from None
     if dtype.hasobject or dtype.kind not in "iuf" or dtype.subdtype is not None:
         raise ImageError(f"{path.name} must hold real numbers, got dtype {dtype}")
-    _check_declared_pixels(shape or (1,), dtype.itemsize, size - offset, path)
+    check_declared(shape or (1,), dtype.itemsize, size - offset, path)
     data = np.fromfile(path, dtype=dtype, count=math.prod(shape), offset=offset)
     return data.reshape(shape, order="F" if fortran else "C")
 
@@ -470,7 +462,7 @@ def _load_tiff(path, size):
             shape = page.shape
             # the pixel count comes from the header: a small compressed file may expand enormously
             pixels = math.prod(shape) * max(len(pages), 1)
-            _check_declared_pixels((pixels,), 1, math.inf, path)
+            check_declared((pixels,), 1, math.inf, path)
             if len(pages) > 1:
                 return np.zeros((len(pages), *shape))  # refused as several channels by check_heights
             return page.asarray()

@@ -604,3 +604,15 @@ def test_measurement_leaves_out_what_was_not_found():
     m = to_measurement(analyse_heightmap(z, 0.5))
     assert m.spacings == () and m.row_angle is None and m.steps == ()
     assert m.tilt is not None
+
+
+def test_measurement_row_angle_is_the_obtuse_gamma_and_left_out_when_drift_fixed_it():
+    # hexagonal 3.0 Å: gamma = 120° in the obtuse convention (surface crystallography, common practice)
+    z = synthetic_heightmap(
+        (256, 256), 0.5, tilt_deg=2.0, step_heights=[2.0], lattice=(3.0, 3.0, 60.0, 5.0), noise_angstrom=0.05, seed=3
+    )
+    m = to_measurement(analyse_heightmap(z, 0.5))
+    assert 90.0 <= m.row_angle.value <= 120.0 and abs(m.row_angle.value - 120.0) < 1.0
+    corrected = analyse_heightmap(z, 0.5, drift_lattice="hexagonal")
+    m = to_measurement(corrected)
+    assert m.row_angle is None and len(m.spacings) == 2
