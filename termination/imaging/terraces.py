@@ -381,7 +381,10 @@ def _solve_surface(z, labels, n, coords, lines, spacing_px, stiffness, covarianc
         af = lu.solve(f)
         if n == 1:
             return af, np.zeros((0, f.shape[1]))
-        c = np.linalg.solve(schur, g - cmat.T @ af)
+        try:
+            c = np.linalg.solve(schur, g - cmat.T @ af)
+        except np.linalg.LinAlgError:  # a terrace without pixels in the subsample: its offset is free
+            c = np.linalg.lstsq(schur, g - cmat.T @ af, rcond=None)[0]
         return af - a_inv_c @ c, c
 
     f0 = np.asarray(wb.T @ data)[:, None]
@@ -656,6 +659,8 @@ class TerraceFit:
         Covariances of the slopes and of the terrace offsets from the
         smooth-surface solution (:func:`_solve_surface`), when a background
         was fitted.
+    bin : int
+        Binning factor of the segmentation grid.
     outliers : float
         Fraction of the finite pixels masked as outliers (adsorbates, pits)
         in the final fit (besides those the edge and level masks took).
@@ -686,6 +691,7 @@ class TerraceFit:
     iterations: int = 0
     surface_cov_ab: np.ndarray | None = None
     surface_cov_offsets: np.ndarray | None = None
+    bin: int = 1
 
 
 def _residual(z, labels, coords, slope, offsets, lines, background, rows=slice(None)):
@@ -1064,6 +1070,7 @@ def fit_terraces(z, valid, coords, px, p):
         iterations=iterations,
         surface_cov_ab=None if surface is None else surface.cov_ab,
         surface_cov_offsets=None if surface is None else surface.cov_offsets,
+        bin=factor,
     )
     _residual_statistics(z, coords, fit, p)
     return fit
@@ -1234,10 +1241,11 @@ def levelled_image(z, valid, fit, coords, p, *, dtype=np.float32):
 
 
 def terrace_steps(fit, p):
-    """Steps between adjacent terraces at different levels, and the slope covariance.
+    """Steps between adjacent terraces at different levels, one per pair of levels, and the slope covariance.
 
-    Returns (steps, cov_ab) where steps is a tuple of :class:`Step` sorted
-    by level and height, and cov_ab the (2, 2) covariance of (a, b) or None.
+    Returns (steps, cov_ab) where steps is a tuple of :class:`Step`, one
+    per pair of levels that meet somewhere, ordered by level, and cov_ab
+    the (2, 2) covariance of (a, b) or None.
 
     Notes
     -----
@@ -1249,8 +1257,11 @@ def terrace_steps(fit, p):
     :func:`_residual_statistics`),
     :math:`\\sigma_h^2 = [v (1/N_k + 1/N_l) + d^T C_{ab} d] / (1 + a^2 + b^2)`
     where :math:`d` joins the terrace centroids and :math:`C_{ab} = v M^{-1}`
-    (M the within-terrace scatter matrix of x and y), plus the z calibration
-    term in quadrature.
+    (M the within-terrace scatter matrix of x and y). All pairs of terraces
+    between the same two levels are combined into one step by their
+    weighted mean, with :math:`\\sigma = (\\sum w)^{-1/2}
+    \\max(1, \\sqrt{\\chi^2/\\nu})`; the z calibration term is added in
+    quadrature.
     """
     a, b = fit.slope
     norm = math.sqrt(1 + a * a + b * b)
@@ -1262,7 +1273,9 @@ def terrace_steps(fit, p):
         # with a background the slopes and offsets trade against its shape: the surface solution's covariance
         cov_ab = cov_ab + fit.surface_cov_ab
     steps = []
-    pairs = _adjacent_pairs(fit.n, fit.dist, fit.near, p.max_step_width_px, p.min_step_length_px)
+    # on a binned segmentation the strip between terraces is a few binned pixels wide, whatever the image size
+    gap = max(p.max_step_width_px, (2 * max(1, round(p.edge_guard_px / fit.bin)) + 6) * fit.bin)
+    pairs = _adjacent_pairs(fit.n, fit.dist, fit.near, gap, p.min_step_length_px * fit.bin)
     neighbours = {}
     for k, l in pairs:
         neighbours.setdefault(k, set()).add(l)
@@ -1286,8 +1299,18 @@ def terrace_steps(fit, p):
         h = abs(dc) / norm
         if h < p.min_step_angstrom:  # below the resolved step height: same level
             continue
-        sigma = math.sqrt(var) / norm
-        sigma = math.hypot(sigma, p.z_calibration_fraction * h)
-        steps.append((lo, Step(float(h), float(sigma))))
-    steps.sort(key=lambda t: (t[0], t[1].height))
-    return tuple(s for _, s in steps), cov_ab
+        steps.append((lo, hi, h, math.sqrt(var) / norm))
+    # every pair of adjacent terraces between the same two levels measures the same step: one value each,
+    # the weighted mean, with its sigma scaled up when the pairs scatter more than their sigmas allow
+    out = []
+    for lo, hi in sorted({(t[0], t[1]) for t in steps}):
+        h = np.array([t[2] for t in steps if (t[0], t[1]) == (lo, hi)])
+        sig = np.array([t[3] for t in steps if (t[0], t[1]) == (lo, hi)])
+        w = 1.0 / np.maximum(sig, 1e-12) ** 2
+        mean = float(np.sum(w * h) / np.sum(w))
+        sigma = math.sqrt(1.0 / float(np.sum(w)))
+        if h.size > 1:
+            chi2 = float(np.sum(w * (h - mean) ** 2)) / (h.size - 1)
+            sigma *= math.sqrt(max(1.0, chi2))
+        out.append(Step(mean, math.hypot(sigma, p.z_calibration_fraction * mean)))
+    return tuple(out), cov_ab
