@@ -418,17 +418,25 @@ def _metric(slope):
     return np.eye(2) + np.outer(sl, sl)  # image (x, y) lifted onto the terrace plane
 
 
-def _terrace_regions(keep, near, n, p, min_side):
-    """Bounding boxes and masks of the largest terraces whose lattices are measured separately."""
-    counts = np.bincount(np.where(keep, near, 0).ravel(), minlength=n + 1)[1:]
+def _terrace_regions(fit, shape, p, min_side):
+    """Bounding boxes (full-resolution slices) of the largest terraces whose lattices are measured separately.
+
+    Terrace areas and boxes come from the segmentation grid (binned by ``fit.bin``).
+    """
+    near = fit.near_b
+    f = fit.bin
+    counts = np.bincount(near.ravel(), minlength=fit.n + 1)[1:]
     order = np.argsort(counts)[::-1]
     if counts.size == 0 or counts[order[0]] == 0:
         return []
+    boxes = ndimage.find_objects(near, max_label=fit.n)
     regions = []
     for k in order[: p.lattice_terraces]:
-        if counts[k] < 0.2 * counts[order[0]]:
+        if counts[k] < 0.2 * counts[order[0]] or boxes[k] is None:
             break
-        rows, cols = ndimage.find_objects((near == k + 1).astype(np.int8))[0]
+        rb, cb = boxes[k]
+        rows = slice(rb.start * f, min(rb.stop * f, shape[0]) if rb.stop < near.shape[0] else shape[0])
+        cols = slice(cb.start * f, min(cb.stop * f, shape[1]) if cb.stop < near.shape[1] else shape[1])
         if rows.stop - rows.start < min_side or cols.stop - cols.start < min_side:
             continue
         regions.append((int(k + 1), (rows, cols)))
@@ -510,11 +518,11 @@ def measure_lattice(flat, keep, fit, px, slope, p, notes):
     (rectangular), a = b and :math:`\\gamma = 120°` (hexagonal). The
     uncertainties are propagated through the solution.
     """
-    regions = _terrace_regions(keep, fit.near, fit.n, p, min_side=32)
+    regions = _terrace_regions(fit, flat.shape, p, min_side=32)
     results = []
     local_notes = []
     for k, (rows, cols) in regions:
-        on = keep[rows, cols] & (fit.near[rows, cols] == k)
+        on = keep[rows, cols] & (fit.near(flat.shape, rows)[:, cols] == k)
         sub = np.where(on, flat[rows, cols], 0.0).astype(np.float32)
         if on.any():
             sub[on] -= float(np.mean(sub[on], dtype=np.float64))

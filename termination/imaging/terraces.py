@@ -641,8 +641,10 @@ class TerraceFit:
     stats : dict
         Fit statistics of the final plane fit (pixel counts, centroids,
         residual variance ``s2``, normal matrix).
-    near, dist : (ny, nx) ndarray
-        Nearest terrace of every pixel and the distance to it, pixels.
+    near_b, dist_b : ndarray
+        Nearest terrace of every pixel of the (binned) segmentation grid
+        and the distance to it, binned pixels; :meth:`near` gives the
+        nearest terrace of a block of full-resolution rows.
     correlation : float
         Pixels per independent sample of the residual (AR(1) along rows and columns).
     excess_variance : float
@@ -678,8 +680,8 @@ class TerraceFit:
     lines: np.ndarray
     background: SmoothBackground | None
     stats: dict
-    near: np.ndarray
-    dist: np.ndarray
+    near_b: np.ndarray
+    dist_b: np.ndarray
     correlation: float = 1.0
     excess_variance: float = 0.0
     structure: float = 1.0
@@ -693,12 +695,25 @@ class TerraceFit:
     surface_cov_offsets: np.ndarray | None = None
     bin: int = 1
 
+    def near(self, shape, rows=slice(None)):
+        """Nearest terrace of every pixel of a block of full-resolution rows (int32)."""
+        f = self.bin
+        r = range(*rows.indices(shape[0]))
+        if len(r) == 0:
+            return np.zeros((0, shape[1]), dtype=np.int32)
+        rb = np.minimum(np.arange(r.start, r.stop, r.step) // f, self.near_b.shape[0] - 1)
+        cb = np.minimum(np.arange(shape[1]) // f, self.near_b.shape[1] - 1)
+        return self.near_b[np.ix_(rb, cb)]
 
-def _residual(z, labels, coords, slope, offsets, lines, background, rows=slice(None)):
-    """Residual of the model on a block of rows (float32; zero off the terraces)."""
+
+def _residual(z, labels, coords, slope, offsets, lines, background, rows=slice(None), block_labels=None):
+    """Residual of the model on a block of rows (float32; zero off the terraces).
+
+    ``block_labels`` are the labels of the block itself, when ``labels`` is not a full-size array.
+    """
     x, y = coords
     a, b = slope
-    lab = labels[rows]
+    lab = labels[rows] if block_labels is None else block_labels
     off = np.concatenate([[0.0], offsets])
     # offsets first, in double precision: the residual is small, the heights need not be
     r = z[rows] - lines[rows, None] - b * y[rows, None]
@@ -1024,12 +1039,15 @@ def fit_terraces(z, valid, coords, px, p):
         band = int(round((p.edge_guard_px + 2.0 * p.edge_smooth_px) / factor))
         use &= ~ndimage.maximum_filter(boundary, size=2 * max(band, 1) + 1, mode="constant")
     shape = z.shape
-    near = _unbin(near.astype(np.int32), factor, shape)
-    dist = _unbin(dist.astype(np.float32), factor, shape) * np.float32(factor)
-    labels = np.where(_unbin(use, factor, shape) & valid, near, 0).astype(np.int32)
+    near_b, dist_b = near.astype(np.int32), dist.astype(np.float32)
+    label_type = np.int16 if n < np.iinfo(np.int16).max else np.int32
+    # in place, block by block: full-size temporaries of a large map cost more than its heights
+    labels = _unbin(near_b.astype(label_type), factor, shape)
+    labels[~(_unbin(use, factor, shape) & valid)] = 0
     counts = np.bincount(labels.ravel(), minlength=n + 1)
     if not np.all(counts[1:] > 0):
-        labels = np.where(valid, _unbin(labels_b, factor, shape), 0).astype(np.int32)
+        labels = _unbin(labels_b.astype(label_type), factor, shape)
+        labels[~valid] = 0
     lines = _unbin_rows(lines_b, factor, shape[0]) if p.line_offsets else np.zeros(shape[0])
     slope, offsets, stats, lines = _refit(z, labels, n, coords, lines, background, p.line_offsets, 1)
     # robust mask at full resolution, then the final fit
@@ -1062,8 +1080,8 @@ def fit_terraces(z, valid, coords, px, p):
         lines=lines,
         background=background,
         stats=stats,
-        near=near,
-        dist=dist,
+        near_b=near_b,
+        dist_b=dist_b,
         outliers=n_out / max(int(valid.sum()), 1),
         fitted=int(np.count_nonzero(labels)) / max(int(valid.sum()), 1),
         line_rms=float(np.sqrt(np.mean(lines**2))) if p.line_offsets else 0.0,
@@ -1210,7 +1228,10 @@ def levelled_image(z, valid, fit, coords, p, *, dtype=np.float32):
     shape = z.shape
     out = np.empty(shape, dtype=dtype)
     for rows in _row_blocks(shape):
-        out[rows] = _residual(z, fit.near, coords, fit.slope, fit.offsets, fit.lines, fit.background, rows)
+        near = fit.near(shape, rows)
+        out[rows] = _residual(
+            z, None, coords, fit.slope, fit.offsets, fit.lines, fit.background, rows, block_labels=near
+        )
     out[~valid] = 0.0
     step = max(1, int(math.sqrt(out.size / 250_000)))
     on = fit.labels[::step, ::step] > 0
@@ -1275,7 +1296,7 @@ def terrace_steps(fit, p):
     steps = []
     # on a binned segmentation the strip between terraces is a few binned pixels wide, whatever the image size
     gap = max(p.max_step_width_px, (2 * max(1, round(p.edge_guard_px / fit.bin)) + 6) * fit.bin)
-    pairs = _adjacent_pairs(fit.n, fit.dist, fit.near, gap, p.min_step_length_px * fit.bin)
+    pairs = _adjacent_pairs(fit.n, fit.dist_b, fit.near_b, gap / fit.bin, p.min_step_length_px)
     neighbours = {}
     for k, l in pairs:
         neighbours.setdefault(k, set()).add(l)
