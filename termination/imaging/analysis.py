@@ -23,9 +23,12 @@ Readers and calibration live in :mod:`termination.imaging.reading`.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from termination.errors import ImageError
 from termination.imaging.fourier import DriftCorrection, Lattice, measure_lattice
@@ -122,7 +125,7 @@ class HeightMapAnalysis:
     notes: tuple[str, ...]
 
     @property
-    def undetermined(self):
+    def undetermined(self) -> tuple[str, ...]:
         """Names of the measured quantities that were not determined."""
         out = []
         if self.tilt.terrace is None:
@@ -134,7 +137,13 @@ class HeightMapAnalysis:
         return tuple(out)
 
 
-def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
+def analyse_heightmap(
+    heights: ArrayLike,
+    pixel_size: Any,
+    *,
+    progress: Callable[[float, str], object] | None = None,
+    **parameters: Any,
+) -> HeightMapAnalysis:
     """Tilt, lattice and step heights of one height map.
 
     Parameters
@@ -198,7 +207,7 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     if progress is not None and not callable(progress):
         raise ImageError(f"progress must be callable, got {progress!r}")
 
-    def report(fraction, stage):
+    def report(fraction: float, stage: str) -> None:
         if progress is not None:
             progress(fraction, stage)
 

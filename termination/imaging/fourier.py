@@ -7,13 +7,19 @@ drift correction is asked for with the expected lattice type.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import fft as sp_fft
 from scipy import ndimage
 
 from termination.algebra.lattice2d import gauss_reduce
+from termination.arrays import AnyArray, BoolArray, FloatArray, IntArray
+from termination.imaging.parameters import ImageParameters
+from termination.imaging.terraces import TerraceFit
 from termination.units import ANGSTROM, DEG
 
 __all__ = ["DRIFT_NOTE", "DriftCorrection", "Lattice", "fourier_lattice", "measure_lattice"]
@@ -87,7 +93,7 @@ class DriftCorrection:
     sigma_y_scale: float
 
 
-def _hann_amplitude(f):
+def _hann_amplitude(f: ArrayLike) -> FloatArray:
     """Magnitude of the (periodic) Hann window's transform at ``f`` bins, W(0) = 1.
 
     Notes
@@ -101,7 +107,9 @@ def _hann_amplitude(f):
     return np.abs(np.where(near, 0.5, out))
 
 
-def _refine_axis(a_m, a_0, a_p, noise_amp):
+def _refine_axis(
+    a_m: FloatArray, a_0: FloatArray, a_p: FloatArray, noise_amp: FloatArray
+) -> tuple[FloatArray, FloatArray, FloatArray]:
     """Sub-bin offset of a Hann-windowed peak from three amplitudes along one axis.
 
     Returns offset (bins), its noise standard deviation (bins) and the
@@ -134,7 +142,7 @@ def _refine_axis(a_m, a_0, a_p, noise_amp):
     return delta, sig_delta, broad
 
 
-def _radial_background(power, kr, dk):
+def _radial_background(power: AnyArray, kr: AnyArray, dk: float) -> Any:
     """Mean noise power at each pixel from the median power of its |k| annulus.
 
     Notes
@@ -163,7 +171,7 @@ _MIRROR = 3  # columns of negative kx added to the half spectrum
 _ZOOM_FLOOR = 0.08  # bins: error of the fine-grid refinement of a peak of unknown shape
 
 
-def _half_power(resid, workers, keep_window=False):
+def _half_power(resid: AnyArray, workers: int, keep_window: bool = False) -> Any:
     """Power spectrum of the Hann-windowed image, kx >= -3 bins, ky centred (single precision).
 
     Returns power (ny, nx // 2 + 1 + _MIRROR); column ``_MIRROR`` is kx = 0
@@ -192,7 +200,9 @@ def _half_power(resid, workers, keep_window=False):
     return (power, win) if keep_window else power
 
 
-def _zoom_refine(win, kx_bins, ky_bins, step=0.25, half=3):
+def _zoom_refine(
+    win: AnyArray, kx_bins: FloatArray, ky_bins: FloatArray, step: float = 0.25, half: int = 3
+) -> tuple[FloatArray, FloatArray]:
     """Sub-bin peak positions from the transform evaluated on a fine grid around each peak.
 
     Parameters
@@ -249,7 +259,9 @@ def _zoom_refine(win, kx_bins, ky_bins, step=0.25, half=3):
     return dx, dy
 
 
-def _spectrum_peaks(resid, px, p, notes):
+def _spectrum_peaks(
+    resid: AnyArray, px: tuple[float, float], p: ImageParameters, notes: list[str]
+) -> tuple[FloatArray, FloatArray] | None:
     """Significant Fourier peaks of a levelled image: positions g (m, 2), 1/Å, and their sigmas, strongest first.
 
     Returns (g, sig) or None, with the reason appended to ``notes``.
@@ -299,7 +311,7 @@ def _spectrum_peaks(resid, px, p, notes):
         return None
     noise_amp = np.sqrt(bg_img[rows, cols].astype(np.float64) / 2.0)
 
-    def amp(r, c):
+    def amp(r: IntArray, c: IntArray) -> Any:
         return np.sqrt(power64[r, c].astype(np.float64))
 
     _, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
@@ -314,11 +326,13 @@ def _spectrum_peaks(resid, px, p, notes):
     return g, sig
 
 
-def _fit_basis(g, sig, p, notes):
+def _fit_basis(
+    g: FloatArray, sig: FloatArray, p: ImageParameters, notes: list[str]
+) -> tuple[FloatArray, FloatArray, int] | None:
     """Reciprocal basis (2, 2) (rows g1, g2) least-squares fitted to every indexed peak, its (4, 4) covariance
     (parameters g1x, g2x, g1y, g2y) and the number of peaks used; or None with the reason in ``notes``."""
     basis, hk = _index_peaks(g, p.index_tol)
-    if basis is None:
+    if basis is None or hk is None:
         glen = np.hypot(g[:, 0], g[:, 1])
         d = 1.0 / glen[0]
         notes.append(f"no lattice: one periodicity only (rows {d:.3f} Å apart), no second direction")
@@ -351,11 +365,18 @@ def _fit_basis(g, sig, p, notes):
     return gmat, cov, int(ok.sum())
 
 
-def _params(gmat):
+def _params(gmat: FloatArray) -> FloatArray:
     return np.array([gmat[0, 0], gmat[1, 0], gmat[0, 1], gmat[1, 1]])
 
 
-def _lattice_values(params, cov, metric, p_count, terraces, drift=None):
+def _lattice_values(
+    params: FloatArray,
+    cov: FloatArray,
+    metric: FloatArray,
+    p_count: int,
+    terraces: int,
+    drift: DriftCorrection | None = None,
+) -> Lattice:
     """The Lattice record from reciprocal parameters and their covariance (propagated by central differences)."""
     values, transform = _real_lattice(params, None, metric, drift)
     jac = np.empty((4, 4))
@@ -383,7 +404,9 @@ def _lattice_values(params, cov, metric, p_count, terraces, drift=None):
     )
 
 
-def fourier_lattice(resid, px, slope, p, notes):
+def fourier_lattice(
+    resid: AnyArray, px: tuple[float, float], slope: tuple[float, float], p: ImageParameters, notes: list[str]
+) -> Lattice | None:
     """The reduced lattice of one levelled image (Å, degrees), or None with the reason appended to ``notes``.
 
     Parameters
@@ -413,12 +436,14 @@ def fourier_lattice(resid, px, slope, p, notes):
     return _lattice_values(_params(gmat), cov, _metric(slope), count, 0)
 
 
-def _metric(slope):
+def _metric(slope: tuple[float, float]) -> FloatArray:
     sl = np.asarray(slope, dtype=np.float64)
     return np.eye(2) + np.outer(sl, sl)  # image (x, y) lifted onto the terrace plane
 
 
-def _terrace_regions(fit, shape, p, min_side):
+def _terrace_regions(
+    fit: TerraceFit, shape: tuple[int, ...], p: ImageParameters, min_side: int
+) -> list[tuple[int, tuple[slice, slice]]]:
     """Bounding boxes (full-resolution slices) of the largest terraces whose lattices are measured separately.
 
     Terrace areas and boxes come from the segmentation grid (binned by ``fit.bin``).
@@ -443,7 +468,7 @@ def _terrace_regions(fit, shape, p, min_side):
     return regions
 
 
-def _taper(mask, sigma_px=3.0):
+def _taper(mask: BoolArray, sigma_px: float = 3.0) -> Any:
     """Weights that fall smoothly from 1 inside ``mask`` to 0 at its edge (over about 2 sigma_px).
 
     The edges of a terrace mask would otherwise transform into bright
@@ -457,7 +482,7 @@ def _taper(mask, sigma_px=3.0):
     return w
 
 
-def _align(gmat, cov, ref):
+def _align(gmat: FloatArray, cov: FloatArray, ref: FloatArray) -> tuple[FloatArray, FloatArray] | None:
     """Express a reciprocal basis in the integer frame of ``ref`` (the same lattice); None if it is not."""
     t = gmat @ np.linalg.inv(ref)
     ti = np.rint(t)
@@ -471,7 +496,15 @@ def _align(gmat, cov, ref):
     return new, big @ cov @ big.T
 
 
-def measure_lattice(flat, keep, fit, px, slope, p, notes):
+def measure_lattice(
+    flat: AnyArray,
+    keep: BoolArray,
+    fit: TerraceFit,
+    px: tuple[float, float],
+    slope: tuple[float, float],
+    p: ImageParameters,
+    notes: list[str],
+) -> tuple[Lattice | None, DriftCorrection | None]:
     """The lattice measured on each of the largest terraces and combined; optionally drift-corrected.
 
     Parameters
@@ -527,7 +560,7 @@ def measure_lattice(flat, keep, fit, px, slope, p, notes):
         if on.any():
             sub[on] -= float(np.mean(sub[on], dtype=np.float64))
         sub *= _taper(on)
-        trial = []
+        trial: list[str] = []
         peaks = _spectrum_peaks(sub, px, p, trial)
         del sub, on
         fitted = _fit_basis(*peaks, p, trial) if peaks is not None else None
@@ -592,7 +625,7 @@ def measure_lattice(flat, keep, fit, px, slope, p, notes):
     return lattice, drift
 
 
-def _corrected_params(params, drift_se):
+def _corrected_params(params: FloatArray, drift_se: Sequence[float] | FloatArray) -> FloatArray:
     """Reciprocal parameters after the drift map C = [[1, s], [0, 1 + e]]: G' = G C^-1."""
     s, e = drift_se
     gmat = np.array([[params[0], params[2]], [params[1], params[3]]])
@@ -600,7 +633,7 @@ def _corrected_params(params, drift_se):
     return _params(gmat @ np.linalg.inv(c))
 
 
-def _shape_residuals(params, metric, kind, transform):
+def _shape_residuals(params: FloatArray, metric: FloatArray, kind: str, transform: FloatArray) -> FloatArray:
     values, _ = _real_lattice(params, transform, metric)
     a, b, gamma = values[:3]
     mean = 0.5 * (a + b)
@@ -611,7 +644,9 @@ def _shape_residuals(params, metric, kind, transform):
     return np.array([math.cos(math.radians(gamma))])
 
 
-def _solve_drift(params, metric, kind, transform=None):
+def _solve_drift(
+    params: FloatArray, metric: FloatArray, kind: str, transform: FloatArray | None = None
+) -> tuple[tuple[float, float], FloatArray] | None:
     """(s, e) that give the measured lattice the shape of ``kind``; None if no solution near zero drift."""
     from scipy.optimize import least_squares
 
@@ -619,14 +654,14 @@ def _solve_drift(params, metric, kind, transform=None):
         transform = _real_lattice(params, None, metric)[1]
     if kind == "rectangular":
 
-        def fun(v):
+        def fun(v: FloatArray) -> FloatArray:
             return _shape_residuals(_corrected_params(params, (v[0], 0.0)), metric, kind, transform)
 
         sol = least_squares(fun, [0.0], xtol=1e-14, ftol=1e-14, gtol=1e-14)
         se = (float(sol.x[0]), 0.0)
     else:
 
-        def fun(v):
+        def fun(v: FloatArray) -> FloatArray:
             return _shape_residuals(_corrected_params(params, v), metric, kind, transform)
 
         sol = least_squares(fun, [0.0, 0.0], xtol=1e-14, ftol=1e-14, gtol=1e-14)
@@ -636,7 +671,13 @@ def _solve_drift(params, metric, kind, transform=None):
     return se, transform
 
 
-def _drift_record(params, cov, metric, kind, solved):
+def _drift_record(
+    params: FloatArray,
+    cov: FloatArray,
+    metric: FloatArray,
+    kind: str,
+    solved: tuple[tuple[float, float], FloatArray],
+) -> DriftCorrection:
     (s, e), transform = solved
     jac = np.zeros((2, 4))
     for i in range(4):
@@ -653,7 +694,7 @@ def _drift_record(params, cov, metric, kind, solved):
     return DriftCorrection(lattice_type=kind, shear=s, sigma_shear=float(sd[0]), y_scale=e, sigma_y_scale=float(sd[1]))
 
 
-def _is_streak(power, rows, cols, cx, cy, ratio):
+def _is_streak(power: AnyArray, rows: IntArray, cols: IntArray, cx: int, cy: int, ratio: float) -> Any:
     """True for maxima that lie on a line through the origin rather than on a spot.
 
     Notes
@@ -680,7 +721,7 @@ def _is_streak(power, rows, cols, cx, cy, ratio):
     return (radial > ratio * power[rows, cols]) & (radial > 4.0 * tangential)
 
 
-def _index_peaks(g, tol):
+def _index_peaks(g: FloatArray, tol: float) -> tuple[FloatArray | None, FloatArray | None]:
     """Reciprocal basis from the strongest peaks, and the indices of all peaks.
 
     ``g`` (m, 2) is sorted by decreasing power. The basis is the strongest
@@ -704,12 +745,14 @@ def _index_peaks(g, tol):
     return basis, g @ np.linalg.inv(basis)
 
 
-def _reduce(basis, metric=None):
+def _reduce(basis: FloatArray, metric: FloatArray | None = None) -> FloatArray:
     """Gauss-reduced 2D basis (rows) under ``metric``."""
     return np.array(gauss_reduce(basis[0], basis[1], metric))
 
 
-def _real_lattice(params, transform, metric, drift=None):
+def _real_lattice(
+    params: FloatArray, transform: FloatArray | None, metric: FloatArray, drift: DriftCorrection | None = None
+) -> tuple[FloatArray, FloatArray]:
     """(a, b, gamma, direction) of the reduced real-space lattice from (g1x, g2x, g1y, g2y).
 
     Lengths and angles use ``metric`` (that of the terrace plane, so the

@@ -35,6 +35,8 @@ import math
 import os
 import re
 from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -87,7 +89,7 @@ class RawImage:
     channels: tuple[str, ...] = ()
 
 
-def _unit_angstrom(unit, what, path):
+def _unit_angstrom(unit: str | None, what: str, path: Path) -> float | None:
     """Å per unit of a unit name (m, nm, pm, Å, ...); None for an empty unit."""
     from termination.quantities import LENGTH_UNITS_ANGSTROM
 
@@ -109,7 +111,9 @@ def _unit_angstrom(unit, what, path):
     return float(LENGTH_UNITS_ANGSTROM[key])
 
 
-def _pick(channels, wanted, path, default_names):
+def _pick(
+    channels: list[tuple[str, str | None]], wanted: str | None, path: Path, default_names: tuple[str, ...]
+) -> int:
     """Index of the requested channel (name, optionally ``name:forward`` or ``name:backward``)."""
     if wanted is None:
         for name in default_names:
@@ -129,7 +133,7 @@ def _pick(channels, wanted, path, default_names):
     raise ImageError(f"{path.name}: no channel {wanted!r}; the file holds {listed}")
 
 
-def _label(channel):
+def _label(channel: tuple[str, str | None]) -> str:
     name, direction = channel
     return name if direction is None else f"{name}:{direction}"
 
@@ -137,7 +141,7 @@ def _label(channel):
 # --------------------------------------------------------------------------- Nanonis .sxm
 
 
-def _sxm_header(path):
+def _sxm_header(path: Path) -> tuple[dict[str, list[str]], int]:
     with open(path, "rb") as fh:
         head = fh.read(_HEADER_LIMIT)
     end = head.find(b":SCANIT_END:")
@@ -158,7 +162,7 @@ def _sxm_header(path):
     return fields, start + 2
 
 
-def _sxm_numbers(fields, key, count, path):
+def _sxm_numbers(fields: dict[str, list[str]], key: str, count: int, path: Path) -> list[float]:
     try:
         values = [float(v) for v in " ".join(fields[key]).split()]
     except KeyError:
@@ -170,7 +174,7 @@ def _sxm_numbers(fields, key, count, path):
     return values[:count]
 
 
-def _read_sxm(path, channel):
+def _read_sxm(path: Path, channel: str | None) -> RawImage:
     fields, offset = _sxm_header(path)
     nx_f, ny_f = _sxm_numbers(fields, "SCAN_PIXELS", 2, path)
     if nx_f != int(nx_f) or ny_f != int(ny_f):
@@ -228,7 +232,7 @@ def _read_sxm(path, channel):
 # --------------------------------------------------------------------------- NeXus / HDF5
 
 
-def _attr_text(value):
+def _attr_text(value: Any) -> Any:
     if isinstance(value, bytes):
         return value.decode("utf-8", "replace")
     if isinstance(value, np.ndarray):
@@ -238,7 +242,7 @@ def _attr_text(value):
     return str(value)
 
 
-def _read_nexus(path, channel):
+def _read_nexus(path: Path, channel: str | None) -> RawImage:
     try:
         import h5py
     except ImportError:
@@ -250,7 +254,7 @@ def _read_nexus(path, channel):
     with fh:
         groups = []
 
-        def visit(name, obj):
+        def visit(name: str, obj: Any) -> None:
             if isinstance(obj, h5py.Group) and _attr_text(obj.attrs.get("NX_class", "")) == "NXdata":
                 groups.append((name, obj))
 
@@ -320,7 +324,7 @@ def _read_nexus(path, channel):
     )
 
 
-def _coord_decreasing(group, name):
+def _coord_decreasing(group: Any, name: str) -> bool:
     """True when the coordinate dataset ``name`` of ``group`` runs downwards."""
     coord = np.asarray(group[name][()], dtype=np.float64).ravel()
     return coord.size > 1 and coord[-1] < coord[0]
@@ -329,7 +333,7 @@ def _coord_decreasing(group, name):
 # --------------------------------------------------------------------------- Igor binary waves
 
 
-def _read_ibw(path, channel):
+def _read_ibw(path: Path, channel: str | None) -> RawImage:
     try:
         from igor2 import binarywave
     except ImportError:
@@ -381,7 +385,7 @@ def _read_ibw(path, channel):
     )
 
 
-def _ibw_declared(head, path):
+def _ibw_declared(head: bytes, path: Path) -> tuple[list[int], int]:
     """(shape, item size) that a version-5 Igor binary wave header declares."""
     if len(head) < 64 + 320:
         raise ImageError(f"{path.name}: too short for an Igor binary wave")
@@ -405,7 +409,7 @@ def _ibw_declared(head, path):
 # --------------------------------------------------------------------------- dispatch
 
 
-def read_instrument_file(path, channel=None):
+def read_instrument_file(path: Path, channel: str | None = None) -> RawImage:
     """Read one channel of an instrument file (see the module docstring for the formats).
 
     Parameters

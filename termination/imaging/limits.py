@@ -8,6 +8,8 @@ see ``tests/benchmarks/bench_heightmap.py``).
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
+from pathlib import Path
 
 from termination.errors import ImageError
 
@@ -35,7 +37,7 @@ MIN_PIXEL_ANGSTROM = 1e-3
 MAX_PIXEL_ANGSTROM = 1e6
 
 
-def check_declared(shape, itemsize, available, path):
+def check_declared(shape: Sequence[int], itemsize: int, available: float, path: Path) -> None:
     """Refuse a declared image larger than :data:`MAX_PIXELS` or than the bytes the file holds.
 
     Parameters

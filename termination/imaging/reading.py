@@ -50,11 +50,15 @@ import os
 import re
 import stat
 import tomllib
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
+from termination.arrays import AnyArray, FloatArray
 from termination.errors import ImageError
 from termination.imaging.limits import (
     MAX_HEIGHT_ANGSTROM,
@@ -66,6 +70,9 @@ from termination.imaging.limits import (
     check_declared,
 )
 from termination.quantities import LENGTH_UNITS_ANGSTROM, NUMBER_PATTERN, scaled
+
+if TYPE_CHECKING:
+    from termination.imaging.instruments import RawImage
 
 __all__ = [
     "MAX_HEIGHT_ANGSTROM",
@@ -123,11 +130,11 @@ class HeightMap:
     calibration: str = "arguments"
 
     @property
-    def shape(self):
+    def shape(self) -> tuple[int, ...]:
         return self.heights.shape
 
 
-def parse_length(text, *, what="length"):
+def parse_length(text: str, *, what: str = "length") -> float:
     """Parse a length with a unit (``0.05nm``, ``0.5A``, ``0.5 Å``, ``50pm``) to Å.
 
     Parameters
@@ -162,7 +169,7 @@ def parse_length(text, *, what="length"):
     return scaled(value, unit)
 
 
-def _split_length(text, what):
+def _split_length(text: Any, what: str) -> tuple[str | None, str | None]:
     """(number text or None, unit or None) of a length written as text, both checked."""
     if not isinstance(text, str):
         raise ImageError(f"{what} must be text like '0.05nm', got {text!r}")
@@ -180,7 +187,7 @@ def _split_length(text, what):
     return value, unit
 
 
-def parse_pixel_size(spec):
+def parse_pixel_size(spec: Any) -> tuple[float, float]:
     """Pixel size along x and y in Å from text or numbers.
 
     Parameters
@@ -246,14 +253,14 @@ def parse_pixel_size(spec):
     return (float(sizes[0]), float(sizes[1]))
 
 
-def _check_pixel_angstrom(size, spec):
+def _check_pixel_angstrom(size: float, spec: Any) -> None:
     if not MIN_PIXEL_ANGSTROM <= size <= MAX_PIXEL_ANGSTROM:
         raise ImageError(
             f"pixel size {spec!r} = {size:g} Å lies outside {MIN_PIXEL_ANGSTROM:g} to {MAX_PIXEL_ANGSTROM:g} Å"
         )
 
 
-def parse_z_unit(spec):
+def parse_z_unit(spec: Any) -> float:
     """Length in Å that one unit of the stored heights stands for.
 
     Parameters
@@ -290,7 +297,7 @@ def parse_z_unit(spec):
     return value
 
 
-def sidecar_path(path):
+def sidecar_path(path: str | os.PathLike[str]) -> Path:
     """The calibration file beside an image: same name, suffix ``.toml``.
 
     >>> sidecar_path("data/scan.npy").name
@@ -299,7 +306,7 @@ def sidecar_path(path):
     return Path(path).with_suffix(".toml")
 
 
-def read_sidecar(path):
+def read_sidecar(path: str | os.PathLike[str]) -> dict[str, Any]:
     """Read a calibration sidecar TOML.
 
     Parameters
@@ -347,7 +354,7 @@ def read_sidecar(path):
     return out
 
 
-def check_heights(heights, *, what="height map", max_abs=None):
+def check_heights(heights: ArrayLike, *, what: str = "height map", max_abs: float | None = None) -> FloatArray:
     """Convert to a float64 C-ordered 2-D array and refuse unusable images.
 
     Parameters
@@ -398,7 +405,7 @@ def check_heights(heights, *, what="height map", max_abs=None):
     return arr
 
 
-def _regular_file(path):
+def _regular_file(path: Path) -> int:
     """The size of ``path``, refusing what is not a regular file (a folder, a FIFO, a device)."""
     try:
         st = os.stat(path)
@@ -411,7 +418,7 @@ def _regular_file(path):
     return st.st_size
 
 
-def _load_npy(path, size):
+def _load_npy(path: Path, size: int) -> AnyArray:
     """A .npy array, its header checked (shape, type, data size against the file) before the data is read."""
     from numpy.lib import format as npformat
 
@@ -435,7 +442,7 @@ def _load_npy(path, size):
 
 
 @contextlib.contextmanager
-def _quiet_logger(name):
+def _quiet_logger(name: str) -> Iterator[None]:
     """Silence a library's logger (its warnings would add lines to a one-line error)."""
     logger = logging.getLogger(name)
     level, propagate = logger.level, logger.propagate
@@ -448,7 +455,7 @@ def _quiet_logger(name):
         logger.propagate = propagate
 
 
-def _load_tiff(path, size):
+def _load_tiff(path: Path, size: int) -> AnyArray:
     try:
         import tifffile
     except ImportError:  # pragma: no cover - tifffile is a dependency
@@ -472,7 +479,7 @@ def _load_tiff(path, size):
         raise ImageError(f"cannot read {str(path)!r} as TIFF: {exc}") from None
 
 
-def load_raw(path, channel=None):
+def load_raw(path: str | os.PathLike[str], channel: str | None = None) -> RawImage:
     """Read the numbers of one channel of a height-map file and the calibration it carries (none for plain files).
 
     Parameters
@@ -512,12 +519,12 @@ def load_raw(path, channel=None):
     return RawImage(_load_text(path))
 
 
-def load_array(path):
+def load_array(path: str | os.PathLike[str]) -> AnyArray:
     """The raw numbers of a single-channel height-map file (no calibration applied); see :func:`load_raw`."""
     return load_raw(path).data
 
 
-def _load_text(path):
+def _load_text(path: Path) -> FloatArray:
     try:
         text = path.read_text(encoding="utf-8")
     except UnicodeDecodeError:
@@ -542,7 +549,13 @@ def _load_text(path):
         raise ImageError(f"{str(path)!r}: {exc}") from None
 
 
-def read_heightmap(path, *, pixel_size=None, z_unit=None, channel=None):
+def read_heightmap(
+    path: str | os.PathLike[str],
+    *,
+    pixel_size: Any = None,
+    z_unit: Any = None,
+    channel: str | None = None,
+) -> HeightMap:
     """Read a height map and calibrate it to Å.
 
     Parameters

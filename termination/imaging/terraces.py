@@ -18,14 +18,34 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from typing import Any, Protocol
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from scipy import ndimage
 from scipy.signal import find_peaks
 
+from termination.arrays import AnyArray, BoolArray, FloatArray, IntArray
+from termination.imaging.parameters import ImageParameters
 from termination.imaging.reading import check_heights, parse_pixel_size
 from termination.units import ANGSTROM
+
+#: Pixel-centre coordinates (x of the columns, y of the rows), Å.
+Coords = tuple[FloatArray, FloatArray]
+#: A pixel size as the readers accept it: text with a unit, a number in Å, or two of them.
+PixelSpec = str | float | Sequence[str | float]
+
+
+class RowSource(Protocol):
+    """Heights that can be read block by block of rows (an array, or heights corrected on the fly)."""
+
+    @property
+    def shape(self) -> tuple[int, ...]: ...
+
+    def __getitem__(self, rows: slice, /) -> Any: ...
+
 
 __all__ = ["Step", "TerraceFit", "fit_terraces", "plane_fit", "tilt_azimuth"]
 
@@ -55,21 +75,21 @@ class Step:
     sigma: float = field(metadata=ANGSTROM)
 
 
-def _coordinates(shape, pixel_size):
+def _coordinates(shape: tuple[int, ...], pixel_size: tuple[float, float]) -> Coords:
     ny, nx = shape
-    x = (np.arange(nx) - (nx - 1) / 2.0) * pixel_size[0]
-    y = (np.arange(ny) - (ny - 1) / 2.0) * pixel_size[1]
+    x = (np.arange(nx, dtype=np.float64) - (nx - 1) / 2.0) * float(pixel_size[0])
+    y = (np.arange(ny, dtype=np.float64) - (ny - 1) / 2.0) * float(pixel_size[1])
     return x, y
 
 
-def tilt_azimuth(a, b):
+def tilt_azimuth(a: float, b: float) -> tuple[float, float]:
     """Tilt and azimuth of steepest ascent (from +x towards +y) of slopes (a, b), degrees."""
     tilt = math.degrees(math.atan(math.hypot(a, b)))
     azimuth = math.degrees(math.atan2(b, a)) % 360.0 if (a or b) else 0.0
     return tilt, azimuth
 
 
-def plane_fit(heights, pixel_size):
+def plane_fit(heights: ArrayLike, pixel_size: PixelSpec) -> tuple[float, float, float]:
     """Least-squares plane through all finite pixels.
 
     Parameters
@@ -109,7 +129,7 @@ def plane_fit(heights, pixel_size):
     return a, b, float(c[0])
 
 
-def _plane_slopes(z, valid, coords):
+def _plane_slopes(z: FloatArray, valid: BoolArray, coords: Coords) -> tuple[float, float]:
     """Slopes of the least-squares plane through the finite pixels."""
     if not valid.all():
         a, b, _, _ = _common_plane(z, valid.astype(np.int32), 1, coords)
@@ -122,14 +142,14 @@ def _plane_slopes(z, valid, coords):
     return a, b
 
 
-def _row_blocks(shape):
+def _row_blocks(shape: tuple[int, ...]) -> list[slice]:
     """Slices of consecutive rows holding about ``_BLOCK_PIXELS`` pixels each."""
     ny, nx = shape
     step = max(1, _BLOCK_PIXELS // max(nx, 1))
     return [slice(i, min(i + step, ny)) for i in range(0, ny, step)]
 
 
-def _label_moments(z, labels, n_labels, coords):
+def _label_moments(z: RowSource, labels: AnyArray, n_labels: int, coords: Coords) -> tuple[FloatArray, ...]:
     """Per-label sums of 1, x, y, z, xx, yy, xy, xz, yz, zz (index 0 = unlabelled).
 
     Notes
@@ -174,7 +194,9 @@ def _label_moments(z, labels, n_labels, coords):
     return tuple(out)
 
 
-def _common_plane(z, labels, n_labels, coords):
+def _common_plane(
+    z: RowSource, labels: AnyArray, n_labels: int, coords: Coords
+) -> tuple[float, float, FloatArray, dict[str, Any]]:
     r"""One plane, one offset per label (labels 1..n; 0 excluded).
 
     Returns slope_x, slope_y, offsets (n,), and a dict of fit statistics.
@@ -190,7 +212,7 @@ def _common_plane(z, labels, n_labels, coords):
     k = slice(1, None)
     nk = np.where(n[k] > 0, n[k], 1.0)
 
-    def within(uv, u, v):
+    def within(uv: FloatArray, u: FloatArray, v: FloatArray) -> float:
         return float(np.sum(uv[k] - u[k] * v[k] / nk))
 
     Sxx, Syy, Sxy = within(sxx, sx, sx), within(syy, sy, sy), within(sxy, sx, sy)
@@ -228,24 +250,24 @@ class SmoothBackground:
         Node coordinates, Å (increasing).
     """
 
-    def __init__(self, values, x_nodes, y_nodes):
+    def __init__(self, values: ArrayLike, x_nodes: ArrayLike, y_nodes: ArrayLike) -> None:
         self.values = np.asarray(values, dtype=np.float64)
         self.x_nodes = np.asarray(x_nodes, dtype=np.float64)
         self.y_nodes = np.asarray(y_nodes, dtype=np.float64)
-        self._cache = {}
+        self._cache: dict[tuple[int, float, float], NDArray[np.float32]] = {}
 
     @property
-    def rms(self):
+    def rms(self) -> float:
         """Root-mean-square height of the background over its nodes, Å."""
         return float(np.sqrt(np.mean(self.values**2)))
 
-    def _along_x(self, x):
+    def _along_x(self, x: FloatArray) -> AnyArray:
         key = (x.size, float(x[0]), float(x[-1]))
         if key not in self._cache:
             self._cache = {key: np.stack([np.interp(x, self.x_nodes, row) for row in self.values]).astype(np.float32)}
         return self._cache[key]
 
-    def rows(self, coords, rows=slice(None)):
+    def rows(self, coords: Coords, rows: slice = slice(None)) -> AnyArray:
         """The background on a block of rows of the grid ``coords``, float32."""
         x, y = coords
         cx = self._along_x(x)
@@ -259,23 +281,23 @@ class SmoothBackground:
         return out
 
 
-def _fit_subsample(shape):
+def _fit_subsample(shape: tuple[int, ...]) -> int:
     """Row and column stride of the subsample used for the smooth-surface least squares."""
     return max(1, int(math.ceil(math.sqrt(shape[0] * shape[1] / _FIT_PIXELS))))
 
 
-def _node_spacing(p, factor, shape):
+def _node_spacing(p: ImageParameters, factor: int, shape: tuple[int, ...]) -> float:
     """Node spacing of the background surface on the segmentation grid, pixels (at most 48 nodes a side)."""
     return max(p.background_spacing_px / factor, (max(shape) - 1) / (_MAX_NODES - 1), 2.0)
 
 
-def _tent_weights(pos, n_nodes):
+def _tent_weights(pos: FloatArray, n_nodes: int) -> tuple[IntArray, FloatArray]:
     """Left node index and fractional position of points on a line of nodes (bilinear tents)."""
     i0 = np.clip(np.floor(pos).astype(np.intp), 0, max(n_nodes - 2, 0))
     return i0, pos - i0
 
 
-def _penalty(my, mx):
+def _penalty(my: int, mx: int) -> Any:
     """Sparse second-difference operator of a (my, mx) node grid: along x, along y and mixed."""
     from scipy import sparse
 
@@ -283,7 +305,7 @@ def _penalty(my, mx):
     rows, cols, vals = [], [], []
     r = 0
 
-    def add(nodes, weights):
+    def add(nodes: list[IntArray], weights: list[float]) -> None:
         nonlocal r
         k = nodes[0].size
         for node, w in zip(nodes, weights):
@@ -314,11 +336,20 @@ class _Surface:
     background: SmoothBackground
     slope: tuple[float, float]
     offsets: np.ndarray
-    cov_ab: np.ndarray
-    cov_offsets: np.ndarray
+    cov_ab: FloatArray | None
+    cov_offsets: FloatArray | None
 
 
-def _solve_surface(z, labels, n, coords, lines, spacing_px, stiffness, covariance=True):
+def _solve_surface(
+    z: FloatArray,
+    labels: AnyArray,
+    n: int,
+    coords: Coords,
+    lines: FloatArray,
+    spacing_px: float,
+    stiffness: float,
+    covariance: bool = True,
+) -> _Surface | None:
     """Terrace offsets and a smooth surface (plane plus background) by penalised least squares.
 
     Notes
@@ -376,7 +407,7 @@ def _solve_surface(z, labels, n, coords, lines, spacing_px, stiffness, covarianc
     if n > 1 and not np.all(np.isfinite(schur)):
         return None
 
-    def solve(f, g):
+    def solve(f: FloatArray, g: FloatArray) -> tuple[FloatArray, FloatArray]:
         """Solve the block system for right-hand sides f (m, k) and g (n - 1, k)."""
         af = lu.solve(f)
         if n == 1:
@@ -417,7 +448,13 @@ def _solve_surface(z, labels, n, coords, lines, spacing_px, stiffness, covarianc
     return _Surface(bg, (float(a), float(b)), offsets, cov_ab, cov_c)
 
 
-def _surface_covariance(solve, lmat, m, n, v):
+def _surface_covariance(
+    solve: Callable[[FloatArray, FloatArray], tuple[FloatArray, FloatArray]],
+    lmat: FloatArray,
+    m: int,
+    n: int,
+    v: float,
+) -> tuple[FloatArray, FloatArray]:
     """Covariance of the slopes and of the terrace offsets: N^-1 applied to their functionals, times v."""
     k = n - 1
     rhs_f = np.concatenate([lmat[1:].T, np.zeros((m, k))], axis=1)
@@ -429,7 +466,7 @@ def _surface_covariance(solve, lmat, m, n, v):
     return cov_ab, cov_c
 
 
-def _aperiodic(r, false_alarm=1e-3):
+def _aperiodic(r: FloatArray, false_alarm: float = 1e-3) -> AnyArray:
     """Scan-line offsets without their significant periodic part.
 
     A lattice row running along the scan lines makes every line's mean
@@ -456,7 +493,7 @@ def _aperiodic(r, false_alarm=1e-3):
     return np.fft.irfft(spec, n=r.size)
 
 
-def _project_lines(r, y, weight):
+def _project_lines(r: AnyArray, y: FloatArray, weight: ArrayLike) -> AnyArray:
     """Remove the weighted least-squares line in y from the scan-line offsets.
 
     The offsets of the scan lines are defined only up to a constant (the
@@ -478,7 +515,7 @@ def _project_lines(r, y, weight):
     return out
 
 
-def _initial_line_offsets(z, valid, y, half_window=4):
+def _initial_line_offsets(z: FloatArray, valid: BoolArray, y: FloatArray, half_window: int = 4) -> AnyArray:
     """First estimate of the scan-line offsets: each line against the mean of its neighbours.
 
     Notes
@@ -512,7 +549,7 @@ def _initial_line_offsets(z, valid, y, half_window=4):
 # --------------------------------------------------------------------------- smoothing and levels
 
 
-def _smooth(z, valid, sigma_px):
+def _smooth(z: AnyArray, valid: BoolArray, sigma_px: float) -> AnyArray:
     """Gaussian smoothing that ignores NaN pixels (normalised convolution), in single precision."""
     if valid.all():
         return ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest")
@@ -524,18 +561,18 @@ def _smooth(z, valid, sigma_px):
     return num
 
 
-def _robust_scale(values):
+def _robust_scale(values: AnyArray) -> tuple[float, float]:
     """Median and normal-consistent median absolute deviation."""
     med = float(np.median(values))
     return med, 1.4826 * float(np.median(np.abs(values - med)))
 
 
-def _robust_threshold(values, k_sigma):
+def _robust_threshold(values: AnyArray, k_sigma: float) -> float:
     med, mad = _robust_scale(values)
     return med + k_sigma * mad
 
 
-def _level_bounds(h, min_step, min_contrast, min_count):
+def _level_bounds(h: AnyArray, min_step: float, min_contrast: float, min_count: float) -> AnyArray:
     """Height-histogram levels: return the boundaries between terrace levels.
 
     A level is a histogram peak that is resolved (its prominence is at least
@@ -574,7 +611,7 @@ def _level_bounds(h, min_step, min_contrast, min_count):
     return np.empty(0)
 
 
-def _bin(z, valid, coords, factor):
+def _bin(z: FloatArray, valid: BoolArray, coords: Coords, factor: int) -> tuple[FloatArray, BoolArray, Coords]:
     """Block-average ``factor`` x ``factor`` pixels (NaN-aware); crop the remainder."""
     if factor == 1:
         return z, valid, coords
@@ -595,7 +632,7 @@ def _bin(z, valid, coords, factor):
     return zc, wc > 0, (xc, yc)
 
 
-def _unbin(arr, factor, shape):
+def _unbin(arr: AnyArray, factor: int, shape: tuple[int, ...]) -> AnyArray:
     """Nearest-neighbour upsampling of a binned array back to ``shape``."""
     if factor == 1:
         return arr
@@ -606,7 +643,7 @@ def _unbin(arr, factor, shape):
     return np.pad(up, pad, mode="edge")
 
 
-def _unbin_rows(r, factor, ny):
+def _unbin_rows(r: AnyArray, factor: int, ny: int) -> AnyArray:
     """Scan-line offsets of the binned rows spread back onto the full rows."""
     if factor == 1:
         return r
@@ -679,7 +716,7 @@ class TerraceFit:
     offsets: np.ndarray
     lines: np.ndarray
     background: SmoothBackground | None
-    stats: dict
+    stats: dict[str, Any]
     near_b: np.ndarray
     dist_b: np.ndarray
     correlation: float = 1.0
@@ -695,7 +732,7 @@ class TerraceFit:
     surface_cov_offsets: np.ndarray | None = None
     bin: int = 1
 
-    def near(self, shape, rows=slice(None)):
+    def near(self, shape: tuple[int, ...], rows: slice = slice(None)) -> AnyArray:
         """Nearest terrace of every pixel of a block of full-resolution rows (int32)."""
         f = self.bin
         r = range(*rows.indices(shape[0]))
@@ -706,14 +743,24 @@ class TerraceFit:
         return self.near_b[np.ix_(rb, cb)]
 
 
-def _residual(z, labels, coords, slope, offsets, lines, background, rows=slice(None), block_labels=None):
+def _residual(
+    z: FloatArray,
+    labels: AnyArray | None,
+    coords: Coords,
+    slope: tuple[float, float],
+    offsets: FloatArray,
+    lines: FloatArray,
+    background: SmoothBackground | None,
+    rows: slice = slice(None),
+    block_labels: AnyArray | None = None,
+) -> AnyArray:
     """Residual of the model on a block of rows (float32; zero off the terraces).
 
     ``block_labels`` are the labels of the block itself, when ``labels`` is not a full-size array.
     """
     x, y = coords
     a, b = slope
-    lab = labels[rows] if block_labels is None else block_labels
+    lab = block_labels if block_labels is not None else labels[rows]  # type: ignore[index]  # one is given
     off = np.concatenate([[0.0], offsets])
     # offsets first, in double precision: the residual is small, the heights need not be
     r = z[rows] - lines[rows, None] - b * y[rows, None]
@@ -726,7 +773,14 @@ def _residual(z, labels, coords, slope, offsets, lines, background, rows=slice(N
     return r
 
 
-def _row_means(z, labels, coords, slope, offsets, background):
+def _row_means(
+    z: FloatArray,
+    labels: AnyArray,
+    coords: Coords,
+    slope: tuple[float, float],
+    offsets: FloatArray,
+    background: SmoothBackground | None,
+) -> tuple[AnyArray, AnyArray]:
     """Mean residual of each scan line over its terrace pixels (line offsets not removed), and the pixel counts."""
     ny = z.shape[0]
     sums = np.zeros(ny)
@@ -744,18 +798,27 @@ class _Corrected:
     """z minus scan-line offsets and background, computed block by block (duck-types the array access of
     :func:`_label_moments`: ``shape`` and ``[rows]``)."""
 
-    def __init__(self, z, lines, background, coords):
+    def __init__(self, z: FloatArray, lines: FloatArray, background: SmoothBackground | None, coords: Coords) -> None:
         self.z, self.lines, self.background, self.coords = z, lines, background, coords
         self.shape = z.shape
 
-    def __getitem__(self, rows):
+    def __getitem__(self, rows: slice) -> FloatArray:
         out = self.z[rows] - self.lines[rows, None]
         if self.background is not None:
             out -= self.background.rows(self.coords, rows)
         return out
 
 
-def _refit(z, labels, n, coords, lines, background, fit_lines, rounds):
+def _refit(
+    z: FloatArray,
+    labels: AnyArray,
+    n: int,
+    coords: Coords,
+    lines: FloatArray,
+    background: SmoothBackground | None,
+    fit_lines: bool,
+    rounds: int,
+) -> tuple[tuple[float, float], FloatArray, dict[str, Any], FloatArray]:
     """Alternate the plane-and-offsets fit and the scan-line offsets (background fixed).
 
     Returns slope, offsets, stats, lines.
@@ -769,7 +832,7 @@ def _refit(z, labels, n, coords, lines, background, fit_lines, rounds):
     return (a, b), offsets, stats, lines
 
 
-def _relief(resid, on, sigma_px, peak=False):
+def _relief(resid: AnyArray, on: BoolArray, sigma_px: float, peak: bool = False) -> tuple[float, ...]:
     """Ratio of the smoothed residual's variance to white noise's, and the rms of the excess (Å).
 
     Notes
@@ -809,7 +872,9 @@ def _relief(resid, on, sigma_px, peak=False):
     return out
 
 
-def _outliers(resid, labels, k_sigma, guard, scale=None):
+def _outliers(
+    resid: AnyArray, labels: AnyArray, k_sigma: float, guard: int, scale: tuple[float, float] | None = None
+) -> tuple[BoolArray, tuple[float, float] | None]:
     """Pixels whose lightly smoothed residual stands out of the terrace noise: adsorbates and pits.
 
     A 3 x 3 mean keeps the atomic corrugation and the noise from
@@ -839,7 +904,9 @@ def _outliers(resid, labels, k_sigma, guard, scale=None):
     return bad, scale
 
 
-def fit_terraces(z, valid, coords, px, p):
+def fit_terraces(
+    z: FloatArray, valid: BoolArray, coords: Coords, px: tuple[float, float], p: ImageParameters
+) -> TerraceFit:
     """Fit the terrace model of a raw topograph.
 
     Parameters
@@ -1094,7 +1161,7 @@ def fit_terraces(z, valid, coords, px, p):
     return fit
 
 
-def _ar1_factor(r_img, labels):
+def _ar1_factor(r_img: AnyArray, labels: AnyArray) -> float:
     """Variance inflation for spatially correlated residuals.
 
     Notes
@@ -1108,7 +1175,7 @@ def _ar1_factor(r_img, labels):
     return _ar1_from_sums(sums, 1)
 
 
-def _lag_sums(r, labels):
+def _lag_sums(r: AnyArray, labels: AnyArray) -> FloatArray:
     """Sum of r², and of lag-one products along rows and along columns within one terrace."""
     r = r.astype(np.float64, copy=False)
     on = labels > 0
@@ -1120,7 +1187,7 @@ def _lag_sums(r, labels):
     return np.array([rr, px, py])
 
 
-def _ar1_from_sums(sums, step):
+def _ar1_from_sums(sums: FloatArray, step: int) -> float:
     rr, px, py = sums
     if rr <= 0:
         return 1.0
@@ -1132,7 +1199,7 @@ def _ar1_from_sums(sums, step):
     return factor
 
 
-def _residual_statistics(z, coords, fit, p):
+def _residual_statistics(z: FloatArray, coords: Coords, fit: TerraceFit, p: ImageParameters) -> None:
     """Pixel correlation, smooth relief and its excess variance of the final residual (set on ``fit``).
 
     Notes
@@ -1181,7 +1248,7 @@ def _residual_statistics(z, coords, fit, p):
     fit.excess_variance = excess**2 * 4 * math.pi * (sigma_px * factor) ** 2
 
 
-def _nearest_terrace(labels):
+def _nearest_terrace(labels: AnyArray) -> tuple[FloatArray, AnyArray]:
     """Label of the nearest terrace for every pixel and the distance to it, pixels."""
     if not (labels == 0).any():
         return np.zeros(labels.shape), labels
@@ -1189,7 +1256,9 @@ def _nearest_terrace(labels):
     return dist, labels[ir, ic]
 
 
-def _adjacent_pairs(n, dist, near, max_gap_px, min_length_px):
+def _adjacent_pairs(
+    n: int, dist: AnyArray, near: AnyArray, max_gap_px: float, min_length_px: float
+) -> list[tuple[int, int]]:
     """Pairs of terraces that meet across a strip no wider than ``max_gap_px``.
 
     Every unlabelled pixel is given to its nearest terrace (within
@@ -1213,7 +1282,9 @@ def _adjacent_pairs(n, dist, near, max_gap_px, min_length_px):
     return [(int(c // (n + 1)), int(c % (n + 1))) for c, k in zip(codes, counts) if k >= min_length_px]
 
 
-def levelled_image(z, valid, fit, coords, p, *, dtype=np.float32):
+def levelled_image(
+    z: FloatArray, valid: BoolArray, fit: TerraceFit, coords: Coords, p: ImageParameters, *, dtype: Any = np.float32
+) -> tuple[AnyArray, BoolArray]:
     """Terrace-levelled image for the Fourier analysis (step edges, outliers and NaN set to zero).
 
     Every pixel is levelled with the plane, the scan-line offset, the
@@ -1261,7 +1332,7 @@ def levelled_image(z, valid, fit, coords, p, *, dtype=np.float32):
     return out, keep
 
 
-def terrace_steps(fit, p):
+def terrace_steps(fit: TerraceFit, p: ImageParameters) -> tuple[tuple[Step, ...], FloatArray | None]:
     """Steps between adjacent terraces at different levels, one per pair of levels, and the slope covariance.
 
     Returns (steps, cov_ab) where steps is a tuple of :class:`Step`, one
@@ -1297,7 +1368,7 @@ def terrace_steps(fit, p):
     # on a binned segmentation the strip between terraces is a few binned pixels wide, whatever the image size
     gap = max(p.max_step_width_px, (2 * max(1, round(p.edge_guard_px / fit.bin)) + 6) * fit.bin)
     pairs = _adjacent_pairs(fit.n, fit.dist_b, fit.near_b, gap / fit.bin, p.min_step_length_px)
-    neighbours = {}
+    neighbours: dict[int, set[int]] = {}
     for k, l in pairs:
         neighbours.setdefault(k, set()).add(l)
         neighbours.setdefault(l, set()).add(k)
