@@ -1,8 +1,8 @@
 """Size limits of height maps: checked from a file's header before any data is read, and on arrays.
 
-Every combination inside these limits is analysed in bounded time and
-memory (about 11 s and 3.5 GB for the largest image on a 2-core machine,
-see ``tests/benchmarks/bench_heightmap.py``).
+Time and memory grow in proportion to the pixel count (figures for 2048²
+and 4096² maps in the README, from ``tests/benchmarks/bench_heightmap.py``);
+large maps show a progress bar and can be interrupted.
 """
 
 from __future__ import annotations
