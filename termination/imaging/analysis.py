@@ -1,23 +1,23 @@
-"""One height map from pixels to measurement: plane fit, terraces, steps and lattice.
+"""One height map from pixels to measurement: plane fit, terrace model, steps and lattice.
 
 The analysis of one topograph runs in four stages:
 
 1. **Plane fit** of all pixels: the macroscopic inclination of the imaged
    area and its azimuth relative to the scanner plane.
-2. **Terrace fit** (:mod:`termination.imaging.terraces`): step edges are
-   excluded by a gradient threshold, the remaining pixels are split into
-   terraces by the height histogram of the levelled image, and one common
-   plane with one offset per terrace is fitted. Level, histogram, segment,
-   refit are repeated until the plane stops changing. The common plane is
-   the terrace plane; its tilt is the one that identifies the face.
-3. **Lattice** (:mod:`termination.imaging.fourier`): the terrace-levelled
-   image is Hann-windowed and Fourier transformed; significant peaks are
-   located to sub-pixel precision, the strongest two independent ones span
-   the reciprocal lattice, and every peak it indexes refines it.
-4. **Steps**: the height between each pair of adjacent terraces, from the
-   terrace offsets of stage 2.
+2. **Terrace model** (:mod:`termination.imaging.terraces`): one plane, one
+   offset per terrace, one offset per scan line and, where needed, a smooth
+   background, fitted jointly with step edges, adsorbates, pits and missing
+   pixels masked; levelling, segmentation and fitting repeat until the plane
+   is stable. The common plane is the terrace plane; its tilt is the one
+   that identifies the face.
+3. **Steps**: the height between terraces of adjacent levels, one value per
+   pair of levels.
+4. **Lattice** (:mod:`termination.imaging.fourier`): measured on each of the
+   largest terraces and combined, so that lateral shifts between terraces
+   cannot bias it; optionally corrected for a linear drift.
 
-Readers and calibration live in :mod:`termination.imaging.reading`.
+Readers and calibration live in :mod:`termination.imaging.reading` and
+:mod:`termination.imaging.instruments`.
 """
 
 from __future__ import annotations
@@ -184,9 +184,11 @@ def analyse_heightmap(
     v the variance per pixel of a mean (residual variance times the pixel
     correlation factor, plus the smooth relief left). The y slope also
     carries the trend that the scan-line offsets may hide,
-    :math:`\\sigma_r^2 / \\sum_i (y_i - \\bar y)^2` with :math:`\\sigma_r` their rms.
-    The tilt is taken relative to the scanner plane, which is assumed
-    parallel to the mount face.
+    :math:`\\sigma_r^2 / \\sum_i (y_i - \\bar y)^2` with :math:`\\sigma_r` their rms,
+    and, when a background was fitted, each slope carries its unknowable
+    linear part, :math:`12 \\sigma_B^2 / L^2` (:math:`\\sigma_B` the background's
+    rms height, L the image side). The tilt is taken relative to the scanner
+    plane, which is assumed parallel to the mount face.
 
     *Steps* (:func:`termination.imaging.terraces.terrace_steps`): the
     distance between the parallel planes of adjacent terraces.

@@ -89,6 +89,9 @@ class ImageParameters:
     background_spacing_px : float, default 8
         Node spacing of the smooth background surface, pixels: relief on
         larger scales is background.
+    background_min_relief_angstrom : float, default 0.02
+        A background is fitted only when the smooth relief left without one
+        exceeds this rms height, Å (and ``max_structure_ratio``).
     background_stiffness : float, default 0.03
         Weight of the bending penalty of the background surface, relative
         to the mean number of pixels per node.
@@ -137,6 +140,7 @@ class ImageParameters:
     background: bool = True
     background_spacing_px: float = 8.0
     background_stiffness: float = 0.03
+    background_min_relief_angstrom: float = 0.02
     outlier_sigmas: float = 4.0
     max_nan_fraction: float = MAX_NAN_FRACTION
     lattice_terraces: int = 4
@@ -157,6 +161,7 @@ class ImageParameters:
             "max_relief_fraction",
             "background_spacing_px",
             "background_stiffness",
+            "background_min_relief_angstrom",
         )
         for name in positive:
             v = getattr(self, name)

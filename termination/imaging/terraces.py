@@ -936,7 +936,9 @@ def fit_terraces(
     smooth background B with no constant or linear part, fitted only where
     it is needed: when the residual of the model without it carries more
     smooth relief than ``max_structure_ratio`` times what white noise would
-    leave.
+    leave, and more than ``background_min_relief_angstrom`` rms (less
+    changes a step height by less than that, and a background costs
+    precision).
 
     *Estimator.* Backfitting (alternating least squares): with the line
     offsets and the background fixed, (a, b, c) are the least-squares
@@ -1043,7 +1045,11 @@ def fit_terraces(
         slope, offsets, stats, lines = _refit(zc, fit_labels, n, cc, lines, background, p.line_offsets, 2)
         resid = _residual(zc, fit_labels, cc, slope, offsets, lines, background)
         on = fit_labels > 0
-        needed = surface is not None or _relief(resid, on, structure_s)[0] > p.max_structure_ratio
+        if surface is None:
+            ratio, relief, _ = _relief(resid, on, structure_s)
+            needed = ratio > p.max_structure_ratio and relief > p.background_min_relief_angstrom
+        else:
+            needed = True
         if p.background and needed and solves < _MAX_SURFACE_SOLVES:
             solves += 1
             spacing = _node_spacing(p, factor, zc.shape)
