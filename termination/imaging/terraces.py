@@ -739,8 +739,13 @@ class TerraceFit:
         if len(r) == 0:
             return np.zeros((0, shape[1]), dtype=np.int32)
         rb = np.minimum(np.arange(r.start, r.stop, r.step) // f, self.near_b.shape[0] - 1)
-        cb = np.minimum(np.arange(shape[1]) // f, self.near_b.shape[1] - 1)
-        return self.near_b[np.ix_(rb, cb)]
+        block = self.near_b[rb]
+        if f == 1:
+            return block
+        full = np.repeat(block, f, axis=1)
+        if full.shape[1] >= shape[1]:
+            return full[:, : shape[1]]
+        return np.pad(full, ((0, 0), (0, shape[1] - full.shape[1])), mode="edge")
 
 
 def _residual(
@@ -886,10 +891,9 @@ def _outliers(
     on = labels > 0
     if not on.any():
         return np.zeros(labels.shape, dtype=bool), scale
-    num = ndimage.uniform_filter(np.where(on, resid, 0).astype(np.float32), 3, mode="constant")
-    den = ndimage.uniform_filter(on.astype(np.float32), 3, mode="constant")
-    sm = np.divide(num, den, out=np.zeros_like(num), where=den > 0)
-    del num, den
+    # the residual is zero off the terraces, so near their edges the mean is damped: the mask errs on
+    # the side of keeping pixels there, where the edge mask already works
+    sm = ndimage.uniform_filter(np.where(on, resid, 0).astype(np.float32), 3, mode="constant")
     if scale is None:
         step = max(1, int(math.sqrt(on.sum() / 250_000)))
         scale = _robust_scale(sm[::step, ::step][on[::step, ::step]])
