@@ -973,7 +973,8 @@ def fit_terraces(
     factor = p.bin
     zc, vc, cc = _bin(z, valid, coords, factor)
     # segmentation works on heights relative to their median: single precision then loses nothing
-    zc = zc - float(np.median(zc[vc][:: max(1, int(vc.sum()) // 65_536)]))
+    zref = float(np.median(zc[vc][:: max(1, int(vc.sum()) // 65_536)]))
+    zc = zc - zref
     pxc = (px[0] * factor, px[1] * factor)
     xc, yc = cc
     edge_s = max(p.edge_smooth_px / factor, 0.5)
@@ -1126,8 +1127,8 @@ def fit_terraces(
         labels = _unbin(labels_b.astype(label_type), factor, shape)
         labels[~valid] = 0
     lines = _unbin_rows(lines_b, factor, shape[0]) if p.line_offsets else np.zeros(shape[0])
-    slope, offsets, stats, lines = _refit(z, labels, n, coords, lines, background, p.line_offsets, 1)
-    # robust mask at full resolution, then the final fit
+    offsets = offsets + zref  # the segmentation grid's heights were relative to zref
+    # robust mask at full resolution (with the segmentation grid's model), then the final fit
     full_guard = int(p.edge_guard_px)
     outlier = np.zeros(shape, dtype=bool)
     margin = 4 + full_guard
@@ -1145,9 +1146,7 @@ def fit_terraces(
     n_out = int((outlier & (labels > 0)).sum())
     labels[outlier] = 0
     del outlier
-    counts = np.bincount(labels.ravel(), minlength=n + 1)
-    if np.all(counts[1:] > 0):
-        slope, offsets, stats, lines = _refit(z, labels, n, coords, lines, background, p.line_offsets, 1)
+    slope, offsets, stats, lines = _refit(z, labels, n, coords, lines, background, p.line_offsets, 1)
     fit = TerraceFit(
         labels=labels,
         n=n,

@@ -69,14 +69,17 @@ def realistic_map(size, seed=0):
 
 def bench_time(runs, size):
     z = realistic_map(size)
-    times = []
+    load = os.getloadavg()[0]
+    times, cpu = [], []
     for _ in range(runs):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         r = analyse_heightmap(z, 0.25)
         times.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
     print(
         f"time {size}x{size} with every artifact: median {statistics.median(times):.2f} s over {runs} runs "
-        f"(min {min(times):.2f} s, max {max(times):.2f} s); load average {os.getloadavg()[0]:.1f}"
+        f"(min {min(times):.2f} s, max {max(times):.2f} s; CPU time {statistics.median(cpu):.2f} s); "
+        f"load average {load:.1f} before the runs"
     )
     lat = r.lattice
     print(
