@@ -160,3 +160,24 @@ def test_drift_correction_of_a_rectangular_lattice_fixes_the_shear_only():
 def test_unknown_drift_lattice_type_is_an_error():
     with pytest.raises(ImageError, match="drift_lattice"):
         analyse_heightmap(np.random.default_rng(0).normal(size=(32, 32)), 0.5, drift_lattice="cubic")
+
+
+@pytest.mark.parametrize(
+    "lattice",
+    [(2.5, 4.43, 90.0, 20.0), (2.556, 2.556, 60.0, 15.0)],
+    ids=["rectangular 2.5 x 4.43 (the biased (311) case)", "hexagonal 2.556 (the biased (111) case)"],
+)
+def test_lateral_shifts_between_terraces_do_not_bias_the_lattice(lattice):
+    # issue 14: across three steps the whole-image transform gave b = 4.18 for 4.43 Å and γ = 62° for 60°
+    truth = dict(TRUTH, lattice=lattice, step_heights=[2.08] * 3, step_azimuth_deg=35.0, tilt_deg=2.0)
+    z = synthetic_heightmap(
+        (384, 384), 0.25, seed=0, lateral_shifts=True, meander_angstrom=4.0, **dict(truth, corrugation_angstrom=0.08)
+    )
+    r = analyse_heightmap(z, 0.25)
+    lat = r.lattice
+    a, b = sorted(lattice[:2])
+    gamma = 180.0 - lattice[2] if lattice[2] < 90 else lattice[2]
+    assert lat.terraces >= 2
+    for value, sigma, true in ((lat.a, lat.sigma_a, a), (lat.b, lat.sigma_b, b)):
+        assert abs(value - true) <= SPACING_REL * true and abs(value - true) <= 3 * sigma, lat
+    assert abs(lat.gamma - gamma) <= ANGLE_DEG and abs(lat.gamma - gamma) <= 3 * lat.sigma_gamma, lat
