@@ -554,7 +554,6 @@ def measure_lattice(
     """
     regions = _terrace_regions(fit, flat.shape, p, min_side=32)
     results = []
-    local_notes = []
     for k, (rows, cols) in regions:
         on = keep[rows, cols] & (fit.near(flat.shape, rows)[:, cols] == k)
         sub = np.where(on, flat[rows, cols], 0.0).astype(np.float32)
@@ -567,7 +566,9 @@ def measure_lattice(
         fitted = _fit_basis(*peaks, p, trial) if peaks is not None else None
         if fitted is not None:
             results.append(fitted)
-        local_notes.append(trial)
+    if results and len(results) < len(regions):
+        missed = len(regions) - len(results)
+        notes.append(f"no lattice found on {missed} of the {len(regions)} largest terraces on their own")
     terraces = len(results)
     if results:
         ref = max(results, key=lambda r: r[2])[0]
