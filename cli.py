@@ -37,10 +37,13 @@ from termination.defaults import (
     MAX_MULTIPLE,
     MAX_NAN_FRACTION,
     MIN_STEP_ANGSTROM,
+    SLAB_LAYERS,
+    SLAB_VACUUM_ANGSTROM,
     SPOT_THRESHOLD,
     SYMPREC_ANGSTROM,
     UNIT_RATIO,
 )
+from termination.identification.model import MatchModel
 
 app = typer.Typer(
     add_completion=False,
@@ -143,6 +146,24 @@ Depth = Annotated[
     ),
 ]
 Force = Annotated[bool, typer.Option("--force", help="Overwrite existing output files.")]
+Cell = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--cell",
+        metavar="CELL",
+        help="A cell to consider: Wood notation (2x1, c(2x2), sqrt3xsqrt3R30) or a matrix (2,0,0,1); repeatable.",
+        show_default=False,
+    ),
+]
+SiteWeight = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--site-weight",
+        metavar="SITE=W",
+        help="Imaging weight of one kind of site, by its bonds kept: Ti5c=1 (five-fold Ti); repeatable.",
+        show_default=False,
+    ),
+]
 
 
 # --------------------------------------------------------------------------- errors and rendering
@@ -208,7 +229,7 @@ def render(command: str, record: Any, json_out: bool, wide: bool = False) -> Non
 
     from termination.tables import Table, Text, document, table_width
 
-    console = Console(highlight=False)
+    console = Console(highlight=False, emoji=False)  # a name such as bad:X: is text, not an emoji code
     styles = {"plain": "", "bold": "bold", "dim": "dim", "warning": "yellow"}
     for block in document(record, wide=wide):
         if isinstance(block, Text):
@@ -223,7 +244,7 @@ def render(command: str, record: Any, json_out: bool, wide: bool = False) -> Non
             table.add_row(*row)
         # Never cut a number: a table wider than the terminal is printed at its own width.
         width = max(console.width, table_width(block))
-        Console(highlight=False, width=width).print(table)
+        Console(highlight=False, emoji=False, width=width).print(table)
 
 
 def _triple(values: tuple[int, int, int] | None) -> tuple[int, int, int] | None:
@@ -291,6 +312,15 @@ def planes(
     max_index: MaxIndex = MAX_INDEX,
     mount: Mount = None,
     charge: Charge = None,
+    tilt_window: Annotated[
+        tuple[float, float] | None,
+        typer.Option(
+            "--tilt-window",
+            metavar="MIN MAX",
+            help="With --mount: every variant of every face tilted MIN to MAX degrees, by tilt (cleave planning).",
+            show_default=False,
+        ),
+    ] = None,
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
@@ -301,12 +331,10 @@ def planes(
     from termination.reports import planes_report
 
     crystal = _load(structure, a, x, symprec)
-    render(
-        "planes",
-        planes_report(crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge)),
-        json_out,
-        wide,
+    report = planes_report(
+        crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge), tilt_window=tilt_window
     )
+    render("planes", report, json_out, wide)
 
 
 @command()
@@ -403,6 +431,8 @@ def corrugation(
     ] = True,
     charge: Charge = None,
     max_cell: MaxCell = MAX_CELL,
+    cell: Cell = None,
+    site_weight: SiteWeight = None,
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
@@ -410,19 +440,22 @@ def corrugation(
     wide: Wide = False,
 ) -> None:
     """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
+    from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
     from termination.errors import StructureError
     from termination.reports import corrugation_report
-    from termination.surface.corrugation import Visibility
+    from termination.surface.corrugation import Visibility, parse_site_weights
 
-    crystal = _load(structure, a, x, symprec)
+    cells = check_cells(cell)
     visibility = Visibility(
         visible=visible or None,
         weights=parse_element_values(weight, "--weight", StructureError),
+        site_weights=tuple(parse_site_weights(site_weight).items()),
         decay_length_angstrom=decay_length,
         max_depth_angstrom=depth,
         threshold=threshold,
     )
+    crystal = _load(structure, a, x, symprec)
     report = corrugation_report(
         crystal,
         _require_plane(plane),
@@ -431,6 +464,7 @@ def corrugation(
         reconstructions=reconstructions,
         charges=_charges(charge),
         max_cell=max_cell,
+        cells=cells,
     )
     render("corrugation", report, json_out, wide)
 
@@ -518,12 +552,27 @@ def match(
             show_default=False,
         ),
     ] = None,
+    depth: Depth = None,
+    site_weight: SiteWeight = None,
     charge: Charge = None,
+    mount_sigma: Annotated[
+        float,
+        typer.Option(
+            "--mount-sigma",
+            metavar="DEG",
+            help="How far the sample may sit off its mount face, added in quadrature to the tilt's sigma, degrees.",
+        ),
+    ] = MatchModel().mount_sigma_deg,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
     flat_prior: Annotated[bool, typer.Option("--flat-prior", help="Give every candidate the same prior.")] = False,
     no_reconstructions: Annotated[
         bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")
     ] = False,
     max_cell: MaxCell = MAX_CELL,
+    cell: Cell = None,
     top: Annotated[int, typer.Option("--top", metavar="N", help="Show this many candidates.")] = 10,
     a: LatticeA = None,
     x: FreeX = None,
@@ -532,11 +581,15 @@ def match(
     wide: Wide = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
+    from dataclasses import replace
+
+    from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
-    from termination.errors import MeasurementError
+    from termination.errors import MeasurementError, StructureError
     from termination.identification.likelihood import match as run_match
+    from termination.identification.likelihood import measurement_visibility
     from termination.identification.measurement import Measurement, merge, parse_value, read_measurement, read_steps
-    from termination.identification.model import MatchModel
+    from termination.surface.corrugation import parse_site_weights
 
     if demo:
         from termination.structures import bundled
@@ -568,7 +621,7 @@ def match(
     measured_lines: tuple[str, ...] = ()
     if image_file is None and (pixel_size or z_unit or channel):
         raise MeasurementError("--pixel-size, --z-unit and --channel calibrate an --image FILE; none was given")
-    crystal = _load(structure, a, x, symprec)
+    cells = check_cells(cell)
     if image_file is not None:
         from termination.reports import image_measurement
 
@@ -577,14 +630,27 @@ def match(
                 image_file, pixel_size=pixel_size, z_unit=z_unit, channel=channel, progress=progress
             )
         base = merge(base, from_image)
+    merged = merge(base, given)
+    visibility = measurement_visibility(merged)
+    try:
+        sites = tuple(parse_site_weights(site_weight).items())
+        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=sites)
+    except StructureError as exc:
+        raise MeasurementError(str(exc)) from None
+    crystal = _load(structure, a, x, symprec)
+    rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
+    rules.pop("max_multiple")
     report = run_match(
         crystal,
-        merge(base, given),
+        merged,
         top=top,
-        model=MatchModel(flat_prior=flat_prior),
+        model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
         reconstructions=not no_reconstructions,
         charges=_charges(charge),
         max_cell=max_cell,
+        visibility=visibility,
+        cells=cells,
+        **rules,
     )
     if measured_lines:
         report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
@@ -715,6 +781,268 @@ def image(
             max_nan_fraction=max_nan,
         )
     render("image", report, json_out, wide)
+
+
+def _screen_progress() -> Any:
+    """A rich progress bar on stderr for a screen: structures done, rate and time left."""
+    import contextlib
+
+    from rich.console import Console
+    from rich.progress import (
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        ProgressColumn,
+        TextColumn,
+        TimeElapsedColumn,
+        TimeRemainingColumn,
+    )
+    from rich.text import Text as RichText
+
+    class Rate(ProgressColumn):
+        def render(self, task: Any) -> RichText:
+            speed = task.finished_speed or task.speed
+            return RichText("—/s" if speed is None else f"{speed:.2f}/s")
+
+    @contextlib.contextmanager
+    def bar() -> Any:
+        with Progress(
+            TextColumn("screening"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            Rate(),
+            TimeElapsedColumn(),
+            TextColumn("elapsed,"),
+            TimeRemainingColumn(),
+            TextColumn("left"),
+            console=Console(stderr=True),
+            transient=True,
+        ) as progress:
+            task = progress.add_task("screening", total=None)
+            yield lambda done, total: progress.update(task, completed=done, total=total)
+
+    return bar()
+
+
+def _executor(workers: int | None, scheduler: str | None) -> tuple[Any, int, Any]:
+    """(executor or None, number of workers, thing to close): a Dask client's executor, a process pool, or none."""
+    import os
+
+    from termination.errors import StructureError
+
+    if scheduler is not None:
+        if workers is not None:
+            raise StructureError("give --workers or --scheduler, not both: the cluster has its own workers")
+        import importlib
+
+        try:
+            distributed: Any = importlib.import_module("distributed")  # an optional extra, untyped here
+        except ImportError:
+            raise StructureError("--scheduler needs dask.distributed: pip install 'termination[dask]'") from None
+        try:
+            client = distributed.Client(scheduler, timeout=30)
+        except Exception as exc:
+            raise StructureError(f"cannot reach the Dask scheduler at {scheduler}: {_first_line(exc)}") from None
+        n = max(1, sum(client.nthreads().values()))
+        return client.get_executor(), n, client
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    n = cores if workers is None else workers
+    if not 1 <= n <= 1024:
+        raise StructureError(f"--workers must be from 1 to 1024, got {n}")
+    if n == 1:
+        return None, 1, None
+    from concurrent.futures import ProcessPoolExecutor
+
+    pool = ProcessPoolExecutor(max_workers=n)
+    # Start the workers now, before the progress bar's thread exists (they are forked on POSIX).
+    for f in [pool.submit(os.getpid) for _ in range(n)]:
+        f.result()
+    return pool, n, pool
+
+
+@command()
+@one_line_errors("screen")
+def screen(
+    paths: Annotated[
+        list[str],
+        typer.Argument(
+            metavar="PATHS...",
+            help="Structure files, folders (searched for *.cif, POSCAR*, *.xyz, ...), glob patterns "
+            "(quoted: 'data/*.cif') or prototype specs.",
+            show_default=False,
+        ),
+    ],
+    out: Annotated[
+        str | None,
+        typer.Option(
+            "--out",
+            metavar="FILE",
+            help="Write the rows to FILE.jsonl (JSON Lines) or FILE.csv as they come.",
+            show_default=False,
+        ),
+    ] = None,
+    resume: Annotated[
+        bool, typer.Option("--resume", help="Continue --out: skip the structures already in it.")
+    ] = False,
+    force: Force = False,
+    workers: Annotated[
+        int | None,
+        typer.Option(
+            "--workers", metavar="N", help="Processes on this machine (default: all cores).", show_default=False
+        ),
+    ] = None,
+    scheduler: Annotated[
+        str | None,
+        typer.Option(
+            "--scheduler",
+            metavar="ADDRESS",
+            help="Run on a Dask distributed cluster, e.g. tcp://10.0.0.5:8786 (needs the dask extra).",
+            show_default=False,
+        ),
+    ] = None,
+    chunk_size: Annotated[
+        int | None,
+        typer.Option("--chunk-size", metavar="N", help="Structures per task (default: automatic).", show_default=False),
+    ] = None,
+    max_index: MaxIndex = MAX_INDEX,
+    max_cell: MaxCell = MAX_CELL,
+    pymatgen_charges: Annotated[
+        bool,
+        typer.Option("--pymatgen-charges", help="Ask pymatgen for charges when the file and the guess give none."),
+    ] = False,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
+    symprec: Symprec = SYMPREC_ANGSTROM,
+    json_out: Json = False,
+    wide: Wide = False,
+) -> None:
+    """Screen many structures: cleavage rank, terminations, steps, Tasker types and best cells per face."""
+    import contextlib
+
+    from termination.screening import screen as run_screen
+
+    executor, n, closer = _executor(workers, scheduler)
+    try:
+        with _screen_progress() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+            report = run_screen(
+                paths,
+                out=out,
+                resume=resume,
+                force=force,
+                executor=executor,
+                workers=n,
+                chunk_size=chunk_size,
+                progress=progress,
+                max_index=max_index,
+                max_cell=max_cell,
+                use_pymatgen=pymatgen_charges,
+                symprec=symprec,
+                termination_options=_termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio),
+            )
+    finally:
+        if closer is not None:
+            if hasattr(closer, "shutdown"):
+                closer.shutdown(cancel_futures=True)
+            else:
+                closer.close()
+    render("screen", report, json_out, wide)
+
+
+@command()
+@one_line_errors("slab")
+def slab(
+    structure: Structure,
+    plane: Plane = None,
+    termination: Annotated[
+        str | None,
+        typer.Option(
+            "--termination", metavar="LABEL", help="Top termination: label (SrO) or id (T2).", show_default=False
+        ),
+    ] = None,
+    cell: Annotated[
+        str | None,
+        typer.Option(
+            "--cell",
+            metavar="CELL",
+            help="Reconstruction cell as `polarity` lists it: 2x1, c(2x2), (sqrt3xsqrt3)R30, or its matrix '2 1 0 2'.",
+            show_default=False,
+        ),
+    ] = None,
+    pattern: Annotated[
+        int | None,
+        typer.Option(
+            "--pattern",
+            metavar="N",
+            help="The N-th listed cell (of those matching --cell), best first (default 1).",
+            show_default=False,
+        ),
+    ] = None,
+    layers: Annotated[
+        int, typer.Option("--layers", metavar="N", help="Repeat units (periods d) of the face.")
+    ] = SLAB_LAYERS,
+    vacuum: Annotated[
+        float, typer.Option("--vacuum", metavar="Å", help="Vacuum between the slab and its image, Å.")
+    ] = SLAB_VACUUM_ANGSTROM,
+    symmetric: Annotated[
+        bool, typer.Option("--symmetric", help="The termination (and the pattern) on the bottom too.")
+    ] = False,
+    output: Annotated[
+        str | None,
+        typer.Option(
+            "-o",
+            "--output",
+            metavar="FILE",
+            help="Write the slab with ASE (CIF, POSCAR, extended XYZ, ... by the name).",
+            show_default=False,
+        ),
+    ] = None,
+    fmt: Annotated[
+        str | None,
+        typer.Option("--format", metavar="FMT", help="ASE format name (cif, vasp, extxyz, ...).", show_default=False),
+    ] = None,
+    force: Force = False,
+    charge: Charge = None,
+    max_cell: MaxCell = MAX_CELL,
+    layer_tol: LayerTol = LAYER_TOL_ANGSTROM,
+    bond_factor: BondFactor = BOND_FACTOR,
+    bond_cutoff: BondCutoff = None,
+    unit_ratio: UnitRatio = UNIT_RATIO,
+    a: LatticeA = None,
+    x: FreeX = None,
+    symprec: Symprec = SYMPREC_ANGSTROM,
+    json_out: Json = False,
+    wide: Wide = False,
+) -> None:
+    """A slab of one termination (and reconstruction cell) for a calculation, normal along z."""
+    import os
+
+    from termination.errors import StructureError
+    from termination.reports import slab_report
+
+    if termination is None:
+        raise StructureError("--termination LABEL is required (see `termination terminations`)")
+    hkl = _require_plane(plane)
+    crystal = _load(structure, a, x, symprec)
+    report = slab_report(
+        crystal,
+        hkl,
+        termination,
+        cell=cell,
+        pattern=pattern,
+        layers=layers,
+        vacuum_angstrom=vacuum,
+        symmetric=symmetric,
+        charges=_charges(charge),
+        max_cell=max_cell,
+        out=output,
+        fmt=fmt,
+        force=force,
+        inputs=[structure] if os.path.exists(structure) else [],
+        termination_options=_termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio),
+    )
+    render("slab", report, json_out, wide)
 
 
 # --------------------------------------------------------------------------- entry point

@@ -37,6 +37,8 @@ _LAZY = {
     "surface.corrugation": ("Visibility", "CorrugationPattern", "supercell_corrugation", "termination_corrugation"),
     "surface.reconstructions": ("Reconstruction", "reconstructions"),
     "surface.polarity": ("termination_polarity",),
+    "surface.slab": ("build_slab", "describe_slab"),
+    "screening": ("screen",),
     "identification.measurement": (
         "Measurement",
         "Value",

@@ -187,6 +187,8 @@ def _planes(r: Any, wide: bool) -> list[Block]:
     if wide:
         cols += ["area (Å²)"]
     cols += ["terms", "step (Å)", "polar"]
+    if r.tilt_window is not None:
+        return out + _window(r, wide)
     rows = []
     for f in r.faces:
         row = [hkl_text(f.hkl)]
@@ -287,6 +289,12 @@ def compensation_text(t: Any) -> str:
     return f"{verb} {fraction_text(t.compensation)} ({t.site_label} {kind})"
 
 
+def changed_text(rc: Any) -> str:
+    """'3 of 4 Na + 1 of 4 Cl' for the sites a reconstruction cell changes in each layer (per cell)."""
+    parts = [f"{k} of {n} {label}" for label, n, k in zip(rc.layer_labels, rc.layer_sites, rc.layer_changed) if k]
+    return " + ".join(parts) + (" added" if rc.mode == "add" else "")
+
+
 def _polarity(r: Any, wide: bool) -> list[Block]:
     out = _structure(r.structure)
     q = r.charges
@@ -298,12 +306,14 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
         cols: list[str | tuple[str, str]] = ["id", ("label", "left"), "Tasker"]
         if wide:
             cols += [("layer charges (e, top first)", "left"), "μ/A (e/Å)"]
-        cols += ["Δq (e)", ("compensation", "left"), ("cells, best first", "left")]
+        cols += ["Δq (e)", ("compensation", "left"), ("best cell", "left")]
         rows = []
         for t in f.terminations:
-            cells = ", ".join(rc.wood or _matrix(rc.matrix) for rc in t.reconstructions[:2])
-            if len(t.reconstructions) > 2:
-                cells += f", +{len(t.reconstructions) - 2}"
+            cells = t.reconstructions[0].label if t.reconstructions else ""
+            if len(t.reconstructions) > 1:
+                cells += f", +{len(t.reconstructions) - 1}"
+            if t.reconstructions and not t.reconstructions[0].exact:
+                cells = "nearest: " + cells
             row = [t.id, t.label, t.tasker_type]
             if wide:
                 row += [" ".join(_charge(la.charge) for la in t.layers), f"{t.dipole_per_area:+.4f}"]
@@ -321,24 +331,16 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
         for t in f.terminations:
             if not t.reconstructions:
                 continue
-            rrows = [
-                [
-                    rc.wood or "—",
-                    _matrix(rc.matrix),
-                    str(rc.sites),
-                    f"{rc.changed} ({rc.mode})",
-                    str(rc.patterns),
-                    f"{rc.score:.3f}",
-                ]
-                for rc in t.reconstructions[:shown]
-            ]
-            out.append(
-                _table(
-                    f"{hkl_text(f.hkl)} {t.id} {t.label}: cells that {compensation_text(t)}",
-                    [("cell", "left"), "matrix", "sites", "changed", "patterns", "eV/site"],
-                    rrows,
-                )
-            )
+            exact = t.reconstructions[0].exact
+            rrows = []
+            for rc in t.reconstructions[:shown]:
+                row = [rc.name, _matrix(rc.matrix), changed_text(rc), str(len(rc.domains)), str(rc.patterns)]
+                row += [f"{rc.score:.3f}"] + ([] if exact else [f"{rc.residual_charge:+.3f}"])
+                rrows.append(row)
+            rcols: list[str | tuple[str, str]] = [("cell", "left"), "matrix", ("changed", "left"), "domains"]
+            rcols += ["patterns", "eV/cell"] + ([] if exact else ["residual (e)"])
+            what = "cells that" if exact else "nearest cells to"
+            out.append(_table(f"{hkl_text(f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", rcols, rrows))
             if len(t.reconstructions) > shown:
                 out.append(
                     Text(f"{len(t.reconstructions) - shown} more cells up to index {r.max_cell} in --json.", "dim")
@@ -346,7 +348,8 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
     out.append(
         Text(
             "Δq = μ/d: the charge per cell the top layer must gain (> 0) or lose (< 0), μ = Σ q z over the "
-            f"repeat unit. Patterns ranked by the {r.criterion}.",
+            "repeat unit; the top two layers (or units) may give it. Patterns ranked by the "
+            f"{r.criterion}; residual: the part of Δq per 1×1 cell a nearest cell does not supply.",
             "dim",
         )
     )
@@ -373,6 +376,9 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
     weights = ", ".join(f"{el}={w:g}" for el, w in v.weights)
     seen = "all species" if v.visible is None else "only " + ", ".join(v.visible)
     depth = "top unit" if v.max_depth_angstrom is None else f"down to {v.max_depth_angstrom:g} Å"
+    sites = ", ".join(f"{key}={w:g}" for key, w in v.site_weights)
+    if sites:
+        weights = f"{weights}, {sites}" if weights else sites
     out.append(Text(f"Face {hkl_text(r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
     out.append(
         Text(
@@ -391,48 +397,75 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
         "maxima (Å)",
     ]
     if wide:
-        cols += ["row spacings (Å)", "row angles (°)"]
+        cols += ["row spacings (Å)", "row angles (°)", "matrix"]
     rows = []
     for t in r.terminations:
-        for p in (t, *t.reconstructions):
+        for p in (t, *t.reconstructions, *t.cells):
             lat = p.apparent_lattice
             row = [
                 t.id if p is t else "",
                 t.label if p is t else "",
-                p.cell or "1×1",
+                (p.cell or "1×1") + (" (given)" if any(p is c for c in t.cells) else ""),
                 length_text(lat.a),
                 length_text(lat.b),
                 f"{lat.gamma:.1f}",
-                p.lattice_type,
+                p.lattice_type.replace("centred rectangular", "centred rect."),  # fits 80 columns
                 length_text(p.neighbour_distance),
             ]
             if wide:
                 row += [
                     " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
                     " ".join(f"{a:.0f}" for a in p.row_angles) or "—",
+                    "—" if p.matrix is None else _matrix(p.matrix),
                 ]
             rows.append(row)
-    out.append(_table("Apparent lattice per termination (dual of the visible spots)", cols, rows))
+    out.append(_table("Apparent lattice per termination (dual of the visible spots; one domain)", cols, rows))
     spots = []
     for t in r.terminations:
-        # Two shells of the 1×1 pattern, the first (fractional-order) shell of each reconstruction.
-        for p in (t, *t.reconstructions):
+        # Two shells of the 1×1 pattern, the first (fractional-order) shell of each cell.
+        for p in (t, *t.reconstructions, *t.cells):
             shells = sorted({round(s.length, 6) for s in p.spots})[: 2 if p is t else 1]
             for s in p.spots:
                 if round(s.length, 6) in shells:
-                    spots.append([t.id, p.cell or "1×1", spot_text(s.g), f"{s.length:.4f}", f"{s.intensity:.3f}"])
-    out.append(_table("Lowest-order visible spots", ["id", ("cell", "left"), "(h k)", "|G| (1/Å)", "|F|/F(0)"], spots))
+                    spots.append(
+                        [
+                            t.id,
+                            p.cell or "1×1",
+                            spot_text(s.g),
+                            f"{s.length:.4f}",
+                            f"{s.intensity:.3f}",
+                            f"{s.domains}/{len(p.domains)}" if p.domains else "—",
+                        ]
+                    )
+    out.append(
+        _table(
+            "Lowest-order visible spots (of all domains)",
+            ["id", ("cell", "left"), "(h k)", "|G| (1/Å)", "|F|/F(0)", "domains"],
+            spots,
+        )
+    )
+    for t in r.terminations:
+        for p in (*t.reconstructions, *t.cells):
+            if len(p.domains) > 1 and p.domain_lattice is not None:
+                out.append(
+                    Text(
+                        f"{t.id} {p.cell}: {len(p.domains)} domains superposed ({', '.join(p.domains)}); "
+                        f"their spots together: {lattice_text(p.domain_lattice)}."
+                    )
+                )
     for note in r.notes:
         out.append(Text(note, "dim"))
     out.append(
         Text(
             "|G| without the factor 2π. A geometric model: which species images at a given bias is not "
-            "predicted; try --visible and --weight. --json lists every spot.",
+            "predicted; try --visible and --weight. A given cell (--cell) brightens one 1×1 cell per cell; "
+            "+Cl: the cell takes Cl from the layer below too. domains: how many of a cell's rotational "
+            "domains show the spot. --json lists every spot.",
             "dim",
         )
     )
     if not wide:
-        out.append(Text("--wide adds the row spacings and row angles.", "dim"))
+        out.append(Text("--wide adds the row spacings, row angles and cell matrices.", "dim"))
     return out + _caution(r.structure)
 
 
@@ -620,6 +653,179 @@ def _image(r: Any, wide: bool) -> list[Block]:
     return out
 
 
+def _window(r: Any, wide: bool) -> list[Block]:
+    """The cleave-planning table of ``planes --tilt-window``: every variant inside the window, by tilt."""
+    lo, hi = r.tilt_window
+    cols: list[str | tuple[str, str]] = ["tilt (°)", ("variant", "left"), ("axis", "left"), ("face", "left"), "d (Å)"]
+    cols += ["cleave rank", "polar"]
+    if wide:
+        cols += ["bonds/nm²"]
+    rows = []
+    for w in r.window:
+        row = [
+            f"{w.tilt:.2f}",
+            hkl_text(w.tilt_variant),
+            "—" if w.tilt_axis is None else uvw_text(w.tilt_axis),
+            hkl_text(w.hkl),
+            f"{w.d:.4f}",
+            str(w.cleavage_rank),
+            "—" if w.polar is None else ("yes" if w.polar else "no"),
+        ]
+        if wide:
+            row += [f"{w.weighted_bonds_per_nm2:.2f}"]
+        rows.append(row)
+    title = f"Faces {lo:g}° to {hi:g}° from the mount {hkl_text(r.mount)}, up to index {r.max_index}, by tilt"
+    out: list[Block] = []
+    if rows:
+        out.append(_table(title, cols, rows))
+    else:
+        out.append(Text(f"{title}: none.", "bold"))
+    out.append(
+        Text(
+            "Every variant of every face in the window, with the axis [uvw] that tilts the mount onto it. "
+            "cleave rank: 1 = the face whose cheapest cut breaks the fewest bonds per area "
+            f"(among the {len(r.faces)} faces up to index {r.max_index}).",
+            "dim",
+        )
+    )
+    if r.charges is None:
+        out.append(Text("polar: unknown without formal charges; give --charge EL=Q.", "dim"))
+    else:
+        out.append(Text(f"Charges {r.charges.text} ({r.charges.method}).", "dim"))
+    if not wide:
+        out.append(Text("--wide adds the weighted broken-bond density; --json everything.", "dim"))
+    out.append(Text(SAFETY_NOTE, "dim"))
+    return out + _caution(r.structure)
+
+
+def _screen(r: Any, wide: bool) -> list[Block]:
+    per = r.wall_time / r.screened if r.screened else 0.0
+    runner = f"{r.workers} worker{'s' if r.workers != 1 else ''}"
+    out: list[Block] = [
+        Text(
+            f"Screened {r.screened} of {r.structures} structures ({r.skipped} already in the output), "
+            f"{r.failed} failed: {r.rows} rows, faces up to index {r.max_index}.",
+            "bold",
+        ),
+        Text(f"{r.wall_time:.1f} s with {runner}: {per:.3f} s per structure.", "dim"),
+    ]
+    good = [row for row in r.results if row.error is None]
+    cols: list[str | tuple[str, str]] = [("face", "left"), "rank", "terms", "step (Å)", "polar", ("Tasker", "left")]
+    cols += [("best cell", "left")]
+    if wide:
+        cols += ["d (Å)", "bonds/nm²", ("compensation", "left")]
+    groups: dict[str, list[Any]] = {}
+    for row in good:
+        groups.setdefault(row.structure, []).append(row)
+    for name, members in groups.items():
+        rows = []
+        for row in members:
+            tasker = "/".join(t.tasker_type or "—" for t in row.terminations) if row.polar is not None else "—"
+            line = [
+                hkl_text(row.hkl),
+                str(row.cleavage_rank),
+                str(row.termination_count),
+                f"{row.smallest_step:.3f}",
+                "—" if row.polar is None else ("yes" if row.polar else "no"),
+                tasker,
+                "/".join(t.cell for t in row.terminations if t.cell) or "—",
+            ]
+            if wide:
+                comp = ", ".join("—" if t.compensation is None else _signed(t.compensation) for t in row.terminations)
+                line += [f"{row.d:.4f}", f"{row.weighted_bonds_per_nm2:.2f}", comp if row.polar is not None else "—"]
+            rows.append(line)
+        first = members[0]
+        title = f"{name}: {first.formula}, space group {first.spacegroup_number}"
+        out.append(_table(title, cols, rows))
+        if wide:
+            out.append(Text(f"Charges {first.formal_charges or 'unknown'}.", "dim"))
+    if good:
+        out.append(
+            Text(
+                "rank 1 cleaves most easily (fewest broken bonds per area); Tasker type of each inequivalent "
+                "termination, '/'-separated; best cell: the best compensating cell of each polar termination.",
+                "dim",
+            )
+        )
+    for row in r.results:
+        if row.error is not None:
+            out.append(Text(f"{row.structure}: error: {row.error}", "warning"))
+    if r.out is not None:
+        out.append(Text(f"Rows in {r.out} ({'JSON Lines' if r.format == 'jsonl' else 'CSV'})."))
+    elif good and not wide:
+        out.append(Text("--wide adds d, bond density, compensation and charges; --out FILE writes every row.", "dim"))
+    return out
+
+
+def _dipole(value: float, digits: int) -> str:
+    return "0" if abs(value) < 0.5 * 10.0**-digits else f"{value:+.{digits}f}"
+
+
+def _signed(f: float) -> str:
+    return "0" if f == 0 else ("-" if f < 0 else "+") + fraction_text(f)
+
+
+def _excess_text(excess: Any) -> str:
+    return " ".join(f"{el}{v:+g}" for el, v in excess.items())
+
+
+def _slab(r: Any, wide: bool) -> list[Block]:
+    out = _structure(r.structure)
+    s = r.slab
+    sides = "top and bottom" if r.requested_symmetric else "top"
+    cell = "1×1" if r.cell is None else f"{r.cell}, {r.changed} site{'s' if r.changed != 1 else ''} {r.mode}d per side"
+    out.append(
+        Text(
+            f"Slab of {hkl_text(r.hkl)}: {r.termination.label} ({r.termination.id}) on {sides}, {r.layers} repeat "
+            f"unit{'s' if r.layers != 1 else ''}, cell {cell}",
+            "bold",
+        )
+    )
+    a, b, c = s.lattice
+    out.append(
+        Text(
+            f"cell a = ({a[0]:.4f}, {a[1]:.4f}, 0), b = ({b[0]:.4f}, {b[1]:.4f}, 0), c = (0, 0, {c[2]:.4f}) Å; "
+            f"{s.natoms} atoms; thickness {s.thickness:.3f} Å, vacuum {s.vacuum:.3f} Å"
+        )
+    )
+    units = f"{s.bulk_units:g}"
+    if s.stoichiometric:
+        out.append(Text(f"Stoichiometric: {composition_label(s.composition)} = {units} bulk formula units."))
+    else:
+        out.append(
+            Text(
+                f"Not stoichiometric: {composition_label(s.composition)} = {units} bulk formula units "
+                f"{_excess_text(s.excess)}."
+            )
+        )
+    if s.charge is None:
+        out.append(Text("Dipole: unknown without formal charges (give --charge EL=Q).", "dim"))
+    else:
+        out.append(
+            Text(
+                f"Formal charges {r.charges.text}: net charge {_charge(s.charge)} e, dipole {_dipole(s.dipole, 4)} e·Å "
+                f"per cell ({_dipole(s.dipole_per_area, 5)} e/Å) along the outward normal of the top."
+            )
+        )
+    out.append(
+        Text(
+            "Symmetric: yes, an operation of the slab maps its top onto its bottom."
+            if s.symmetric
+            else "Symmetric: no."
+        )
+    )
+    shown = len(s.layers) if wide else min(len(s.layers), 12)
+    rows = [[f"{la.z:.4f}", composition_label(la.composition)] for la in s.layers[:shown]]
+    out.append(_table("Layers, top first", ["z (Å)", ("atoms per cell", "left")], rows))
+    if shown < len(s.layers):
+        out.append(Text(f"{len(s.layers) - shown} more layers with --wide or --json.", "dim"))
+    for note in r.notes:
+        out.append(Text(f"Note: {note}.", "dim"))
+    for path in r.written:
+        out.append(Text(f"Wrote {path} ({r.format})."))
+    return out + _caution(r.structure)
+
+
 _RENDERERS = {
     "StructuresReport": _structures,
     "PlanesReport": _planes,
@@ -628,6 +834,8 @@ _RENDERERS = {
     "CorrugationReport": _corrugation,
     "MatchReport": _match,
     "ImageReport": _image,
+    "ScreenReport": _screen,
+    "SlabReport": _slab,
 }
 
 

@@ -21,7 +21,15 @@ from termination.errors import ImageError
 from termination.identification.measurement import Measurement, Value
 from termination.imaging.reading import parse_pixel_size
 
-__all__ = ["pa3_structure", "random_rotation", "reciprocal_shell", "synthetic_heightmap", "synthetic_measurement"]
+__all__ = [
+    "calibration",
+    "geometric_measurement",
+    "pa3_structure",
+    "random_rotation",
+    "reciprocal_shell",
+    "synthetic_heightmap",
+    "synthetic_measurement",
+]
 
 
 def reciprocal_shell(a, b, gamma_deg, direction_deg=0.0):
@@ -381,6 +389,92 @@ def synthetic_measurement(
                 j = int(rng.choice(len(w), p=w))
                 steps.append(Value(abs(noisy(c.step_heights[j], step_sigma, model.model_rel)) or 0.01, step_sigma))
     return Measurement(mount=table.mount, tilt=tilt, row_angle=row_angle, spacings=tuple(spacings), steps=tuple(steps))
+
+
+def geometric_measurement(
+    crystal,
+    hkl,
+    mount,
+    rng,
+    *,
+    tilt_sigma_deg=2.0,
+    step_rel=0.05,
+    n_steps=3,
+    lattice=True,
+    spacing_rel=0.02,
+    row_angle_sigma_deg=2.0,
+    termination=None,
+    visibility=None,
+):
+    """A measurement of the face ``hkl`` made from plain geometry, not from the identification model.
+
+    For calibration checks that do not share the model's assumptions: the tilt
+    of a random upward-facing variant of the face plus Gaussian noise; steps at
+    whole multiples of the plane spacing d (n = 1 twice as often as 2 or 3)
+    with relative noise ``step_rel``; with ``lattice``, the two reduced
+    lengths and the angle of the apparent lattice of one termination (default:
+    a random one; :func:`termination.surface.corrugation.termination_corrugation`)
+    with relative and angular noise.  The stated sigmas are the true ones.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    hkl : 3 ints
+    mount : 3 ints
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    Measurement
+    """
+    from termination.surface.corrugation import termination_corrugation
+    from termination.surface.faces import face_geometry, variant_tilts
+    from termination.surface.terminations import face_terminations
+
+    face = face_geometry(crystal, hkl)
+    angles = variant_tilts(crystal, face.variants, mount)
+    up = angles[angles <= 90.0 + 1e-6]
+    tilt = float(np.clip(rng.choice(up) + rng.normal() * tilt_sigma_deg, 0.0, 90.0))
+    multiples = rng.choice([1, 1, 2, 3], size=n_steps)
+    steps = tuple(Value(float(n * face.d * (1 + step_rel * rng.normal())), step_rel * n * face.d) for n in multiples)
+    spacings, row_angle = (), None
+    if lattice:
+        ft = face_terminations(crystal, hkl, face=face)
+        keys = [t.id for t in ft.terminations if t.equivalent_to is None]
+        key = termination if termination is not None else str(rng.choice(keys))
+        lat = termination_corrugation(ft, key, visibility).apparent_lattice
+        if np.isfinite(lat.a) and np.isfinite(lat.b):
+            spacings = tuple(
+                Value(float(x * (1 + spacing_rel * rng.normal())), spacing_rel * x) for x in (lat.a, lat.b)
+            )
+            row_angle = Value(float(lat.gamma + row_angle_sigma_deg * rng.normal()), row_angle_sigma_deg)
+    return Measurement(
+        mount=tuple(mount), tilt=Value(tilt, tilt_sigma_deg), spacings=spacings, row_angle=row_angle, steps=steps
+    )
+
+
+def calibration(probabilities, hits, bins=10):
+    """Expected calibration error and the (confidence, hit rate, count) of each probability bin.
+
+    ECE = sum_b (n_b / N) |hit rate_b - mean probability_b| over equal-width bins of the
+    top probability (common practice in the assessment of probabilistic classifiers).
+
+    >>> round(calibration([0.9, 0.9, 0.6, 0.6], [True, True, True, False])[0], 3)
+    0.1
+    """
+    p = np.asarray(probabilities, float)
+    h = np.asarray(hits, float)
+    edges = np.linspace(0.0, 1.0, bins + 1)
+    which = np.clip(np.digitize(p, edges[1:-1]), 0, bins - 1)
+    table = []
+    ece = 0.0
+    for b in range(bins):
+        sel = which == b
+        if sel.any():
+            conf, rate = float(p[sel].mean()), float(h[sel].mean())
+            table.append((conf, rate, int(sel.sum())))
+            ece += sel.mean() * abs(rate - conf)
+    return float(ece), table
 
 
 # --------------------------------------------------------------------------- structures

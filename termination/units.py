@@ -23,6 +23,7 @@ __all__ = [
     "E_PER_ANGSTROM",
     "PER_ANGSTROM",
     "PER_NM2",
+    "SECOND",
     "SUFFIXES",
     "E",
     "json_key",
@@ -51,6 +52,8 @@ E_PER_ANGSTROM: Final = _unit("e_per_angstrom")
 EV: Final = _unit("ev")
 #: Areal density, 1/nm².
 PER_NM2: Final = _unit("per_nm2")
+#: Time, seconds.
+SECOND: Final = _unit("s")
 
 #: JSON key suffix of each unit, with what it means.
 SUFFIXES: Final = MappingProxyType(
@@ -64,6 +67,7 @@ SUFFIXES: Final = MappingProxyType(
         "e_per_angstrom": ("_e_per_angstrom", "dipole per area in e/Å"),
         "ev": ("_ev", "energy in eV"),
         "per_nm2": ("_per_nm2", "areal density in 1/nm²"),
+        "s": ("_s", "time in seconds"),
     }
 )
 

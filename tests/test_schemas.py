@@ -20,19 +20,30 @@ RUNS = {
     "planes": [
         ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1"],
         ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1"],
+        ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1", "--tilt-window", "0", "60"],
     ],
     "terminations": [
         ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
         ["terminations", "hexaboride:La,B", "--plane", "0", "0", "1"],
     ],
-    "polarity": [["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"]],
+    "polarity": [
+        ["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"],
+        ["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "4"],
+    ],
     "corrugation": [
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--weight", "Na=0.5"],
+        ["corrugation", "diamond:Si", "--plane", "0", "0", "1", "--cell", "2x1", "--site-weight", "Si3c=0.5"],
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na"],
+    ],
+    "screen": [["screen", "rocksalt:Na,Cl", "half-heusler:Ti,Ni,Sn", "bad:Xx", "--max-index", "1", "--workers", "1"]],
+    "slab": [
+        ["slab", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--termination", "Na", "--cell", "2x1", "--symmetric"],
+        ["slab", "half-heusler:Ti,Ni,Sn", "--plane", "0", "0", "1", "--termination", "T1", "--layers", "2"],
     ],
     "match": [
         ["match", "--demo"],
         ["match", "perovskite:Sr,Ti,O", "--mount", "0", "0", "1", "--tilt", "1+-1", "--step", "1.95", "--top", "3"],
+        ["match", "diamond:Si", "--spacing", "7.68", "--cell", "2x1", "--depth", "2", "--top", "3"],
     ],
 }
 
@@ -132,6 +143,7 @@ DIMENSIONLESS = {
     "nan_fraction",
     "outlier_fraction",
     "fitted_fraction",
+    "bulk_units",
 }
 # Records whose numbers are all dimensionless (log-likelihood terms; drift shear and stretch).
 DIMENSIONLESS_RECORDS = {"Terms", "DriftCorrection"}

@@ -40,6 +40,7 @@ from pathlib import Path
 
 from termination.defaults import MAX_LENGTH_ANGSTROM
 from termination.errors import MeasurementError
+from termination.inputs import read_input_text
 from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
 from termination.units import ANGSTROM, DEG
@@ -66,6 +67,8 @@ _BARE_KEY_RE = re.compile(r"^[A-Za-z0-9_-]+$")
 MAX_VALUES = 10_000
 #: Largest accepted uncertainty of a measured value (Å or degrees).
 SIGMA_LIMIT = 1000.0
+#: Largest measurement file or step list read, bytes.
+MAX_FILE_BYTES = 1024 * 1024
 
 _TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "visibility"}
 _VISIBILITY_KEYS = {"visible", "weights", "decay_length"}
@@ -371,16 +374,13 @@ def read_measurement(path):
         value of the wrong type, NaN, a negative sigma or a (0 0 0) mount.
     """
     path = Path(path)
+    text = read_input_text(path, what="measurement file", error=MeasurementError, max_bytes=MAX_FILE_BYTES)
     try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise MeasurementError(f"cannot read measurement file {str(path)!r}: {exc.strerror}") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise MeasurementError(f"{path}: not a UTF-8 text file") from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise MeasurementError(f"{path}: malformed TOML: {exc}") from None
+    except RecursionError:
+        raise MeasurementError(f"{path}: malformed TOML: nested too deeply") from None
     return _measurement_from_dict(data, str(path))
 
 
@@ -528,13 +528,13 @@ def read_steps(path):
         number, a negative sigma or a line with more than two columns.
     """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = getattr(exc, "strerror", None) or "not a UTF-8 text file"
-        raise MeasurementError(f"cannot read step list {str(path)!r}: {reason}") from None
+    text = read_input_text(path, what="step list", error=MeasurementError, max_bytes=MAX_FILE_BYTES)
+    lines = text.splitlines()
+    values = sum(1 for line in lines if line.split("#", 1)[0].strip())
+    if values > MAX_VALUES:
+        raise MeasurementError(f"{path}: {values} step heights; at most {MAX_VALUES} are matched")
     steps = []
-    for lineno, line in enumerate(text.splitlines(), 1):
+    for lineno, line in enumerate(lines, 1):
         body = line.split("#", 1)[0].strip()
         if not body:
             continue

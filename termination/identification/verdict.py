@@ -71,8 +71,12 @@ def same_predictions(a: Candidate, b: Candidate, *, labels: bool = True) -> bool
     return _rounded(a.step_heights, 0.01) == _rounded(b.step_heights, 0.01)
 
 
-def separating_measurement(a: Candidate, b: Candidate) -> str:
-    """What to measure to tell candidate ``a`` from ``b``, in words."""
+def separating_measurement(a: Candidate, b: Candidate, others: Sequence[Candidate] = ()) -> str:
+    """What to measure to tell candidate ``a`` from ``b``, in words.
+
+    ``others`` are the remaining candidates: a mixed surface of the two
+    terminations among them gives the step that joins their terraces.
+    """
     out = []
     if a.tilts and b.tilts:
         ta = min(a.tilts)
@@ -95,18 +99,25 @@ def separating_measurement(a: Candidate, b: Candidate) -> str:
     only = [h for h in heights_a if all(abs(h - g) > 0.02 * h for g in heights_b)]
     only_b = [h for h in heights_b if all(abs(h - g) > 0.02 * h for g in heights_a)]
     if a.hkl == b.hkl and a.classes != b.classes:
-        deltas = [h for h in (only or only_b) if h < a.d]
-        if deltas:
-            out.append(f"a step of {min(deltas):.2f} Å between their terraces")
-        else:
-            cross = [h for h, lo, up in zip(a.step_heights, a.step_lower_id, a.step_upper_id) if lo != up]
-            if cross:
-                out.append(f"a step of {min(cross):.2f} Å between their terraces")
+        ids = {m for members in a.members + b.members for m in members}
+        cross = [
+            h
+            for c in (a, b, *others)
+            if c.hkl == a.hkl and c.cell is None
+            for h, lo, up in zip(c.step_heights, c.step_lower_id, c.step_upper_id)
+            if lo in ids and up in ids and _class_of(c, lo) != _class_of(c, up)
+        ]
+        if cross:
+            out.append(f"a step of {min(cross):.2f} Å between their terraces")
         out.append("which species images (STM contrast at both bias polarities; --visible)")
     elif only or only_b:
         h, owner = (min(only), _short_c(a)) if only else (min(only_b), _short_c(b))
         out.append(f"a step of {h:.2f} Å (allowed on {owner} only)")
     return "; ".join(dict.fromkeys(out)) or "a second spacing or more step heights"
+
+
+def _class_of(c: Candidate, termination_id: str) -> int:
+    return next(i for i, members in enumerate(c.members) if termination_id in members)
 
 
 def _short_c(c: Candidate) -> str:
@@ -186,6 +197,6 @@ def verdict(
     if runner.probability > 0 and best.probability / runner.probability < 2.0:
         warning = (
             f"Ambiguous: the runner-up {_short(runner)} is within a factor of 2 (p = {runner.probability:.2f}); "
-            f"to separate them measure {separating_measurement(cbest, crunner)}."
+            f"to separate them measure {separating_measurement(cbest, crunner, candidates)}."
         )
     return Verdict(text, decided, warning)

@@ -27,12 +27,14 @@ from termination.units import ANGSTROM, ANGSTROM2, DEG
 
 __all__ = [
     "Face",
+    "FaceVariant",
     "Mesh",
     "distinct_faces",
     "face_geometry",
     "face_variants",
     "interplanar_angle",
     "tilt_to_mount",
+    "tilt_window",
     "variant_tilts",
 ]
 
@@ -294,12 +296,15 @@ def tilt_to_mount(
     best = order[0]
     tilt = float(angles[best])
     variant = rows[best]
-    axis: HKL | None = None
-    if tilt > ANGLE_EPS_DEG:
-        axis = hkl_tuple(primitive_index(np.cross(np.asarray(m, dtype=np.int64), np.asarray(variant, dtype=np.int64))))
-        if not any(axis):  # antiparallel: any axis in the plane will do
-            axis = None
-    return tilt, variant, axis
+    return tilt, variant, _rotation_axis(m, variant, tilt)
+
+
+def _rotation_axis(mount: HKL, variant: HKL, tilt: float) -> HKL | None:
+    """Direct-lattice axis [uvw] = mount x variant (index space), None for no tilt or an antiparallel pair."""
+    if tilt <= ANGLE_EPS_DEG:
+        return None
+    axis = hkl_tuple(primitive_index(np.cross(np.asarray(mount, dtype=np.int64), np.asarray(variant, dtype=np.int64))))
+    return axis if any(axis) else None  # antiparallel: any axis in the plane will do
 
 
 def distinct_faces(
@@ -347,3 +352,87 @@ def distinct_faces(
         faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount_hkl))
     faces.sort(key=lambda f: (sum(x * x for x in f.hkl), _choice_key(f.hkl)))
     return tuple(faces)
+
+
+@dataclass(frozen=True)
+class FaceVariant:
+    """One symmetry variant of a face at its tilt to the mount face.
+
+    ``hkl`` is the face (its representative, as :func:`distinct_faces` gives
+    it), ``tilt_variant`` the equivalent index (hkl)' whose plane is inclined
+    by ``tilt`` to the mount face, ``tilt_axis`` the direct-lattice direction
+    [uvw] of the rotation taking the mount normal onto the variant's normal
+    (None when the two are parallel or antiparallel).
+    """
+
+    hkl: HKL
+    tilt_variant: HKL
+    tilt: float = field(metadata=DEG)
+    tilt_axis: HKL | None
+
+
+def tilt_window(
+    crystal: Crystal,
+    mount: Iterable[SupportsFloat],
+    min_tilt_deg: float,
+    max_tilt_deg: float,
+    *,
+    max_index: int = MAX_INDEX,
+    faces: Sequence[Face] | None = None,
+) -> tuple[FaceVariant, ...]:
+    """Every variant of every face whose tilt to the mount face lies in [min, max], sorted by tilt.
+
+    Parameters
+    ----------
+    crystal : Crystal
+    mount : 3 ints
+        Face the crystal is mounted on.
+    min_tilt_deg, max_tilt_deg : float
+        The window, degrees, 0 <= min <= max <= 180.
+    max_index : int
+        Faces up to this index (ignored when ``faces`` is given).
+    faces : sequence of Face, optional
+        Faces to take the variants from (default :func:`distinct_faces`).
+
+    Returns
+    -------
+    tuple of FaceVariant
+        Sorted by tilt, then by the face's order in ``faces``, then by the
+        preferred index form.  A face appears once per variant in the
+        window, so one face may appear at several tilts: from (0 0 1) the
+        (1 1 3) of a cubic crystal lies at 25.2° ((1 1 3), (-1 1 3), ...)
+        and at 72.5° ((3 1 1), (1 3 1), ...).
+
+    Notes
+    -----
+    cos phi = G_v . G_m / (|G_v| |G_m|) with G = h B, B the reciprocal rows
+    (:func:`variant_tilts`); the axis is mount x variant in index space,
+    which is a direct-lattice vector because b_i x b_j = (a_k / V) for the
+    reciprocal basis.
+
+    Examples
+    --------
+    >>> from termination.structures import build_prototype
+    >>> c = build_prototype("rocksalt:Na,Cl", a=5.64)
+    >>> rows = tilt_window(c, (0, 0, 1), 72.0, 73.0, max_index=3)
+    >>> sorted({r.hkl for r in rows}), round(rows[0].tilt, 1), len(rows)
+    ([(1, 1, 3)], 72.5, 8)
+    """
+    m = check_hkl(mount, "mount")
+    lo, hi = float(min_tilt_deg), float(max_tilt_deg)
+    if not (np.isfinite(lo) and np.isfinite(hi) and 0.0 <= lo <= hi <= 180.0):
+        raise PlaneError(
+            f"tilt window must satisfy 0 <= MIN <= MAX <= 180 degrees, got {min_tilt_deg} to {max_tilt_deg}"
+        )
+    chosen = distinct_faces(crystal, max_index=max_index) if faces is None else tuple(faces)
+    found: list[tuple[float, int, tuple[int, int, int, int, int], FaceVariant]] = []
+    for position, face in enumerate(chosen):
+        angles = variant_tilts(crystal, face.variants, m)
+        inside = (angles >= lo - ANGLE_EPS_DEG) & (angles <= hi + ANGLE_EPS_DEG)
+        for i in np.flatnonzero(inside):
+            v = face.variants[int(i)]
+            tilt = float(angles[i])
+            row = FaceVariant(hkl=face.hkl, tilt_variant=v, tilt=tilt, tilt_axis=_rotation_axis(m, v, tilt))
+            found.append((round(tilt, 6), position, _choice_key(v), row))
+    found.sort(key=lambda item: item[:3])
+    return tuple(item[3] for item in found)

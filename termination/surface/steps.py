@@ -50,16 +50,19 @@ class AllowedStep:
 
 
 def step_offset(z_lower: float, z_upper: float, d: float, tol_angstrom: float) -> float:
-    """delta = (z_upper - z_lower) mod d, in [0, d), with offsets within ``tol_angstrom`` of d wrapped to 0.
+    """delta = (z_upper - z_lower) mod d, in [0, d); offsets within ``tol_angstrom`` of 0 or d are 0.
 
     Examples
     --------
     >>> step_offset(0.0, 1.0, 4.0, 0.1), step_offset(1.0, 0.0, 4.0, 0.1), step_offset(0.0, 3.95, 4.0, 0.1)
     (1.0, 3.0, 0.0)
+    >>> step_offset(3.95, 0.0, 4.0, 0.1)
+    0.0
     """
     tol = max(tol_angstrom, LENGTH_EPS_ANGSTROM)
     delta = (z_upper - z_lower) % d
-    return 0.0 if delta > d - tol else float(delta)
+    # Within the tolerance of 0 or of d the two tops are one plane (up to whole periods).
+    return 0.0 if delta > d - tol or delta < tol else float(delta)
 
 
 def allowed_heights(

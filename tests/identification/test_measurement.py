@@ -312,3 +312,36 @@ def test_value_text_form():
     assert str(Value(54.0, 2.0)) == "54±2"
     assert str(Value(4.19)) == "4.19"
     assert math.isclose(parse_value(str(Value(2.97, 0.1))).sigma, 0.1)
+
+
+# ----------------------------------------------------------------- input guards
+
+
+def test_a_fifo_or_device_is_refused_without_reading(tmp_path):
+    import os
+
+    fifo = tmp_path / "pipe.toml"
+    os.mkfifo(fifo)
+    for reader in (read_measurement, read_steps):
+        with pytest.raises(MeasurementError, match="not a regular file"):
+            reader(fifo)  # would block if it were opened
+    with pytest.raises(MeasurementError, match="not a regular file"):
+        read_steps("/dev/zero")  # would read without end
+
+
+def test_oversized_and_overlong_inputs_are_refused(tmp_path):
+    big = tmp_path / "big.txt"
+    big.write_bytes(b"1.0\n" * 300_000)  # 1.2 MB
+    with pytest.raises(MeasurementError, match="bytes"):
+        read_steps(big)
+    many = tmp_path / "many.txt"
+    many.write_text("2.0\n" * 10_001, encoding="utf-8")
+    with pytest.raises(MeasurementError, match="10001 step heights"):
+        read_steps(many)
+
+
+def test_deeply_nested_toml_is_a_one_line_error(tmp_path):
+    f = tmp_path / "nested.toml"
+    f.write_text("x = " + "[" * 5000 + "]" * 5000 + "\n", encoding="utf-8")
+    with pytest.raises(MeasurementError, match="nested.toml"):
+        read_measurement(f)
