@@ -15,7 +15,9 @@ In the repository this file sits at the top level; it is installed as
 
 from __future__ import annotations
 
+import contextlib
 import contextvars
+import dataclasses
 import functools
 import json
 import re
@@ -35,6 +37,7 @@ from termination.defaults import (
     MAX_CELL,
     MAX_INDEX,
     MAX_MULTIPLE,
+    MAX_NAN_FRACTION,
     MIN_STEP_ANGSTROM,
     SLAB_LAYERS,
     SLAB_VACUUM_ANGSTROM,
@@ -652,6 +655,19 @@ def match(
             "--measurement", metavar="FILE", help="Measurement file (TOML); options override it.", show_default=False
         ),
     ] = None,
+    image_file: Annotated[
+        str | None,
+        typer.Option(
+            "--image",
+            metavar="FILE",
+            help="Topograph to analyse (as `termination image`); its tilt, spacings, row angle and steps "
+            "override --measurement, and the other options override them.",
+            show_default=False,
+        ),
+    ] = None,
+    pixel_size: PixelSize = None,
+    z_unit: ZUnit = None,
+    channel: Channel = None,
     mount: Mount = None,
     tilt: Annotated[
         str | None,
@@ -773,6 +789,17 @@ def match(
         cells=tuple(cell or ()),
     )
     base = read_measurement(measurement) if measurement else Measurement()
+    measured_lines: tuple[str, ...] = ()
+    if image_file is None and (pixel_size or z_unit or channel):
+        raise MeasurementError("--pixel-size, --z-unit and --channel calibrate an --image FILE; none was given")
+    if image_file is not None:
+        from termination.reports import image_measurement
+
+        with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+            from_image, measured_lines = image_measurement(
+                image_file, pixel_size=pixel_size, z_unit=z_unit, channel=channel, progress=progress
+            )
+        base = merge(base, from_image)
     merged = merge(base, given)
     cells = check_cells(merged.cells)
     visibility = measurement_visibility(merged)
@@ -791,6 +818,8 @@ def match(
         cells=cells,
         **rules,
     )
+    if measured_lines:
+        report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
     render("match", report, json_out, wide)
 
 
@@ -816,31 +845,51 @@ def _progress_bar() -> Any:
     return bar()
 
 
+PixelSize = Annotated[
+    str | None,
+    typer.Option(
+        "--pixel-size",
+        metavar="LENGTH",
+        help="Pixel size with unit, e.g. 0.05nm, or x,y: 0.05nm,0.06nm "
+        "(default: the sidecar FILE.toml, then the file's own metadata).",
+        show_default=False,
+    ),
+]
+ZUnit = Annotated[
+    str | None,
+    typer.Option(
+        "--z-unit",
+        metavar="UNIT",
+        help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm "
+        "(default: the sidecar, then the file's metadata).",
+        show_default=False,
+    ),
+]
+Channel = Annotated[
+    str | None,
+    typer.Option(
+        "--channel",
+        metavar="NAME",
+        help="Channel of an instrument file, e.g. Z or Z:backward (default: the height channel, forward).",
+        show_default=False,
+    ),
+]
+
+
 @command()
 @one_line_errors("image")
 def image(
     file: Annotated[
-        str, typer.Argument(metavar="FILE", help="Height map: .npy, .tif/.tiff, or a text matrix.", show_default=False)
+        str,
+        typer.Argument(
+            metavar="FILE",
+            help="Height map: .npy, .tif/.tiff, a text matrix, or an instrument file (.sxm, .nxs/.h5, .ibw).",
+            show_default=False,
+        ),
     ],
-    pixel_size: Annotated[
-        str | None,
-        typer.Option(
-            "--pixel-size",
-            metavar="LENGTH",
-            help="Pixel size with unit, e.g. 0.05nm, or x,y: "
-            "0.05nm,0.06nm (default: pixel_size in the sidecar FILE.toml).",
-            show_default=False,
-        ),
-    ] = None,
-    z_unit: Annotated[
-        str | None,
-        typer.Option(
-            "--z-unit",
-            metavar="UNIT",
-            help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm (default: z_unit in the sidecar).",
-            show_default=False,
-        ),
-    ] = None,
+    pixel_size: PixelSize = None,
+    z_unit: ZUnit = None,
+    channel: Channel = None,
     out: Annotated[
         str | None,
         typer.Option(
@@ -861,13 +910,25 @@ def image(
     min_step: Annotated[
         float, typer.Option("--min-step", metavar="Å", help="Smallest step height to resolve, Å.")
     ] = MIN_STEP_ANGSTROM,
+    drift_lattice: Annotated[
+        str | None,
+        typer.Option(
+            "--drift-lattice",
+            metavar="TYPE",
+            help="The surface's 2D lattice is square, rectangular or hexagonal: estimate and remove a linear "
+            "drift of the slow scan from it (never by default).",
+            show_default=False,
+        ),
+    ] = None,
+    max_nan: Annotated[
+        float,
+        typer.Option("--max-nan", metavar="FRACTION", help="Largest fraction of missing (NaN) pixels accepted."),
+    ] = MAX_NAN_FRACTION,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
 ) -> None:
     """Tilt, lattice and step heights of a topograph (height map)."""
-    import contextlib
-
     from termination.reports import image_report
 
     # A progress bar only where someone watches: a terminal, and a map of a megapixel or more.
@@ -876,12 +937,15 @@ def image(
             file,
             pixel_size=pixel_size,
             z_unit=z_unit,
+            channel=channel,
             mount=None if mount is None else mount.values,
             out=out,
             steps_out=steps_out,
             force=force,
             progress=progress,
             min_step_angstrom=min_step,
+            drift_lattice=drift_lattice,
+            max_nan_fraction=max_nan,
         )
     render("image", report, json_out, wide)
 

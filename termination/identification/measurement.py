@@ -729,10 +729,14 @@ def measurement_from_image(analysis, *, mount=None, max_index=None):
     -------
     Measurement
         ``tilt`` is the terrace tilt (relative to the scanner plane, taken
-        as the mount face); ``spacings`` are the lattice a and b and
-        ``row_angle`` its gamma, when a lattice was found; ``steps`` are the
-        step heights. Anything not found is left empty. Values are rounded
-        to 1e-4 (Å or degrees) and sigmas to two significant digits.
+        as the mount face) with its measured sigma; ``spacings`` are the
+        lattice a and b and ``row_angle`` its gamma in the obtuse convention
+        (90-120°; ``match`` compares gamma or 180° - gamma, whichever is
+        closer), when a lattice was found; ``steps`` are the step heights.
+        Anything not found is left empty, and so is ``row_angle`` when a
+        drift correction fixed gamma from the stated lattice type (then it
+        was assumed, not measured). Values are rounded to 1e-4 (Å or
+        degrees) and sigmas to two significant digits.
     """
     from termination.imaging.analysis import HeightMapAnalysis
 
@@ -747,7 +751,8 @@ def measurement_from_image(analysis, *, mount=None, max_index=None):
     spacings, row_angle = (), None
     if lat is not None:
         spacings = (_rounded(lat.a, lat.sigma_a), _rounded(lat.b, lat.sigma_b))
-        row_angle = _rounded(lat.gamma, lat.sigma_gamma)
+        if analysis.drift is None:
+            row_angle = _rounded(lat.gamma, lat.sigma_gamma)
     steps = tuple(_rounded(s.height, s.sigma) for s in analysis.steps)
     return Measurement(
         mount=tuple(mount) if mount is not None else None,
