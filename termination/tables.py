@@ -535,11 +535,11 @@ def _match(r: Any, wide: bool) -> list[Block]:
     if r.mount:
         parts.append(f"mount {_face(r, r.mount)}")
     if e.tilt:
-        parts.append(f"tilt {e.tilt.value:g}±{e.tilt.sigma:g}°")
+        parts.append(f"tilt {e.tilt.value:g}±{e.tilt.sigma:.2g}°")
     if e.spacings:
-        parts.append("spacings " + ", ".join(f"{v.value:g}±{v.sigma:g}" for v in e.spacings) + " Å")
+        parts.append("spacings " + ", ".join(f"{v.value:g}±{v.sigma:.2g}" for v in e.spacings) + " Å")
     if e.row_angle:
-        parts.append(f"row angle {e.row_angle.value:g}±{e.row_angle.sigma:g}°")
+        parts.append(f"row angle {e.row_angle.value:g}±{e.row_angle.sigma:.2g}°")
     if e.steps:
         parts.append("steps " + ", ".join(f"{v.value:g}" for v in e.steps) + " Å")
     out.append(Text("Measured: " + "; ".join(parts)))

@@ -13,6 +13,7 @@ says so instead of asking for more data.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -113,11 +114,19 @@ def separating_measurement(
         ]
         if cross:
             out.append(f"a step of {min(cross):.2f} Å between their terraces")
-        out.append("which species images (STM contrast at both bias polarities; --visible)")
+        if _elements(a) != _elements(b):
+            out.append("which species images (STM contrast at both bias polarities; --visible)")
+        else:
+            out.append("the corrugation at atomic resolution (their tops differ in structure, not in species)")
     elif only or only_b:
         h, owner = (min(only), _short_c(a, hexagonal)) if only else (min(only_b), _short_c(b, hexagonal))
         out.append(f"a step of {h:.2f} Å (allowed on {owner} only)")
     return "; ".join(dict.fromkeys(out)) or "a second spacing or more step heights"
+
+
+def _elements(c: Candidate) -> set[str]:
+    """Chemical elements named in a candidate's termination labels."""
+    return {el for ref in c.classes for el in re.findall(r"[A-Z][a-z]?", ref.label)}
 
 
 def _class_of(c: Candidate, termination_id: str) -> int:
