@@ -510,7 +510,7 @@ def _project_lines(r: AnyArray, y: FloatArray, weight: ArrayLike) -> AnyArray:
         coef = np.linalg.solve(design.T @ wd, wd.T @ r)
     except np.linalg.LinAlgError:
         return r - float(np.sum(w * r) / w.sum())
-    out = r - design @ coef
+    out: AnyArray = r - design @ coef
     out[w <= 0] = 0.0
     return out
 
@@ -552,8 +552,9 @@ def _initial_line_offsets(z: FloatArray, valid: BoolArray, y: FloatArray, half_w
 def _smooth(z: AnyArray, valid: BoolArray, sigma_px: float) -> AnyArray:
     """Gaussian smoothing that ignores NaN pixels (normalised convolution), in single precision."""
     if valid.all():
-        return ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest")
-    num = ndimage.gaussian_filter(np.where(valid, z, 0.0).astype(np.float32), sigma_px, mode="nearest")
+        smooth: AnyArray = ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest")
+        return smooth
+    num: AnyArray = ndimage.gaussian_filter(np.where(valid, z, 0.0).astype(np.float32), sigma_px, mode="nearest")
     den = ndimage.gaussian_filter(valid.astype(np.float32), sigma_px, mode="nearest")
     with np.errstate(invalid="ignore", divide="ignore"):
         num /= den
@@ -606,7 +607,8 @@ def _level_bounds(h: AnyArray, min_step: float, min_contrast: float, min_count: 
         mass = cum[cuts[1:]] - cum[cuts[:-1]]
         weakest = int(np.argmin(mass))
         if mass[weakest] >= min_count:
-            return 0.5 * (edges[mins] + edges[mins + 1])
+            bounds: AnyArray = 0.5 * (edges[mins] + edges[mins + 1])
+            return bounds
         peaks = np.delete(peaks, weakest)
     return np.empty(0)
 
@@ -739,7 +741,7 @@ class TerraceFit:
         if len(r) == 0:
             return np.zeros((0, shape[1]), dtype=np.int32)
         rb = np.minimum(np.arange(r.start, r.stop, r.step) // f, self.near_b.shape[0] - 1)
-        block = self.near_b[rb]
+        block: AnyArray = self.near_b[rb]
         if f == 1:
             return block
         full = np.repeat(block, f, axis=1)
@@ -1077,6 +1079,7 @@ def fit_terraces(
             result = current
         if change < p.slope_tol_deg and iteration > 1:
             break
+    assert result is not None  # max_iterations >= 1 (ImageParameters): the loop ran
     labels_b, n, level_of, bounds, slope, offsets, lines_b, background, stats, iterations, surface = result
     a, b = slope
     if surface is not None:
