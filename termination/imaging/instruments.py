@@ -40,6 +40,7 @@ from typing import Any
 
 import numpy as np
 
+from termination.arrays import AnyArray
 from termination.errors import ImageError
 from termination.imaging.limits import check_declared
 
@@ -64,7 +65,7 @@ class RawImage:
 
     Parameters
     ----------
-    data : (ny, nx) ndarray
+    data : (ny, nx) AnyArray
         The stored numbers of the channel; NaN for pixels never recorded.
     pixel_size : (float, float) or None
         Pixel size along x and y from the file's metadata, Å.
@@ -80,7 +81,7 @@ class RawImage:
         Every channel the file holds (``name`` or ``name:direction``).
     """
 
-    data: np.ndarray
+    data: AnyArray
     pixel_size: tuple[float, float] | None = None
     z_scale: float | None = None
     channel: str | None = None

@@ -106,7 +106,7 @@ class HeightMap:
 
     Parameters
     ----------
-    heights : (ny, nx) ndarray of float64
+    heights : (ny, nx) FloatArray
         Heights in Å; NaN marks missing pixels. Row index is y, column index is x.
     pixel_size : tuple of 2 float
         Distance between pixel centres along x (columns) and y (rows), Å.
@@ -121,7 +121,7 @@ class HeightMap:
         by ``+`` (pixel size first).
     """
 
-    heights: np.ndarray
+    heights: FloatArray
     pixel_size: tuple[float, float]
     path: str | None = None
     channel: str | None = None

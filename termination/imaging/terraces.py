@@ -335,7 +335,7 @@ class _Surface:
 
     background: SmoothBackground
     slope: tuple[float, float]
-    offsets: np.ndarray
+    offsets: FloatArray
     cov_ab: FloatArray | None
     cov_offsets: FloatArray | None
 
@@ -662,25 +662,25 @@ class TerraceFit:
 
     Attributes
     ----------
-    labels : (ny, nx) int32 ndarray
+    labels : (ny, nx) int16 or int32 ndarray
         Terrace of each pixel used in the fit, 1..n; 0 for pixels left out
         (step edges, outliers, missing pixels, pieces too small to keep).
     n : int
         Number of terraces.
-    level_of : (n,) int ndarray
+    level_of : (n,) signed-integer ndarray
         Height level (histogram class) of each terrace.
     slope : (float, float)
         Plane slopes dz/dx, dz/dy.
-    offsets : (n,) ndarray
+    offsets : (n,) FloatArray
         Terrace offsets c_k, Å.
-    lines : (ny,) ndarray
+    lines : (ny,) FloatArray
         Scan-line offsets r_i, Å (zero when not fitted).
     background : SmoothBackground or None
         The smooth background, when one was needed.
     stats : dict
         Fit statistics of the final plane fit (pixel counts, centroids,
         residual variance ``s2``, normal matrix).
-    near_b, dist_b : ndarray
+    near_b, dist_b : int32 and float32 ndarray
         Nearest terrace of every pixel of the (binned) segmentation grid
         and the distance to it, binned pixels; :meth:`near` gives the
         nearest terrace of a block of full-resolution rows.
@@ -696,7 +696,7 @@ class TerraceFit:
         Root-mean-square height of the smoothed residual beyond noise, Å.
     peak_relief : float
         99th percentile of the smoothed residual's magnitude, Å.
-    surface_cov_ab, surface_cov_offsets : ndarray or None
+    surface_cov_ab, surface_cov_offsets : FloatArray or None
         Covariances of the slopes and of the terrace offsets from the
         smooth-surface solution (:func:`_solve_surface`), when a background
         was fitted.
@@ -711,16 +711,16 @@ class TerraceFit:
         Root-mean-square scan-line offset, Å.
     """
 
-    labels: np.ndarray
+    labels: NDArray[np.signedinteger[Any]]
     n: int
-    level_of: np.ndarray
+    level_of: NDArray[np.signedinteger[Any]]
     slope: tuple[float, float]
-    offsets: np.ndarray
-    lines: np.ndarray
+    offsets: FloatArray
+    lines: FloatArray
     background: SmoothBackground | None
     stats: dict[str, Any]
-    near_b: np.ndarray
-    dist_b: np.ndarray
+    near_b: NDArray[np.int32]
+    dist_b: NDArray[np.float32]
     correlation: float = 1.0
     excess_variance: float = 0.0
     structure: float = 1.0
@@ -730,8 +730,8 @@ class TerraceFit:
     line_rms: float = 0.0
     peak_relief: float = 0.0
     iterations: int = 0
-    surface_cov_ab: np.ndarray | None = None
-    surface_cov_offsets: np.ndarray | None = None
+    surface_cov_ab: FloatArray | None = None
+    surface_cov_offsets: FloatArray | None = None
     bin: int = 1
 
     def near(self, shape: tuple[int, ...], rows: slice = slice(None)) -> AnyArray:
