@@ -58,7 +58,15 @@ from termination.surface.steps import allowed_heights
 from termination.surface.terminations import FaceTerminations, Termination, TerminationRef, face_terminations
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["Candidate", "CandidateTable", "TerminationOptions", "candidate_table", "fraction_grid", "logsumexp"]
+__all__ = [
+    "Candidate",
+    "CandidateOptions",
+    "CandidateTable",
+    "TerminationOptions",
+    "candidate_table",
+    "fraction_grid",
+    "logsumexp",
+]
 
 
 @dataclass(frozen=True, eq=False)
@@ -165,6 +173,20 @@ class TerminationOptions(TypedDict, total=False):
     bond_cutoff_angstrom: float | None
     unit_ratio: float
     max_multiple: int
+
+
+class CandidateOptions(TerminationOptions, total=False):
+    """The keyword options of :func:`candidate_table` (what ``match`` passes on)."""
+
+    mount: Sequence[int] | None
+    max_index: int
+    visibility: Visibility | None
+    model: MatchModel | None
+    reconstructions: bool
+    charges: Mapping[str, float] | None
+    max_cell: int
+    cells: Iterable[str | CellSpec]
+    select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None
 
 
 class _FaceFields(TypedDict):

@@ -56,7 +56,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any, TypedDict
+from typing import Any, TypedDict, Unpack
 
 import numpy as np
 
@@ -65,7 +65,14 @@ from termination.bulk.crystal import Crystal
 from termination.bulk.summary import StructureSummary
 from termination.defaults import MAX_INDEX
 from termination.errors import MeasurementError
-from termination.identification.candidates import Candidate, CandidateTable, candidate_table, fraction_grid, logsumexp
+from termination.identification.candidates import (
+    Candidate,
+    CandidateOptions,
+    CandidateTable,
+    candidate_table,
+    fraction_grid,
+    logsumexp,
+)
 from termination.identification.fit import FitCheck, fit_check
 from termination.identification.lattices import (
     angle_log_likelihood,
@@ -586,14 +593,16 @@ def _face_marginals(candidates: Sequence[Candidate], prob: FloatArray) -> tuple[
     return tuple(FaceProbability(hkl=h, probability=p) for h, p in ranked)
 
 
-def match(crystal: Crystal, measurement: Measurement, *, top: int | None = None, **options: Any) -> MatchReport:
+def match(
+    crystal: Crystal, measurement: Measurement, *, top: int | None = None, **options: Unpack[CandidateOptions]
+) -> MatchReport:
     """Rank the faces and terminations of ``crystal`` against ``measurement``.
 
     ``options`` go to :func:`termination.identification.candidates.candidate_table`;
     ``measurement.mount``, ``max_index`` and the visibility fields are used
     when the options do not set them.
     """
-    opts = dict(options)
+    opts = CandidateOptions(**options)
     opts.setdefault("mount", measurement.mount)
     opts.setdefault("max_index", measurement.max_index or MAX_INDEX)
     if "visibility" not in opts:
