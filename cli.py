@@ -616,8 +616,8 @@ def corrugation(
 
     cells = check_cells(cell)
     visibility = Visibility(
-        visible=visible or None,
-        weights=parse_element_values(weight, "--weight", StructureError),
+        visible=tuple(visible) if visible else None,
+        weights=tuple(parse_element_values(weight, "--weight", StructureError).items()),
         site_weights=tuple(parse_site_weights(site_weight).items()),
         decay_length_angstrom=decay_length,
         max_depth_angstrom=depth,

@@ -11,14 +11,14 @@ the JSON Schemas are generated.
 from __future__ import annotations
 
 import os
-from collections.abc import Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, SupportsFloat
+from typing import TYPE_CHECKING, Any, SupportsFloat, Unpack
 
 import numpy as np
 from numpy.typing import ArrayLike
 
-from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
+from termination.algebra.lattice2d import CellSpec, cell_matrix, cell_notation, check_cells
 from termination.bulk.charges import ChargeAssignment, with_formal_charges
 from termination.bulk.crystal import Crystal
 from termination.bulk.summary import StructureSummary, summarise_structure
@@ -37,11 +37,12 @@ from termination.surface.corrugation import (
     termination_corrugation,
 )
 from termination.surface.domains import face_point_group
-from termination.surface.faces import Mesh, distinct_faces, face_geometry, face_index
+from termination.surface.faces import Face, Mesh, distinct_faces, face_geometry, face_index
 from termination.surface.faces import tilt_window as window_variants
 from termination.surface.miller import hkl_text
 from termination.surface.polarity import (
     FacePolarity,
+    PolarityTolerances,
     TaskerType,
     face_is_polar,
     face_polarity,
@@ -54,7 +55,10 @@ from termination.surface.terminations import Termination, TerminationRef, face_t
 from termination.units import ANGSTROM, DEG, EV, PER_NM2, SECOND
 
 if TYPE_CHECKING:
+    from termination.identification.candidates import TerminationOptions
+    from termination.identification.measurement import Measurement
     from termination.imaging.analysis import HeightMapAnalysis
+    from termination.imaging.reading import HeightMap
 
 __all__ = [
     "CorrugationReport",
@@ -211,8 +215,13 @@ class PlanesReport:
 
 
 def planes_report(
-    crystal: Crystal, max_index: int = MAX_INDEX, mount=None, charges=None, tilt_window=None, **termination_options
-):
+    crystal: Crystal,
+    max_index: int = MAX_INDEX,
+    mount: Iterable[SupportsFloat] | None = None,
+    charges: Mapping[str, float] | None = None,
+    tilt_window: Iterable[SupportsFloat] | None = None,
+    **termination_options: Unpack[TerminationOptions],
+) -> PlanesReport:
     """Distinct faces of ``crystal`` up to ``max_index`` as a :class:`PlanesReport`.
 
     ``charges`` (element -> formal charge), else the file's charges, else the
@@ -250,7 +259,7 @@ def planes_report(
     m = None if mount is None else face_index(crystal, mount, "mount")
     window: tuple[WindowRow, ...] = ()
     bounds = None
-    if tilt_window is not None:
+    if tilt_window is not None and mount is not None:  # a window without a mount was refused above
         lo, hi = (float(v) for v in tilt_window)
         ranks = cleavage_ranks(costs)
         by_face = {row.hkl: (row, int(rank), cost) for row, rank, cost in zip(rows, ranks, costs)}
@@ -338,7 +347,9 @@ class TerminationsReport:
     steps: tuple[StepHeights, ...] = ()
 
 
-def terminations_report(crystal: Crystal, hkl, **options) -> TerminationsReport:
+def terminations_report(
+    crystal: Crystal, hkl: Iterable[SupportsFloat], **options: Unpack[TerminationOptions]
+) -> TerminationsReport:
     """Layers, terminations and steps of one face as a :class:`TerminationsReport`.
 
     ``options`` go to :func:`termination.surface.terminations.face_terminations`.
@@ -374,14 +385,14 @@ class PolarityReport:
 
 def polarity_report(
     crystal: Crystal,
-    plane=None,
+    plane: Sequence[int] | None = None,
     max_index: int | None = None,
     *,
-    charges=None,
+    charges: Mapping[str, float] | None = None,
     max_cell: int = MAX_CELL,
     use_pymatgen: bool = True,
-    termination_options=None,
-    **tolerances,
+    termination_options: Mapping[str, Any] | None = None,
+    **tolerances: Unpack[PolarityTolerances],
 ) -> PolarityReport:
     """Polarity of one face or of all distinct faces up to ``max_index``.
 
@@ -413,6 +424,7 @@ def polarity_report(
     max_cell = check_max_cell(max_cell)
     charged, assignment = with_formal_charges(crystal, charges, use_pymatgen=use_pymatgen, required=True)
     assert assignment is not None  # required=True raises instead
+    faces: tuple[Face, ...]
     if plane is not None:
         faces = (face_geometry(charged, face_index(charged, plane)),)
     else:
@@ -463,15 +475,17 @@ class TerminationCorrugation:
 
 
 def _corrugation_row(
-    key: str, p: CorrugationPattern, reconstructions=(), cells=(), matrix=None
+    key: str,
+    p: CorrugationPattern,
+    reconstructions: Iterable[TerminationCorrugation] = (),
+    cells: Iterable[TerminationCorrugation] = (),
+    matrix: ArrayLike | None = None,
 ) -> TerminationCorrugation:
     return TerminationCorrugation(
         id=key,
         label=p.label,
         cell=p.cell,
-        matrix=None
-        if matrix is None
-        else ((int(matrix[0][0]), int(matrix[0][1])), (int(matrix[1][0]), int(matrix[1][1]))),
+        matrix=None if matrix is None else _matrix2(matrix),
         apparent_lattice=p.apparent_lattice,
         lattice_type=lattice_type(p.apparent_lattice),
         neighbour_distance=p.neighbour_distance,
@@ -511,14 +525,14 @@ class CorrugationReport:
 
 def corrugation_report(
     crystal: Crystal,
-    hkl,
+    hkl: Iterable[SupportsFloat],
     termination: str | None = None,
     *,
     visibility: Visibility | None = None,
     reconstructions: bool = True,
-    charges=None,
+    charges: Mapping[str, float] | None = None,
     max_cell: int = MAX_CELL,
-    cells=(),
+    cells: Iterable[str | CellSpec] = (),
 ) -> CorrugationReport:
     """Corrugation of every termination of ``hkl`` (or of one) as a :class:`CorrugationReport`.
 
@@ -632,7 +646,7 @@ class ImageReport:
     written: tuple[str, ...] = ()
 
 
-def _source(path, hm) -> ImageSource:
+def _source(path: str | os.PathLike[str], hm: HeightMap) -> ImageSource:
     import numpy as np
 
     ny, nx = hm.shape
@@ -652,7 +666,7 @@ def _source(path, hm) -> ImageSource:
     )
 
 
-def _image_comment(source: ImageSource, analysis) -> str:
+def _image_comment(source: ImageSource, analysis: HeightMapAnalysis) -> str:
     """Comment lines of files written from an image: the source, what was not determined, and the notes."""
     channel = (
         ""
@@ -670,17 +684,17 @@ def _image_comment(source: ImageSource, analysis) -> str:
 
 
 def image_report(
-    path,
+    path: str | os.PathLike[str],
     *,
-    pixel_size=None,
-    z_unit=None,
-    channel=None,
-    mount=None,
-    out=None,
-    steps_out=None,
+    pixel_size: Any = None,
+    z_unit: Any = None,
+    channel: str | None = None,
+    mount: Iterable[int] | None = None,
+    out: str | os.PathLike[str] | None = None,
+    steps_out: str | os.PathLike[str] | None = None,
     force: bool = False,
-    progress=None,
-    **parameters,
+    progress: Callable[[float, str], object] | None = None,
+    **parameters: Any,
 ) -> ImageReport:
     """Analyse a height-map file, write the requested outputs, and report.
 
@@ -745,7 +759,15 @@ def image_report(
     return ImageReport(source=source, analysis=analysis, written=tuple(str(t) for t, _ in texts))
 
 
-def image_measurement(path, *, pixel_size=None, z_unit=None, channel=None, progress=None, **parameters):
+def image_measurement(
+    path: str | os.PathLike[str],
+    *,
+    pixel_size: Any = None,
+    z_unit: Any = None,
+    channel: str | None = None,
+    progress: Callable[[float, str], object] | None = None,
+    **parameters: Any,
+) -> tuple[Measurement, tuple[str, ...]]:
     """What a height-map file measures, for ``termination match --image``.
 
     Returns

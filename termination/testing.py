@@ -14,12 +14,21 @@ the tests and benchmarks.  Nothing here is measured data.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
+from numpy.typing import ArrayLike
 
+from termination.arrays import FloatArray
 from termination.errors import ImageError
 from termination.identification.measurement import Measurement, Value
 from termination.imaging.reading import parse_pixel_size
+
+if TYPE_CHECKING:
+    from termination.bulk.crystal import Crystal
+    from termination.identification.candidates import CandidateTable
+    from termination.surface.corrugation import Visibility
 
 __all__ = [
     "calibration",
@@ -32,7 +41,7 @@ __all__ = [
 ]
 
 
-def reciprocal_shell(a, b, gamma_deg, direction_deg=0.0):
+def reciprocal_shell(a: float, b: float, gamma_deg: float, direction_deg: float = 0.0) -> tuple[FloatArray, FloatArray]:
     """Shortest reciprocal vectors (one per ± pair) of a 2-D lattice.
 
     Parameters
@@ -72,32 +81,32 @@ def reciprocal_shell(a, b, gamma_deg, direction_deg=0.0):
 
 
 def synthetic_heightmap(
-    shape=(256, 256),
-    pixel_size=0.5,
+    shape: tuple[int, int] = (256, 256),
+    pixel_size: float | Sequence[float] = 0.5,
     *,
-    tilt_deg=0.0,
-    azimuth_deg=0.0,
-    step_heights=(),
-    step_azimuth_deg=0.0,
-    step_positions=None,
-    step_wave_angstrom=0.0,
-    meander_angstrom=0.0,
-    step_width_px=1.0,
-    corner_pieces=(),
-    lattice=None,
-    corrugation_angstrom=0.1,
-    lateral_shifts=False,
-    line_offset_angstrom=0.0,
-    adsorbate_fraction=0.0,
-    adsorbate_height_angstrom=0.8,
-    adsorbate_radius_px=3.0,
-    background_angstrom=0.0,
-    background_exponent=2.0,
-    background_scale_px=64.0,
-    noise_angstrom=0.0,
-    drift=None,
-    seed=0,
-):
+    tilt_deg: float = 0.0,
+    azimuth_deg: float = 0.0,
+    step_heights: Sequence[float] = (),
+    step_azimuth_deg: float = 0.0,
+    step_positions: Sequence[float] | None = None,
+    step_wave_angstrom: float = 0.0,
+    meander_angstrom: float = 0.0,
+    step_width_px: float = 1.0,
+    corner_pieces: Sequence[tuple[int, float, float]] = (),
+    lattice: tuple[float, float, float, float] | None = None,
+    corrugation_angstrom: float = 0.1,
+    lateral_shifts: bool = False,
+    line_offset_angstrom: float = 0.0,
+    adsorbate_fraction: float = 0.0,
+    adsorbate_height_angstrom: float = 0.8,
+    adsorbate_radius_px: float = 3.0,
+    background_angstrom: float = 0.0,
+    background_exponent: float = 2.0,
+    background_scale_px: float = 64.0,
+    noise_angstrom: float = 0.0,
+    drift: tuple[float, float] | None = None,
+    seed: int = 0,
+) -> FloatArray:
     """A topograph with known geometry and the artifacts of a raw image, heights in Å.
 
     Every artifact has its own parameter and is off by default, so a test can
@@ -202,7 +211,7 @@ def synthetic_heightmap(
     th, ph = math.radians(tilt_deg), math.radians(azimuth_deg)
     slope = math.tan(th)
     plane = slope * (X * math.cos(ph) + Y * math.sin(ph))
-    Z = plane.copy()
+    Z: FloatArray = plane.copy()
     terrace = np.zeros((ny, nx), dtype=np.int64)  # terrace index of each pixel, for the lateral shifts
     steps = np.asarray(step_heights, dtype=np.float64)
     if steps.size:
@@ -265,7 +274,7 @@ def synthetic_heightmap(
     return Z
 
 
-def _random_curve(t, rng, seed):
+def _random_curve(t: FloatArray, rng: np.random.Generator, seed: int) -> FloatArray:
     """A smooth random function of t in [0, 1] with unit standard deviation (sum of 16 random sinusoids)."""
     local = np.random.default_rng([seed, 7])
     k = np.arange(1, 17)
@@ -278,7 +287,9 @@ def _random_curve(t, rng, seed):
     return out
 
 
-def _adsorbates(shape, fraction, height, radius_px, rng):
+def _adsorbates(
+    shape: tuple[int, int], fraction: float, height: float, radius_px: float, rng: np.random.Generator
+) -> FloatArray:
     """Bumps (+height) and pits (-height) with a cosine profile covering ``fraction`` of the area."""
     ny, nx = shape
     area = math.pi * radius_px**2 / 2.0  # effective area of a cosine bump above half height, pixels
@@ -299,7 +310,9 @@ def _adsorbates(shape, fraction, height, radius_px, rng):
     return out
 
 
-def _background(shape, rms, exponent, scale_px, rng):
+def _background(
+    shape: tuple[int, int], rms: float, exponent: float, scale_px: float, rng: np.random.Generator
+) -> FloatArray:
     """A random field with power spectrum ``|k|**-exponent`` below wavelength ``scale_px``, scaled to ``rms``."""
     ny, nx = shape
     ky = np.fft.fftfreq(ny)[:, None]
@@ -315,17 +328,17 @@ def _background(shape, rms, exponent, scale_px, rng):
 
 
 def synthetic_measurement(
-    table,
-    index,
-    rng,
+    table: CandidateTable,
+    index: int,
+    rng: np.random.Generator,
     *,
-    tilt_sigma=1.5,
-    spacing_sigma=0.1,
-    row_angle_sigma=3.0,
-    step_sigma=0.08,
-    n_spacings=2,
-    n_steps=5,
-):
+    tilt_sigma: float = 1.5,
+    spacing_sigma: float = 0.1,
+    row_angle_sigma: float = 3.0,
+    step_sigma: float = 0.08,
+    n_spacings: int = 2,
+    n_steps: int = 5,
+) -> Measurement:
     """Draw a measurement from the likelihood model of candidate ``index``.
 
     Used to test recovery and calibration against the model itself: class
@@ -352,7 +365,7 @@ def synthetic_measurement(
     model = table.model
     c = table.candidates[index]
 
-    def noisy(mu, s, rel=0.0):
+    def noisy(mu: float, s: float, rel: float = 0.0) -> float:
         return float(mu + rng.normal() * np.hypot(s, rel * mu))
 
     k = len(c.classes)
@@ -365,7 +378,7 @@ def synthetic_measurement(
     lattice = c.lattices[cls][int(rng.integers(len(c.lattices[cls])))]
     readings = lattice_readings(lattice.a, lattice.b, lattice.gamma)
     p1, p2, gamma = readings[int(rng.integers(len(readings)))]
-    spacings = []
+    spacings: list[Value] = []
     row_angle = None
     if n_spacings >= 2 and np.isfinite(p2):
         pair = [p1, p2] if rng.random() < 0.5 else [p2, p1]
@@ -376,7 +389,7 @@ def synthetic_measurement(
         periods = [p for p in c.periods[cls] if np.isfinite(p)]
         if periods:
             spacings = [Value(abs(noisy(float(rng.choice(periods)), spacing_sigma, model.model_rel)), spacing_sigma)]
-    steps = []
+    steps: list[Value] = []
     if c.step_heights:
         lower = np.asarray(c.step_lower)
         upper = np.asarray(c.step_upper)
@@ -392,20 +405,20 @@ def synthetic_measurement(
 
 
 def geometric_measurement(
-    crystal,
-    hkl,
-    mount,
-    rng,
+    crystal: Crystal,
+    hkl: Sequence[int],
+    mount: Sequence[int],
+    rng: np.random.Generator,
     *,
-    tilt_sigma_deg=2.0,
-    step_rel=0.05,
-    n_steps=3,
-    lattice=True,
-    spacing_rel=0.02,
-    row_angle_sigma_deg=2.0,
-    termination=None,
-    visibility=None,
-):
+    tilt_sigma_deg: float = 2.0,
+    step_rel: float = 0.05,
+    n_steps: int = 3,
+    lattice: bool = True,
+    spacing_rel: float = 0.02,
+    row_angle_sigma_deg: float = 2.0,
+    termination: str | None = None,
+    visibility: Visibility | None = None,
+) -> Measurement:
     """A measurement of the face ``hkl`` made from plain geometry, not from the identification model.
 
     For calibration checks that do not share the model's assumptions: the tilt
@@ -437,7 +450,8 @@ def geometric_measurement(
     tilt = float(np.clip(rng.choice(up) + rng.normal() * tilt_sigma_deg, 0.0, 90.0))
     multiples = rng.choice([1, 1, 2, 3], size=n_steps)
     steps = tuple(Value(float(n * face.d * (1 + step_rel * rng.normal())), step_rel * n * face.d) for n in multiples)
-    spacings, row_angle = (), None
+    spacings: tuple[Value, ...] = ()
+    row_angle: Value | None = None
     if lattice:
         ft = face_terminations(crystal, hkl, face=face)
         keys = [t.id for t in ft.terminations if t.equivalent_to is None]
@@ -453,7 +467,9 @@ def geometric_measurement(
     )
 
 
-def calibration(probabilities, hits, bins=10):
+def calibration(
+    probabilities: ArrayLike, hits: ArrayLike, bins: int = 10
+) -> tuple[float, list[tuple[float, float, int]]]:
     """Expected calibration error and the (confidence, hit rate, count) of each probability bin.
 
     ECE = sum_b (n_b / N) |hit rate_b - mean probability_b| over equal-width bins of the
@@ -466,7 +482,7 @@ def calibration(probabilities, hits, bins=10):
     h = np.asarray(hits, float)
     edges = np.linspace(0.0, 1.0, bins + 1)
     which = np.clip(np.digitize(p, edges[1:-1]), 0, bins - 1)
-    table = []
+    table: list[tuple[float, float, int]] = []
     ece = 0.0
     for b in range(bins):
         sel = which == b
@@ -480,7 +496,7 @@ def calibration(probabilities, hits, bins=10):
 # --------------------------------------------------------------------------- structures
 
 
-def random_rotation(rng):
+def random_rotation(rng: np.random.Generator) -> FloatArray:
     """Uniform random proper rotation (QR of a Gaussian matrix)."""
     q, r = np.linalg.qr(rng.normal(size=(3, 3)))
     q *= np.sign(np.diag(r))
@@ -489,7 +505,7 @@ def random_rotation(rng):
     return q
 
 
-def pa3_structure(x=0.385, a=5.417):
+def pa3_structure(x: float = 0.385, a: float = 5.417) -> tuple[FloatArray, FloatArray, list[str]]:
     """Pyrite-type FeS2 (Pa-3, Th point group) generated from spglib's database: (lattice, positions, species).
 
     Fe at 4a, S at 8c (x, x, x); x = 0.385 and a = 5.417 Å are the usual pyrite
@@ -497,13 +513,14 @@ def pa3_structure(x=0.385, a=5.417):
     """
     import spglib
 
-    hall = next(h for h in range(1, 531) if spglib.get_spacegroup_type(h).number == 205)
+    hall = next(h for h in range(1, 531) if (t := spglib.get_spacegroup_type(h)) is not None and t.number == 205)
     ops = spglib.get_symmetry_from_database(hall)
+    assert ops is not None  # every Hall number 1..530 is in the database
     rot, tra = ops["rotations"], ops["translations"]
 
-    def orbit(p):
+    def orbit(p: FloatArray) -> FloatArray:
         pts = (np.einsum("nij,j->ni", rot, p) + tra) % 1.0
-        uniq = []
+        uniq: list[FloatArray] = []
         for q in pts:
             if not any(np.allclose((q - u + 0.5) % 1.0 - 0.5, 0, atol=1e-8) for u in uniq):
                 uniq.append(q)

@@ -24,12 +24,17 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from typing import TypedDict, Unpack, overload
 
 import numpy as np
+from numpy.typing import ArrayLike
 
-from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
+from termination.algebra.lattice2d import CellSpec, cell_matrix, cell_notation, check_cells
+from termination.arrays import FloatArray, IntArray
 from termination.bulk.charges import with_formal_charges
+from termination.bulk.crystal import Crystal
 from termination.bulk.summary import StructureSummary, summarise_structure
 from termination.defaults import MAX_CELL, MAX_CELLS_PER_TERMINATION, MAX_INDEX
 from termination.errors import MeasurementError, StructureError
@@ -46,14 +51,22 @@ from termination.surface.corrugation import (
 )
 from termination.surface.domains import face_point_group
 from termination.surface.faces import distinct_faces, face_index, variant_tilts
-from termination.surface.miller import face_text
-from termination.surface.polarity import termination_polarity
+from termination.surface.miller import HKL, face_text
+from termination.surface.polarity import TerminationPolarity, termination_polarity
 from termination.surface.reconstructions import Reconstruction
 from termination.surface.steps import allowed_heights
-from termination.surface.terminations import FaceTerminations, TerminationRef, face_terminations
+from termination.surface.terminations import FaceTerminations, Termination, TerminationRef, face_terminations
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["Candidate", "CandidateTable", "candidate_table", "fraction_grid", "logsumexp"]
+__all__ = [
+    "Candidate",
+    "CandidateOptions",
+    "CandidateTable",
+    "TerminationOptions",
+    "candidate_table",
+    "fraction_grid",
+    "logsumexp",
+]
 
 
 @dataclass(frozen=True, eq=False)
@@ -149,8 +162,76 @@ class CandidateTable:
     notes: tuple[str, ...] = ()
 
 
-def logsumexp(x, axis=None):
-    """log(sum(exp(x))) along ``axis``, stable for large and -inf entries."""
+class TerminationOptions(TypedDict, total=False):
+    """Options of :func:`candidate_table` passed on to :func:`termination.surface.terminations.face_terminations`.
+
+    A ``max_multiple`` given here is replaced by the model's.
+    """
+
+    layer_tol_angstrom: float
+    bond_factor: float
+    bond_cutoff_angstrom: float | None
+    unit_ratio: float
+    max_multiple: int
+
+
+class CandidateOptions(TerminationOptions, total=False):
+    """The keyword options of :func:`candidate_table` (what ``match`` passes on)."""
+
+    mount: Sequence[int] | None
+    max_index: int
+    visibility: Visibility | None
+    model: MatchModel | None
+    reconstructions: bool
+    charges: Mapping[str, float] | None
+    max_cell: int
+    cells: Iterable[str | CellSpec]
+    select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None
+
+
+class _FaceFields(TypedDict):
+    """The fields of a :class:`Candidate` that its face decides."""
+
+    hkl: HKL
+    d: float
+    tilts: tuple[float, ...]
+    tilt_variants: tuple[HKL, ...]
+
+
+class _StepFields(TypedDict):
+    """The allowed steps of a :class:`Candidate` (see its attributes)."""
+
+    step_heights: tuple[float, ...]
+    step_multiples: tuple[int, ...]
+    step_lower: tuple[int, ...]
+    step_upper: tuple[int, ...]
+    step_factors: tuple[float, ...]
+    step_lower_id: tuple[str, ...]
+    step_upper_id: tuple[str, ...]
+
+
+class _TerminationFields(_FaceFields, _StepFields):
+    """The fields of a :class:`Candidate` that its face and one termination class decide."""
+
+    classes: tuple[TerminationRef, ...]
+    members: tuple[tuple[str, ...], ...]
+    relation: str | None
+    polar: bool | None
+
+
+@overload
+def logsumexp(x: ArrayLike, axis: None = None) -> float: ...
+
+
+@overload
+def logsumexp(x: ArrayLike, axis: int) -> FloatArray: ...
+
+
+def logsumexp(x: ArrayLike, axis: int | None = None) -> float | FloatArray:
+    """log(sum(exp(x))) along ``axis``, stable for large and -inf entries.
+
+    A float without ``axis``; with it, an array of the shape of ``x`` without that axis.
+    """
     x = np.asarray(x, dtype=float)
     m = np.max(x, axis=axis, keepdims=True)
     m = np.where(np.isfinite(m), m, 0.0)
@@ -159,7 +240,7 @@ def logsumexp(x, axis=None):
     return np.squeeze(out, axis=axis) if axis is not None else float(out.squeeze())
 
 
-def fraction_grid(k: int) -> np.ndarray:
+def fraction_grid(k: int) -> FloatArray:
     """Points of the open simplex of k class fractions, uniformly spread: (G, k).
 
     One point (1,) for k = 1; for k = 2, 19 points 0.05 ... 0.95; for k = 3,
@@ -193,10 +274,10 @@ def _bond_scale(values: list[float]) -> float:
     return max(min(values), 0.5 * float(np.median(positive)))
 
 
-def _class_steps(ft: FaceTerminations, classes: list[tuple[str, ...]], model: MatchModel):
+def _class_steps(ft: FaceTerminations, classes: list[tuple[str, ...]], model: MatchModel) -> _StepFields:
     """Every step between terraces of the given classes, with its weight factor."""
     tops = {t.id: ft.layers[t.layers[0]].height for t in ft.terminations}
-    out = []
+    out: list[tuple[float, int, int, int, float, str, str]] = []
     for ci, members_i in enumerate(classes):
         for cj, members_j in enumerate(classes):
             share = 1.0 / (len(members_i) * len(members_j))
@@ -205,7 +286,7 @@ def _class_steps(ft: FaceTerminations, classes: list[tuple[str, ...]], model: Ma
                     for n, h in allowed_heights(tops[a], tops[b], ft.d, model.max_multiple, ft.layer_tol_angstrom):
                         out.append((h, n, ci, cj, share * model.step_decay**n, a, b))
     cols = list(zip(*out)) if out else [()] * 7
-    return dict(
+    return _StepFields(
         step_heights=tuple(float(v) for v in cols[0]),
         step_multiples=tuple(int(v) for v in cols[1]),
         step_lower=tuple(int(v) for v in cols[2]),
@@ -244,19 +325,19 @@ def _kept_cells(records: tuple[Reconstruction, ...]) -> list[Reconstruction]:
 
 
 def candidate_table(
-    crystal,
-    mount=None,
-    max_index=MAX_INDEX,
+    crystal: Crystal,
+    mount: Sequence[int] | None = None,
+    max_index: int = MAX_INDEX,
     *,
-    visibility=None,
-    model=None,
-    reconstructions=True,
-    charges=None,
-    max_cell=MAX_CELL,
-    cells=(),
-    select_cells=None,
-    **termination_options,
-):
+    visibility: Visibility | None = None,
+    model: MatchModel | None = None,
+    reconstructions: bool = True,
+    charges: Mapping[str, float] | None = None,
+    max_cell: int = MAX_CELL,
+    cells: Iterable[str | CellSpec] = (),
+    select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None = None,
+    **termination_options: Unpack[TerminationOptions],
+) -> CandidateTable:
     """Predictions of every face x termination (x reconstruction, x terrace mix) of ``crystal``.
 
     Parameters
@@ -304,12 +385,9 @@ def candidate_table(
     # Checked once for the crystal: per termination a species that is merely
     # absent from the top unit makes that termination flat, which is a result.
     vis.check(crystal.species, MeasurementError, "this crystal")
-    termination_options.pop("max_multiple", None)
+    termination_options["max_multiple"] = model.max_multiple  # the model's, whatever was passed
     crystal, polar_info, notes = _polarity_provider(crystal, charges, reconstructions, max_cell, vis)
-    per_face = [
-        (f, face_terminations(crystal, f.hkl, face=f, max_multiple=model.max_multiple, **termination_options))
-        for f in faces
-    ]
+    per_face = [(f, face_terminations(crystal, f.hkl, face=f, **termination_options)) for f in faces]
     face_costs = [min(t.weighted_bonds_per_nm2 for t in ft.terminations) for _, ft in per_face]
     scale = _bond_scale(face_costs)
     w_min = min(face_costs)
@@ -332,7 +410,7 @@ def candidate_table(
         p_class = np.array([len(m) for m in members]) * np.exp(-model.bond_weight * (cost - w_face) / scale)
         p_class /= p_class.sum()
         patterns = {t.id: termination_corrugation(ft, t.id, vis, crystal=crystal) for t in reps}
-        base = dict(hkl=f.hkl, d=ft.d, tilts=tilts, tilt_variants=variants)
+        base = _FaceFields(hkl=f.hkl, d=ft.d, tilts=tilts, tilt_variants=variants)
         single_share = 1.0 - (model.mixed_share if len(reps) > 1 else 0.0)
         for k, t in enumerate(reps):
             lattices, periods = _lattice_entry([patterns[t.id]])
@@ -357,8 +435,8 @@ def candidate_table(
                 for (spec, _), (_, cell_patterns) in zip(user, given):
                     domains_seen.setdefault(spec.label, []).append((f.hkl, cell_patterns[0].domains))
             log_single = log_face + math.log(single_share * p_class[k]) + math.log1p(-user_share)
-            one = dict(
-                base,
+            one = _TerminationFields(
+                **base,
                 classes=(TerminationRef.of(t),),
                 members=(members[k],),
                 relation=relation[t.id],
@@ -381,7 +459,7 @@ def candidate_table(
                     )
                 )
             groups.append(group)
-            if polar_info is not None and polar_info.may_have_cells(polarity):
+            if polar_info is not None and polarity is not None and polar_info.may_have_cells(polarity):
                 pending.append((len(groups) - 1, ft, t, rotations, polarity, log_single, one))
         if len(reps) > 1:
             cheapest = sorted(range(len(reps)), key=lambda k: -p_class[k])[: model.max_mixed_classes]
@@ -412,6 +490,7 @@ def candidate_table(
         chosen = set(select_cells(tuple(c for group in groups for c in group)))
     spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
     for index, ft, t, rotations, polarity, log_single, one in pending:
+        assert polar_info is not None  # only a provider fills pending
         share = model.reconstructed_share
         if chosen is not None and (ft.face.hkl, t.id) not in chosen:
             spent.append(log_single + math.log(share))
@@ -463,7 +542,7 @@ def candidate_table(
     )
 
 
-def _upward_tilts(crystal, variants, mount):
+def _upward_tilts(crystal: Crystal, variants: tuple[HKL, ...], mount: HKL) -> tuple[tuple[float, ...], tuple[HKL, ...]]:
     """Tilts (degrees) of the variants whose normals lie within 90° of the mount normal."""
     ang = variant_tilts(crystal, variants, mount)
     keep = ang <= 90.0 + 1e-6
@@ -473,27 +552,29 @@ def _upward_tilts(crystal, variants, mount):
 class _PolarityProvider:
     """Polarity of terminations (cheap) and their reconstruction cells with corrugation (expensive)."""
 
-    def __init__(self, charged, reconstructions, max_cell, vis):
+    def __init__(self, charged: Crystal, reconstructions: bool, max_cell: int, vis: Visibility) -> None:
         self.charged = charged
         self.reconstructions = reconstructions
         self.max_cell = max_cell
         self.vis = vis
 
-    def polarity(self, ft, t):
+    def polarity(self, ft: FaceTerminations, t: Termination) -> tuple[bool, TerminationPolarity]:
         """(Tasker type III?, the polarity record without cells)."""
         pol = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=False)
         return pol.tasker_type == "III", pol
 
-    def may_have_cells(self, pol) -> bool:
+    def may_have_cells(self, pol: TerminationPolarity | None) -> bool:
         """Whether a cell search can give anything: reconstructions asked for, a polar termination to compensate."""
         return (
             bool(self.reconstructions) and pol is not None and pol.tasker_type == "III" and pol.compensation is not None
         )
 
-    def cells(self, ft, t, rotations, pol):
+    def cells(
+        self, ft: FaceTerminations, t: Termination, rotations: IntArray, pol: TerminationPolarity
+    ) -> list[tuple[str, list[CorrugationPattern]]]:
         """[(cell label, [pattern with its domains superposed]), ...] of the best cells, best first."""
         full = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=True)
-        out = []
+        out: list[tuple[str, list[CorrugationPattern]]] = []
         for r in _kept_cells(full.reconstructions):
             try:
                 pattern = reconstruction_corrugation(ft, t.id, r, self.vis, crystal=self.charged)
@@ -503,7 +584,9 @@ class _PolarityProvider:
         return out
 
 
-def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
+def _polarity_provider(
+    crystal: Crystal, charges: Mapping[str, float] | None, reconstructions: bool, max_cell: int, vis: Visibility
+) -> tuple[Crystal, _PolarityProvider | None, list[str]]:
     """Charged crystal, a :class:`_PolarityProvider` (None without formal charges) and notes.
 
     Without formal charges (given, from the file, or the built-in guess) the

@@ -129,8 +129,8 @@ _CAUSES = {
 
 
 def fit_check(
-    residuals: Sequence[tuple[str, float]],
-    step_residuals: Sequence[float],
+    residuals: Sequence[tuple[str, float | None]],
+    step_residuals: Sequence[float | None],
     *,
     outlier_fraction: float,
     alpha: float,
@@ -141,9 +141,10 @@ def fit_check(
     Parameters
     ----------
     residuals : sequence of (criterion, z)
-        Non-step residuals; criterion is 'tilt' or 'lattice'.
-    step_residuals : sequence of float
-        z of each measured step against its nearest allowed height.
+        Non-step residuals; criterion is 'tilt' or 'lattice'; z None or not finite: left out.
+    step_residuals : sequence of float or None
+        z of each measured step against its nearest allowed height; None (no allowed
+        height at all) or not finite: an outlier.
     outlier_fraction : float
         Probability that a step is an outlier (the model's eps).
     alpha : float

@@ -54,14 +54,25 @@ the best candidate fits at all.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from typing import Any, TypedDict, Unpack
 
 import numpy as np
 
+from termination.arrays import FloatArray
+from termination.bulk.crystal import Crystal
 from termination.bulk.summary import StructureSummary
 from termination.defaults import MAX_INDEX
 from termination.errors import MeasurementError
-from termination.identification.candidates import Candidate, CandidateTable, candidate_table, fraction_grid, logsumexp
+from termination.identification.candidates import (
+    Candidate,
+    CandidateOptions,
+    CandidateTable,
+    candidate_table,
+    fraction_grid,
+    logsumexp,
+)
 from termination.identification.fit import FitCheck, fit_check
 from termination.identification.lattices import (
     angle_log_likelihood,
@@ -74,11 +85,13 @@ from termination.identification.measurement import Measurement, Value
 from termination.identification.model import MatchModel
 from termination.identification.verdict import Verdict, verdict
 from termination.surface.corrugation import ApparentLattice, Visibility
+from termination.surface.miller import HKL
 from termination.surface.terminations import TerminationRef
 from termination.units import ANGSTROM, DEG
 
 __all__ = [
     "Criterion",
+    "EffectiveMeasurement",
     "FaceProbability",
     "MatchReport",
     "MatchRow",
@@ -203,7 +216,24 @@ class MatchReport:
 # --------------------------------------------------------------------------- measurement
 
 
-def effective_measurement(measurement: Measurement, model: MatchModel) -> dict:
+class EffectiveMeasurement(TypedDict):
+    """Measured values with the uncertainties used (:func:`effective_measurement`).
+
+    Attributes
+    ----------
+    tilt, row_angle : (value, sigma) or None
+        Degrees.
+    spacings, steps : (M, 2) FloatArray
+        Rows (value, sigma), Å.
+    """
+
+    tilt: tuple[float, float] | None
+    row_angle: tuple[float, float] | None
+    spacings: FloatArray
+    steps: FloatArray
+
+
+def effective_measurement(measurement: Measurement, model: MatchModel) -> EffectiveMeasurement:
     """Measured values and the uncertainties used, with the documented defaults applied.
 
     Returns a dict with ``tilt`` and ``row_angle`` ((value, sigma) or None) and
@@ -213,13 +243,13 @@ def effective_measurement(measurement: Measurement, model: MatchModel) -> dict:
     m = measurement
     floor = 1e-3  # a zero uncertainty would make the densities singular
 
-    def pair(v, default_sigma):
+    def pair(v: Value | None, default_sigma: Callable[[float], float]) -> tuple[float, float] | None:
         if v is None:
             return None
         s = default_sigma(v.value) if v.sigma is None else v.sigma
         return (float(v.value), max(float(s), floor))
 
-    def pairs(values, rel, minimum):
+    def pairs(values: tuple[Value, ...], rel: float, minimum: float) -> FloatArray:
         return np.array([pair(v, lambda x: max(rel * abs(x), minimum)) for v in values], dtype=float).reshape(-1, 2)
 
     tilt = pair(m.tilt, lambda _: model.tilt_sigma_deg)
@@ -242,14 +272,14 @@ class _Scored:
 
     loglik: float
     terms: Terms
-    fractions: np.ndarray
+    fractions: FloatArray
     lattice_class: int
     reading: tuple[float, float, float] | None
     swapped: bool
     lattice_z: list[float]
 
 
-def _tilt_term(c: Candidate, eff) -> float | None:
+def _tilt_term(c: Candidate, eff: EffectiveMeasurement) -> float | None:
     if eff["tilt"] is None:
         return None
     theta, s = eff["tilt"]
@@ -259,7 +289,9 @@ def _tilt_term(c: Candidate, eff) -> float | None:
     return float(logsumexp(lp) - math.log(len(c.tilts)))
 
 
-def _lattice_term(lattices: tuple[ApparentLattice, ...], periods: tuple[float, ...], eff, model: MatchModel):
+def _lattice_term(
+    lattices: tuple[ApparentLattice, ...], periods: tuple[float, ...], eff: EffectiveMeasurement, model: MatchModel
+) -> tuple[float | None, tuple[float, float, float] | None, bool]:
     """(log L, best reading, swapped) of the spacings and row angle under one class's lattices."""
     spacings, alpha = eff["spacings"], eff["row_angle"]
     if not len(spacings) and alpha is None:
@@ -268,7 +300,8 @@ def _lattice_term(lattices: tuple[ApparentLattice, ...], periods: tuple[float, .
     weights = np.full(len(readings), 1.0 / len(readings))
     p = np.asarray(periods, float)
     pw = np.full(len(p), 1.0 / len(p))
-    total, best, swapped = 0.0, None, False
+    total, swapped = 0.0, False
+    best: tuple[float, float, float] | None = None
     rest = spacings
     if len(spacings) >= 2:
         value, k, swapped = pair_log_likelihood(
@@ -281,7 +314,7 @@ def _lattice_term(lattices: tuple[ApparentLattice, ...], periods: tuple[float, .
             dof=model.tail_dof,
         )
         total += value
-        best = tuple(float(v) for v in readings[k])
+        best = (float(readings[k, 0]), float(readings[k, 1]), float(readings[k, 2]))
         rest = spacings[2:]
     elif alpha is not None:
         total += angle_log_likelihood(alpha, readings[:, 2], weights, dof=model.tail_dof)
@@ -290,7 +323,7 @@ def _lattice_term(lattices: tuple[ApparentLattice, ...], periods: tuple[float, .
     return total, best, swapped
 
 
-def _step_density(c: Candidate, eff, model: MatchModel):
+def _step_density(c: Candidate, eff: EffectiveMeasurement, model: MatchModel) -> tuple[FloatArray, FloatArray]:
     """(C, M) normal densities of every measured step under every allowed step, and the sigmas used."""
     h = eff["steps"][:, 0]
     sig = eff["steps"][:, 1]
@@ -300,15 +333,16 @@ def _step_density(c: Candidate, eff, model: MatchModel):
     return dens, s
 
 
-def _step_weights(c: Candidate, grid: np.ndarray) -> np.ndarray:
+def _step_weights(c: Candidate, grid: FloatArray) -> FloatArray:
     """(G, C) normalised weights of the allowed steps at each grid point of class fractions."""
     lower = np.asarray(c.step_lower, int)
     upper = np.asarray(c.step_upper, int)
-    w = grid[:, lower] * grid[:, upper] * np.asarray(c.step_factors, float)[None, :]
-    return w / w.sum(axis=1, keepdims=True)
+    w: FloatArray = grid[:, lower] * grid[:, upper] * np.asarray(c.step_factors, float)[None, :]
+    total: FloatArray = w.sum(axis=1, keepdims=True)
+    return w / total
 
 
-def _score_one(c: Candidate, eff, model: MatchModel) -> _Scored:
+def _score_one(c: Candidate, eff: EffectiveMeasurement, model: MatchModel) -> _Scored:
     tilt = _tilt_term(c, eff)
     k = len(c.classes)
     grid = fraction_grid(k)
@@ -317,11 +351,11 @@ def _score_one(c: Candidate, eff, model: MatchModel) -> _Scored:
     with np.errstate(divide="ignore"):
         log_grid = np.log(grid)
     total_g = np.zeros(len(grid))
-    lattice_g = None
+    lattice_g: FloatArray | None = None
     if has_lattice:
         lattice_g = logsumexp(log_grid + np.array([v[0] for v in lat])[None, :], axis=1)
         total_g = total_g + lattice_g
-    steps_g = None
+    steps_g: FloatArray | None = None
     if len(eff["steps"]):
         if c.step_heights:
             dens, _ = _step_density(c, eff, model)
@@ -337,7 +371,7 @@ def _score_one(c: Candidate, eff, model: MatchModel) -> _Scored:
     fractions = weights @ grid
     mean_total = float(logsumexp(total_g) - math.log(len(grid)))
 
-    def marginal(values):
+    def marginal(values: FloatArray | None) -> float | None:
         if values is None:
             return None
         return float(logsumexp(values) - math.log(len(grid)))
@@ -357,7 +391,9 @@ def _z(value: float, predicted: float, sigma: float) -> float:
     return (value - predicted) / sigma
 
 
-def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
+def _criteria(
+    c: Candidate, sc: _Scored, eff: EffectiveMeasurement, model: MatchModel
+) -> tuple[Criterion | None, tuple[Criterion, ...], Criterion | None, tuple[StepCriterion, ...], ApparentLattice]:
     """Per-criterion predictions and residuals of a scored candidate (for the table, the JSON and the fit)."""
     tilt = None
     if eff["tilt"] is not None:
@@ -372,7 +408,7 @@ def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
     row_angle = None
     sp = eff["spacings"]
 
-    def spacing_criterion(value, sigma, predicted):
+    def spacing_criterion(value: float, sigma: float, predicted: float | None) -> Criterion:
         if predicted is None or not math.isfinite(predicted):
             return Criterion(value, sigma, None, None)
         total = math.hypot(sigma, model.model_rel * predicted)
@@ -389,8 +425,8 @@ def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
         rest = sp[2:]
     periods = [p for p in c.periods[sc.lattice_class] if math.isfinite(p)]
     for v, s in rest:
-        pred = min(periods, key=lambda p: abs(v - p) / math.hypot(s, model.model_rel * p)) if periods else None
-        spacings.append(spacing_criterion(v, s, pred))
+        nearest = min(periods, key=lambda p: abs(v - p) / math.hypot(s, model.model_rel * p)) if periods else None
+        spacings.append(spacing_criterion(v, s, nearest))
     if eff["row_angle"] is not None:
         v, s = eff["row_angle"]
         if angles:
@@ -399,7 +435,7 @@ def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
             row_angle = Criterion(v, s, pred, _z(v, pred, s))
         else:
             row_angle = Criterion(v, s, None, None)
-    steps = []
+    steps: list[StepCriterion] = []
     if len(eff["steps"]):
         refs = {m: ref for ref, members in zip(c.classes, c.members) for m in members}
         if c.step_heights:
@@ -431,7 +467,7 @@ def _criteria(c: Candidate, sc: _Scored, eff, model: MatchModel):
     return tilt, tuple(spacings), row_angle, tuple(steps), lattice
 
 
-def _row(rank: int, c: Candidate, sc: _Scored, p: float, eff, model: MatchModel) -> MatchRow:
+def _row(rank: int, c: Candidate, sc: _Scored, p: float, eff: EffectiveMeasurement, model: MatchModel) -> MatchRow:
     tilt, spacings, row_angle, steps, lattice = _criteria(c, sc, eff, model)
     return MatchRow(
         rank=rank,
@@ -455,7 +491,7 @@ def _row(rank: int, c: Candidate, sc: _Scored, p: float, eff, model: MatchModel)
 
 
 def _fit(row: MatchRow, model: MatchModel) -> FitCheck:
-    residuals = []
+    residuals: list[tuple[str, float]] = []
     if row.tilt is not None:
         residuals.append(("tilt", row.tilt.residual if row.tilt.residual is not None else math.inf))
     for s in row.spacings:
@@ -532,10 +568,10 @@ def score(table: CandidateTable, measurement: Measurement, top: int | None = Non
     )
 
 
-def _echo(eff, mount, max_index) -> Measurement:
+def _echo(eff: EffectiveMeasurement, mount: HKL | None, max_index: int) -> Measurement:
     """The measurement as scored: values with the uncertainties actually used."""
 
-    def values(a):
+    def values(a: FloatArray) -> tuple[Value, ...]:
         return tuple(Value(float(v), float(sg)) for v, sg in a)
 
     return Measurement(
@@ -548,7 +584,7 @@ def _echo(eff, mount, max_index) -> Measurement:
     )
 
 
-def _face_marginals(candidates, prob) -> tuple[FaceProbability, ...]:
+def _face_marginals(candidates: Sequence[Candidate], prob: FloatArray) -> tuple[FaceProbability, ...]:
     """Faces ranked by their summed probability."""
     total: dict[tuple[int, int, int], float] = {}
     for c, p in zip(candidates, prob):
@@ -557,14 +593,16 @@ def _face_marginals(candidates, prob) -> tuple[FaceProbability, ...]:
     return tuple(FaceProbability(hkl=h, probability=p) for h, p in ranked)
 
 
-def match(crystal, measurement: Measurement, *, top: int | None = None, **options) -> MatchReport:
+def match(
+    crystal: Crystal, measurement: Measurement, *, top: int | None = None, **options: Unpack[CandidateOptions]
+) -> MatchReport:
     """Rank the faces and terminations of ``crystal`` against ``measurement``.
 
     ``options`` go to :func:`termination.identification.candidates.candidate_table`;
     ``measurement.mount``, ``max_index`` and the visibility fields are used
     when the options do not set them.
     """
-    opts = dict(options)
+    opts = CandidateOptions(**options)
     opts.setdefault("mount", measurement.mount)
     opts.setdefault("max_index", measurement.max_index or MAX_INDEX)
     if "visibility" not in opts:
@@ -581,7 +619,9 @@ def match(crystal, measurement: Measurement, *, top: int | None = None, **option
 CONTENTION_MARGIN = 25.0
 
 
-def cells_in_contention(measurement: Measurement, model: MatchModel):
+def cells_in_contention(
+    measurement: Measurement, model: MatchModel
+) -> Callable[[Sequence[Candidate]], set[tuple[HKL, str]]]:
     """A ``select_cells`` function for :func:`candidate_table`: the terminations whose cells may matter.
 
     A cell shares its termination's tilt and steps; only its lattice differs,
@@ -597,13 +637,13 @@ def cells_in_contention(measurement: Measurement, model: MatchModel):
     sigmas = [s for _, s in eff["spacings"]] + ([eff["row_angle"][1]] if eff["row_angle"] is not None else [])
     lattice_max = float(sum(log_student(0.0, 0.0, s, dof) for s in sigmas))
 
-    def select(candidates):
+    def select(candidates: Sequence[Candidate]) -> set[tuple[HKL, str]]:
         if not candidates:
             return set()
         prior = [0.0 if model.flat_prior else c.log_prior for c in candidates]
         scored = [_score_one(c, eff, model) for c in candidates]
         best = max(p + sc.loglik for p, sc in zip(prior, scored))
-        out = set()
+        out: set[tuple[HKL, str]] = set()
         for c, p, sc in zip(candidates, prior, scored):
             if c.cell is None and not c.mixed:
                 bound = p + (sc.terms.tilt or 0.0) + (sc.terms.steps or 0.0) + lattice_max
@@ -616,7 +656,7 @@ def cells_in_contention(measurement: Measurement, model: MatchModel):
 
 def measurement_visibility(measurement: Measurement) -> Visibility:
     """The corrugation model a measurement file asks for (visible species, weights, decay length)."""
-    kw: dict = {}
+    kw: dict[str, Any] = {}
     if measurement.visible:
         kw["visible"] = measurement.visible
     if measurement.weights:

@@ -36,10 +36,13 @@ comments and blank lines ignored (:func:`read_steps`, :func:`write_steps`).
 from __future__ import annotations
 
 import math
+import os
 import re
 import tomllib
+from collections.abc import Iterable
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from termination.defaults import MAX_LENGTH_ANGSTROM
 from termination.errors import MeasurementError, TerminationError
@@ -48,6 +51,9 @@ from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
 from termination.surface.corrugation import parse_site_weights
 from termination.units import ANGSTROM, DEG
+
+if TYPE_CHECKING:
+    from termination.imaging.analysis import HeightMapAnalysis
 
 __all__ = [
     "Measurement",
@@ -78,7 +84,7 @@ _TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "ce
 _VISIBILITY_KEYS = {"visible", "weights", "decay_length", "depth", "site_weights"}
 
 
-def _check_real(number, what):
+def _check_real(number: object, what: str) -> float:
     """Return ``number`` as a finite float or raise MeasurementError naming ``what``."""
     if isinstance(number, bool) or not isinstance(number, (int, float)):
         raise MeasurementError(f"{what} must be a number, got {number!r}")
@@ -109,7 +115,7 @@ class Value:
     value: float
     sigma: float | None = None
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         object.__setattr__(self, "value", _check_real(self.value, "value"))
         if self.sigma is not None:
             sigma = _check_real(self.sigma, "sigma")
@@ -117,7 +123,7 @@ class Value:
                 raise MeasurementError(f"sigma must be non-negative, got {sigma!r}")
             object.__setattr__(self, "sigma", sigma)
 
-    def __str__(self):
+    def __str__(self) -> str:
         if self.sigma is None:
             return f"{self.value:g}"
         return f"{self.value:g}±{self.sigma:g}"
@@ -171,11 +177,11 @@ class Measurement:
     site_weights: dict[str, float] = field(default_factory=dict)
     cells: tuple[str, ...] = ()
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         _check_measurement(self)
 
 
-def _check_mount(mount, what="mount"):
+def _check_mount(mount: Any, what: str = "mount") -> tuple[int, ...]:
     wanted = "three integers (h, k, l) or four (h, k, i, l)"
     if isinstance(mount, (str, bytes)) or not hasattr(mount, "__len__") or len(mount) not in (3, 4):
         raise MeasurementError(f"{what} must be {wanted}, got {mount!r}")
@@ -196,7 +202,14 @@ def _check_mount(mount, what="mount"):
     return tuple(out)
 
 
-def _check_value(v, what, low=None, high=None, low_open=False, high_open=False):
+def _check_value(
+    v: object,
+    what: str,
+    low: float | None = None,
+    high: float | None = None,
+    low_open: bool = False,
+    high_open: bool = False,
+) -> Value:
     if not isinstance(v, Value):
         raise MeasurementError(f"{what} must be a Value, got {v!r}")
     x = v.value
@@ -209,7 +222,7 @@ def _check_value(v, what, low=None, high=None, low_open=False, high_open=False):
     return v
 
 
-def _check_measurement(m):
+def _check_measurement(m: Measurement) -> None:
     """Validate and normalise the fields of a Measurement in place (one check)."""
     set_ = object.__setattr__
     if m.mount is not None:
@@ -279,7 +292,7 @@ def _check_measurement(m):
     set_(m, "cells", cells)
 
 
-def parse_value(text):
+def parse_value(text: str) -> Value:
     """Parse a measured value written as ``54``, ``54+-2``, ``54±2`` or ``54 +/- 2``.
 
     Parameters
@@ -326,7 +339,7 @@ def parse_value(text):
 # --------------------------------------------------------------------------- reading
 
 
-def _value_from_toml(obj, what):
+def _value_from_toml(obj: object, what: str) -> Value:
     if isinstance(obj, str):
         try:
             return parse_value(obj)
@@ -350,19 +363,20 @@ def _value_from_toml(obj, what):
     raise MeasurementError(f"{what} must be {{ value = ..., sigma = ... }}, got {obj!r}")
 
 
-def _values_from_toml(obj, what):
+def _values_from_toml(obj: object, what: str) -> tuple[Value, ...]:
     if not isinstance(obj, list):
         raise MeasurementError(f"{what} must be a list of {{ value = ..., sigma = ... }}, got {obj!r}")
     return tuple(_value_from_toml(v, f"{what}[{i}]") for i, v in enumerate(obj))
 
 
-def _measurement_from_dict(data, source):
+def _measurement_from_dict(data: dict[str, Any], source: str) -> Measurement:
     unknown = set(data) - _TOP_KEYS
     if unknown:
         raise MeasurementError(
             f"{source}: unknown key {sorted(unknown)[0]!r}; known keys are {', '.join(sorted(_TOP_KEYS))}"
         )
-    kw = {}
+    # Raw TOML values: Measurement checks each one and names the bad key.
+    kw: dict[str, Any] = {}
     try:
         if "mount" in data:
             kw["mount"] = _check_mount(data["mount"])
@@ -404,7 +418,7 @@ def _measurement_from_dict(data, source):
         raise MeasurementError(f"{source}: {exc}") from None
 
 
-def read_measurement(path):
+def read_measurement(path: str | os.PathLike[str]) -> Measurement:
     """Read a measurement file (TOML, Å and degrees).
 
     Parameters
@@ -436,19 +450,19 @@ def read_measurement(path):
 # --------------------------------------------------------------------------- writing
 
 
-def _toml_float(x):
+def _toml_float(x: float) -> str:
     # repr gives the shortest text that reads back to the same float.
     text = repr(float(x))
     return text if any(c in text for c in ".en") else text + ".0"
 
 
-def _toml_value(v):
+def _toml_value(v: Value) -> str:
     if v.sigma is None:
         return f"{{ value = {_toml_float(v.value)} }}"
     return f"{{ value = {_toml_float(v.value)}, sigma = {_toml_float(v.sigma)} }}"
 
 
-def _toml_string(s):
+def _toml_string(s: str) -> str:
     out = ['"']
     for ch in s:
         if ch in '"\\':
@@ -461,11 +475,11 @@ def _toml_string(s):
     return "".join(out)
 
 
-def _toml_key(k):
+def _toml_key(k: str) -> str:
     return k if _BARE_KEY_RE.match(k) else _toml_string(k)
 
 
-def format_measurement(measurement, *, comment=None):
+def format_measurement(measurement: Measurement, *, comment: str | None = None) -> str:
     """The TOML text of a measurement, as written by :func:`write_measurement`.
 
     Parameters
@@ -524,11 +538,13 @@ def format_measurement(measurement, *, comment=None):
     return "\n".join(lines) + "\n"
 
 
-def _write_new(path, text, force, error):
+def _write_new(path: str | os.PathLike[str], text: str, force: bool, error: type[TerminationError]) -> Path:
     return write_text(path, text, force=force, error=error)
 
 
-def write_measurement(path, measurement, *, force=False, comment=None):
+def write_measurement(
+    path: str | os.PathLike[str], measurement: Measurement, *, force: bool = False, comment: str | None = None
+) -> Path:
     """Write a measurement file that :func:`read_measurement` reads back unchanged.
 
     Parameters
@@ -563,7 +579,7 @@ def write_measurement(path, measurement, *, force=False, comment=None):
 # --------------------------------------------------------------------------- step lists
 
 
-def read_steps(path):
+def read_steps(path: str | os.PathLike[str]) -> tuple[Value, ...]:
     """Read a step-height list: one height in Å per line, optional sigma column.
 
     Parameters
@@ -618,7 +634,9 @@ def read_steps(path):
     return tuple(steps)
 
 
-def format_steps(steps, *, comment=None):
+def format_steps(
+    steps: Iterable[Value | tuple[float, ...] | list[float] | float], *, comment: str | None = None
+) -> str:
     """The text of a step list as read by :func:`read_steps`.
 
     Examples
@@ -641,7 +659,13 @@ def format_steps(steps, *, comment=None):
     return "\n".join(lines) + "\n"
 
 
-def write_steps(path, steps, *, force=False, comment=None):
+def write_steps(
+    path: str | os.PathLike[str],
+    steps: Iterable[Value | tuple[float, ...] | list[float] | float],
+    *,
+    force: bool = False,
+    comment: str | None = None,
+) -> Path:
     """Write a step list for ``termination match --steps FILE``.
 
     Parameters
@@ -669,7 +693,7 @@ def write_steps(path, steps, *, force=False, comment=None):
 # --------------------------------------------------------------------------- merging
 
 
-def merge(base, override):
+def merge(base: Measurement, override: Measurement) -> Measurement:
     """Combine two measurements; every non-empty field of ``override`` wins.
 
     Used to let command-line values override a measurement file. A field is
@@ -704,7 +728,7 @@ def merge(base, override):
 # --------------------------------------------------------------------------- from a height map
 
 
-def _rounded(value, sigma):
+def _rounded(value: float, sigma: float | None) -> Value:
     """A Value with the sigma to two significant digits and the value to 1e-4.
 
     >>> _rounded(1.2497828713, 0.0055775785)
@@ -715,7 +739,9 @@ def _rounded(value, sigma):
     return Value(round(float(value), 4), sigma)
 
 
-def measurement_from_image(analysis, *, mount=None, max_index=None):
+def measurement_from_image(
+    analysis: HeightMapAnalysis, *, mount: Iterable[int] | None = None, max_index: int | None = None
+) -> Measurement:
     """The measurement a height map supports, for ``termination match``.
 
     Parameters
@@ -748,7 +774,8 @@ def measurement_from_image(analysis, *, mount=None, max_index=None):
         sigma = t.terrace_sigma if t.terrace_sigma is not None and math.isfinite(t.terrace_sigma) else None
         tilt = _rounded(min(max(t.terrace, 0.0), 90.0), sigma)
     lat = analysis.lattice
-    spacings, row_angle = (), None
+    spacings: tuple[Value, ...] = ()
+    row_angle: Value | None = None
     if lat is not None:
         spacings = (_rounded(lat.a, lat.sigma_a), _rounded(lat.b, lat.sigma_b))
         if analysis.drift is None:

@@ -206,7 +206,7 @@ def verdict(
     if twins:
         names = ", ".join(sorted({_short(r, hexagonal) for r in twins}))
         text += f" {names} predicts the same topography: these measurements cannot tell them apart."
-    if runner is None:
+    if runner is None or crunner is None:  # both or neither
         return Verdict(text, "only candidate with these predictions", None)
     decided = _decided_by(best, runner, default_visibility, hexagonal)
     warning = None

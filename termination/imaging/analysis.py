@@ -231,6 +231,8 @@ def analyse_heightmap(
     report(0.1, "terraces")
     fit = fit_terraces(z, valid, coords, px, params)
     a, b = fit.slope
+    terrace_tilt: float | None
+    terrace_az: float | None
     terrace_tilt, terrace_az = tilt_azimuth(a, b)
 
     report(0.6, "steps")
@@ -256,14 +258,15 @@ def analyse_heightmap(
         sig_slope = math.sqrt(max(float(np.trace(cov_ab)) / 2, 0.0))
     else:
         sig_slope = float("nan")
-    terrace_sigma = math.degrees(sig_slope / (1 + slope * slope))
+    terrace_sigma: float | None = math.degrees(sig_slope / (1 + slope * slope))
     relief_limit = params.max_relief_fraction * params.min_step_angstrom
     hidden = fit.structure > params.max_structure_ratio and fit.peak_relief > relief_limit
     # with one level only, a background with relief of a step's size may hide the staircase
-    bent = n_levels < 2 and fit.background is not None and fit.background.rms > relief_limit
+    background_rms = 0.0 if fit.background is None else fit.background.rms
+    bent = n_levels < 2 and fit.background is not None and background_rms > relief_limit
     if bent and not hidden:
         notes.append(
-            f"terrace tilt not determined: one level only, and the fitted background ({fit.background.rms:.2f} Å "
+            f"terrace tilt not determined: one level only, and the fitted background ({background_rms:.2f} Å "
             "rms) could hide steps the segmentation did not resolve"
         )
         terrace_tilt = terrace_az = terrace_sigma = None

@@ -40,6 +40,7 @@ from typing import Any
 
 import numpy as np
 
+from termination.arrays import AnyArray
 from termination.errors import ImageError
 from termination.imaging.limits import check_declared
 
@@ -64,7 +65,7 @@ class RawImage:
 
     Parameters
     ----------
-    data : (ny, nx) ndarray
+    data : (ny, nx) AnyArray
         The stored numbers of the channel; NaN for pixels never recorded.
     pixel_size : (float, float) or None
         Pixel size along x and y from the file's metadata, Å.
@@ -80,7 +81,7 @@ class RawImage:
         Every channel the file holds (``name`` or ``name:direction``).
     """
 
-    data: np.ndarray
+    data: AnyArray
     pixel_size: tuple[float, float] | None = None
     z_scale: float | None = None
     channel: str | None = None
@@ -122,8 +123,8 @@ def _pick(
                     return i
         listed = ", ".join(_label(c) for c in channels)
         raise ImageError(f"{path.name}: no height channel found; choose one with --channel ({listed})")
-    name, _, direction = str(wanted).partition(":")
-    direction = direction.strip().lower() or None
+    name, _, suffix = str(wanted).partition(":")
+    direction = suffix.strip().lower() or None
     if direction not in (None, "forward", "backward"):
         raise ImageError(f"channel direction must be forward or backward, got {wanted!r}")
     for i, (n, d) in enumerate(channels):
@@ -151,7 +152,8 @@ def _sxm_header(path: Path) -> tuple[dict[str, list[str]], int]:
     if start < 0:
         raise ImageError(f"{path.name}: the header ends without the 1A 04 code before the data")
     text = head[:end].decode("latin-1")
-    fields, key = {}, None
+    fields: dict[str, list[str]] = {}
+    key: str | None = None
     for line in text.replace("\r\n", "\n").replace("\r", "\n").split("\n"):
         m = re.fullmatch(r":(.+):", line.strip())
         if m:
@@ -191,7 +193,9 @@ def _read_sxm(path: Path, channel: str | None) -> RawImage:
         i_name, i_unit, i_dir = head.index("name"), head.index("unit"), head.index("direction")
     except ValueError:
         raise ImageError(f"{path.name}: DATA_INFO needs Name, Unit and Direction columns, got {table[0]!r}") from None
-    channels, units, blocks = [], [], []
+    channels: list[tuple[str, str | None]] = []
+    units: list[str] = []
+    blocks: list[int] = []
     for row in table[1:]:
         if len(row) <= max(i_name, i_unit, i_dir):
             raise ImageError(f"{path.name}: DATA_INFO row {row!r} is short")
@@ -300,12 +304,12 @@ def _read_nexus(path: Path, channel: str | None) -> RawImage:
             axes = _attr_text(axes)
             axes = [axes] if isinstance(axes, str) else list(axes)
             if len(axes) == 2 and all(a in group for a in axes):
-                sizes = []
+                sizes: list[float] = []
                 for a in axes[::-1]:  # NeXus lists the slow axis (y) first
                     coord = np.asarray(group[a][()], dtype=np.float64).ravel()
                     scale = _unit_angstrom(_attr_text(group[a].attrs.get("units", "")), f"axis {a!r}", path)
                     if coord.size < 2 or scale is None:
-                        sizes = None
+                        sizes = []  # an axis without a length scale: no pixel size
                         break
                     step = np.diff(coord)
                     if not np.all(np.isfinite(step)) or np.any(step == 0):
@@ -356,7 +360,7 @@ def _read_ibw(path: Path, channel: str | None) -> RawImage:
         raise ImageError(f"{path.name}: an image wave has 2 or 3 dimensions, this one {data.ndim}")
     labels = wave.get("labels") or []
     layer_labels = [_attr_text(v) for v in labels[2][1:]] if len(labels) > 2 and labels[2] else []
-    channels = []
+    channels: list[tuple[str, str | None]] = []
     for i in range(data.shape[2]):
         label = layer_labels[i] if i < len(layer_labels) and layer_labels[i] else f"layer{i}"
         m = re.fullmatch(r"(.+?)(Retrace|Trace)", label)
@@ -371,8 +375,9 @@ def _read_ibw(path: Path, channel: str | None) -> RawImage:
     data_units = _attr_text(np.asarray(header["dataUnits"])[0])
     px = None
     scales = [_unit_angstrom(u, "image axis", path) for u in dim_units]
-    if all(s is not None for s in scales) and all(v > 0 and math.isfinite(v) for v in sfa):
-        px = (sfa[0] * scales[0], sfa[1] * scales[1])
+    sx, sy = scales[0], scales[1]
+    if sx is not None and sy is not None and all(v > 0 and math.isfinite(v) for v in sfa):
+        px = (sfa[0] * sx, sfa[1] * sy)
     z_scale = _unit_angstrom(data_units, f"channel {channels[index][0]!r}", path)
     image = np.ascontiguousarray(data[:, :, index].T.astype(np.float64))
     return RawImage(

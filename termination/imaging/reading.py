@@ -50,10 +50,10 @@ import os
 import re
 import stat
 import tomllib
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, TypedDict, TypeVar
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -106,7 +106,7 @@ class HeightMap:
 
     Parameters
     ----------
-    heights : (ny, nx) ndarray of float64
+    heights : (ny, nx) FloatArray
         Heights in Å; NaN marks missing pixels. Row index is y, column index is x.
     pixel_size : tuple of 2 float
         Distance between pixel centres along x (columns) and y (rows), Å.
@@ -121,7 +121,7 @@ class HeightMap:
         by ``+`` (pixel size first).
     """
 
-    heights: np.ndarray
+    heights: FloatArray
     pixel_size: tuple[float, float]
     path: str | None = None
     channel: str | None = None
@@ -216,7 +216,7 @@ def parse_pixel_size(spec: Any) -> tuple[float, float]:
     """
     what = "pixel size"
     if isinstance(spec, str):
-        parts = [m.group(0) for m in _PIXEL_TOKEN_RE.finditer(spec)]
+        parts: list[object] = [m.group(0) for m in _PIXEL_TOKEN_RE.finditer(spec)]
         if not parts or _PIXEL_TOKEN_RE.sub("", spec).strip(" \t,x×*") != "":
             raise ImageError(f"cannot read {what} {spec!r}; write e.g. '0.05nm' or '0.05nm,0.06nm'")
     elif isinstance(spec, (int, float)) and not isinstance(spec, bool):
@@ -228,7 +228,8 @@ def parse_pixel_size(spec: Any) -> tuple[float, float]:
             raise ImageError(f"{what} must be text like '0.05nm', got {spec!r}") from None
     if not 1 <= len(parts) <= 2:
         raise ImageError(f"{what} takes one value or two (x, y), got {spec!r}")
-    values, units = [], []
+    values: list[str] = []
+    units: list[str | None] = []
     for p in parts:
         if isinstance(p, str):
             v, u = _split_length(p, what)
@@ -242,10 +243,10 @@ def parse_pixel_size(spec: Any) -> tuple[float, float]:
             raise ImageError(f"{what} {spec!r} needs a number, e.g. '0.05nm'")
         values.append(v)
         units.append(u)
-    if units[-1] is None:
+    last = units[-1]
+    if last is None:
         raise ImageError(f"{what} {spec!r} needs a unit: pm, A, nm (e.g. '0.05nm')")
-    units = [u if u is not None else units[-1] for u in units]
-    sizes = [scaled(v, u) for v, u in zip(values, units)]
+    sizes = [scaled(v, u if u is not None else last) for v, u in zip(values, units)]
     if len(sizes) == 1:
         sizes *= 2
     for size in sizes:
@@ -306,7 +307,14 @@ def sidecar_path(path: str | os.PathLike[str]) -> Path:
     return Path(path).with_suffix(".toml")
 
 
-def read_sidecar(path: str | os.PathLike[str]) -> dict[str, Any]:
+class Calibration(TypedDict, total=False):
+    """What a calibration sidecar sets (:func:`read_sidecar`): pixel size (x, y) in Å, Å per stored height unit."""
+
+    pixel_size: tuple[float, float]
+    z_unit: float
+
+
+def read_sidecar(path: str | os.PathLike[str]) -> Calibration:
     """Read a calibration sidecar TOML.
 
     Parameters
@@ -316,7 +324,7 @@ def read_sidecar(path: str | os.PathLike[str]) -> dict[str, Any]:
 
     Returns
     -------
-    dict
+    Calibration
         With the keys that are present: ``pixel_size`` (tuple of 2 float, Å)
         and ``z_unit`` (float, Å per stored unit).
 
@@ -335,10 +343,11 @@ def read_sidecar(path: str | os.PathLike[str]) -> dict[str, Any]:
     unknown = set(data) - _SIDECAR_KEYS
     if unknown:
         raise ImageError(f"{path}: unknown key {sorted(unknown)[0]!r}; known keys are pixel_size, z_unit")
-    out = {}
+    out = Calibration()
     for key in ("pixel_size", "z_unit"):
         # A bare TOML number has no unit; the file must say it, as --pixel-size and --z-unit do.
-        values = data.get(key) if isinstance(data.get(key), list) else [data.get(key)]
+        given = data.get(key)
+        values = given if isinstance(given, list) else [given]
         if any(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
             raise ImageError(
                 f"{path}: {key} = {data[key]!r} needs a unit, written as text, e.g. "
@@ -549,6 +558,22 @@ def _load_text(path: Path) -> FloatArray:
         raise ImageError(f"{str(path)!r}: {exc}") from None
 
 
+_T = TypeVar("_T")
+
+
+def _calibration(
+    given: Any, parse: Callable[[Any], _T], sidecar: _T | None, from_file: _T | None
+) -> tuple[str, _T] | None:
+    """(where from, value) of one calibration: the arguments, else the sidecar, else the file's metadata; or None."""
+    if given is not None:
+        return "arguments", parse(given)
+    if sidecar is not None:
+        return "sidecar", sidecar
+    if from_file is not None:
+        return "file", from_file
+    return None
+
+
 def read_heightmap(
     path: str | os.PathLike[str],
     *,
@@ -590,27 +615,16 @@ def read_heightmap(
     path = Path(path)
     raw = load_raw(path, channel)
     side = sidecar_path(path)
-    cal = read_sidecar(side) if side.is_file() and side != path else {}
-    sources = []
-    for given, key, from_file, parse in (
-        (pixel_size, "pixel_size", raw.pixel_size, parse_pixel_size),
-        (z_unit, "z_unit", raw.z_scale, parse_z_unit),
-    ):
-        if given is not None:
-            sources.append(("arguments", parse(given)))
-        elif key in cal:
-            sources.append(("sidecar", cal[key]))
-        elif from_file is not None:
-            sources.append(("file", from_file))
-        else:
-            sources.append((None, None))
-    (px_source, px), (z_source, zu) = sources
-    if px is None:
+    cal = read_sidecar(side) if side.is_file() and side != path else Calibration()
+    px_found = _calibration(pixel_size, parse_pixel_size, cal.get("pixel_size"), raw.pixel_size)
+    z_found = _calibration(z_unit, parse_z_unit, cal.get("z_unit"), raw.z_scale)
+    if px_found is None:
         raise ImageError(
             f"pixel size of {path.name} unknown: pass --pixel-size (e.g. 0.05nm) or set pixel_size in {side.name}"
         )
-    if zu is None:
+    if z_found is None:
         raise ImageError(f"height unit of {path.name} unknown: pass --z-unit nm|A|pm or set z_unit in {side.name}")
+    (px_source, px), (z_source, zu) = px_found, z_found
     if px_source == "file":
         for size in px:
             _check_pixel_angstrom(size, f"{size:g} Å from {path.name}")

@@ -335,7 +335,7 @@ class _Surface:
 
     background: SmoothBackground
     slope: tuple[float, float]
-    offsets: np.ndarray
+    offsets: FloatArray
     cov_ab: FloatArray | None
     cov_offsets: FloatArray | None
 
@@ -510,7 +510,7 @@ def _project_lines(r: AnyArray, y: FloatArray, weight: ArrayLike) -> AnyArray:
         coef = np.linalg.solve(design.T @ wd, wd.T @ r)
     except np.linalg.LinAlgError:
         return r - float(np.sum(w * r) / w.sum())
-    out = r - design @ coef
+    out: AnyArray = r - design @ coef
     out[w <= 0] = 0.0
     return out
 
@@ -552,8 +552,9 @@ def _initial_line_offsets(z: FloatArray, valid: BoolArray, y: FloatArray, half_w
 def _smooth(z: AnyArray, valid: BoolArray, sigma_px: float) -> AnyArray:
     """Gaussian smoothing that ignores NaN pixels (normalised convolution), in single precision."""
     if valid.all():
-        return ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest")
-    num = ndimage.gaussian_filter(np.where(valid, z, 0.0).astype(np.float32), sigma_px, mode="nearest")
+        smooth: AnyArray = ndimage.gaussian_filter(z.astype(np.float32), sigma_px, mode="nearest")
+        return smooth
+    num: AnyArray = ndimage.gaussian_filter(np.where(valid, z, 0.0).astype(np.float32), sigma_px, mode="nearest")
     den = ndimage.gaussian_filter(valid.astype(np.float32), sigma_px, mode="nearest")
     with np.errstate(invalid="ignore", divide="ignore"):
         num /= den
@@ -606,7 +607,8 @@ def _level_bounds(h: AnyArray, min_step: float, min_contrast: float, min_count: 
         mass = cum[cuts[1:]] - cum[cuts[:-1]]
         weakest = int(np.argmin(mass))
         if mass[weakest] >= min_count:
-            return 0.5 * (edges[mins] + edges[mins + 1])
+            bounds: AnyArray = 0.5 * (edges[mins] + edges[mins + 1])
+            return bounds
         peaks = np.delete(peaks, weakest)
     return np.empty(0)
 
@@ -660,25 +662,25 @@ class TerraceFit:
 
     Attributes
     ----------
-    labels : (ny, nx) int32 ndarray
+    labels : (ny, nx) int16 or int32 ndarray
         Terrace of each pixel used in the fit, 1..n; 0 for pixels left out
         (step edges, outliers, missing pixels, pieces too small to keep).
     n : int
         Number of terraces.
-    level_of : (n,) int ndarray
+    level_of : (n,) signed-integer ndarray
         Height level (histogram class) of each terrace.
     slope : (float, float)
         Plane slopes dz/dx, dz/dy.
-    offsets : (n,) ndarray
+    offsets : (n,) FloatArray
         Terrace offsets c_k, Å.
-    lines : (ny,) ndarray
+    lines : (ny,) FloatArray
         Scan-line offsets r_i, Å (zero when not fitted).
     background : SmoothBackground or None
         The smooth background, when one was needed.
     stats : dict
         Fit statistics of the final plane fit (pixel counts, centroids,
         residual variance ``s2``, normal matrix).
-    near_b, dist_b : ndarray
+    near_b, dist_b : int32 and float32 ndarray
         Nearest terrace of every pixel of the (binned) segmentation grid
         and the distance to it, binned pixels; :meth:`near` gives the
         nearest terrace of a block of full-resolution rows.
@@ -694,7 +696,7 @@ class TerraceFit:
         Root-mean-square height of the smoothed residual beyond noise, Å.
     peak_relief : float
         99th percentile of the smoothed residual's magnitude, Å.
-    surface_cov_ab, surface_cov_offsets : ndarray or None
+    surface_cov_ab, surface_cov_offsets : FloatArray or None
         Covariances of the slopes and of the terrace offsets from the
         smooth-surface solution (:func:`_solve_surface`), when a background
         was fitted.
@@ -709,16 +711,16 @@ class TerraceFit:
         Root-mean-square scan-line offset, Å.
     """
 
-    labels: np.ndarray
+    labels: NDArray[np.signedinteger[Any]]
     n: int
-    level_of: np.ndarray
+    level_of: NDArray[np.signedinteger[Any]]
     slope: tuple[float, float]
-    offsets: np.ndarray
-    lines: np.ndarray
+    offsets: FloatArray
+    lines: FloatArray
     background: SmoothBackground | None
     stats: dict[str, Any]
-    near_b: np.ndarray
-    dist_b: np.ndarray
+    near_b: NDArray[np.int32]
+    dist_b: NDArray[np.float32]
     correlation: float = 1.0
     excess_variance: float = 0.0
     structure: float = 1.0
@@ -728,8 +730,8 @@ class TerraceFit:
     line_rms: float = 0.0
     peak_relief: float = 0.0
     iterations: int = 0
-    surface_cov_ab: np.ndarray | None = None
-    surface_cov_offsets: np.ndarray | None = None
+    surface_cov_ab: FloatArray | None = None
+    surface_cov_offsets: FloatArray | None = None
     bin: int = 1
 
     def near(self, shape: tuple[int, ...], rows: slice = slice(None)) -> AnyArray:
@@ -739,7 +741,7 @@ class TerraceFit:
         if len(r) == 0:
             return np.zeros((0, shape[1]), dtype=np.int32)
         rb = np.minimum(np.arange(r.start, r.stop, r.step) // f, self.near_b.shape[0] - 1)
-        block = self.near_b[rb]
+        block: AnyArray = self.near_b[rb]
         if f == 1:
             return block
         full = np.repeat(block, f, axis=1)
@@ -1077,6 +1079,7 @@ def fit_terraces(
             result = current
         if change < p.slope_tol_deg and iteration > 1:
             break
+    assert result is not None  # max_iterations >= 1 (ImageParameters): the loop ran
     labels_b, n, level_of, bounds, slope, offsets, lines_b, background, stats, iterations, surface = result
     a, b = slope
     if surface is not None:
