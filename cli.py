@@ -40,6 +40,7 @@ from termination.defaults import (
     SYMPREC_ANGSTROM,
     UNIT_RATIO,
 )
+from termination.figures.canvas import FORMATS
 from termination.identification.model import MatchModel
 
 app = typer.Typer(
@@ -67,6 +68,7 @@ class _Command(typer.core.TyperCommand):
 
 command = functools.partial(app.command, cls=_Command)
 _TRACEBACK: contextvars.ContextVar[bool] = contextvars.ContextVar("traceback", default=False)
+_ARGV: contextvars.ContextVar[tuple[str, ...] | None] = contextvars.ContextVar("argv", default=None)
 DEMO_STRUCTURE = "half-heusler:Ti,Ni,Sn"
 DEMO_MEASUREMENT = "demo_TiNiSn_001.toml"
 
@@ -143,6 +145,22 @@ Depth = Annotated[
     ),
 ]
 Force = Annotated[bool, typer.Option("--force", help="Overwrite existing output files.")]
+Plot = Annotated[
+    str | None,
+    typer.Option(
+        "--plot", metavar="DIR", help="Write this command's figures to DIR (made if missing).", show_default=False
+    ),
+]
+PlotFormat = Annotated[str, typer.Option("--plot-format", metavar="FMT", help="Figure format: png, svg or pdf.")]
+Report = Annotated[
+    str | None,
+    typer.Option(
+        "--report",
+        metavar="FILE.html",
+        help="Write a self-contained HTML report (tables, figures, command, versions).",
+        show_default=False,
+    ),
+]
 
 
 # --------------------------------------------------------------------------- errors and rendering
@@ -238,6 +256,13 @@ def _require_plane(plane: tuple[int, int, int] | None) -> tuple[int, int, int]:
     return (int(plane[0]), int(plane[1]), int(plane[2]))
 
 
+def _inputs(structure: str | None) -> tuple[str, ...]:
+    """The structure file, when the structure is a file (outputs must never overwrite it)."""
+    import os
+
+    return (structure,) if structure is not None and os.path.exists(structure) else ()
+
+
 def _load(structure: str, a: float | None, x: float | None, symprec: float) -> Any:
     from termination.structures import load_structure
 
@@ -272,6 +297,74 @@ def _termination_rules(
     )
 
 
+class _Outputs:
+    """``--plot DIR``, ``--plot-format`` and ``--report FILE`` of one command: checked before the work, written after.
+
+    Figures and reports are drawn by :mod:`termination.figures` (matplotlib is imported only then) and
+    written through :mod:`termination.outputs`; a line on stderr names what was written.
+    """
+
+    def __init__(
+        self, plot: str | None, fmt: str, force: bool, report: str | None = None, inputs: tuple[str, ...] = ()
+    ) -> None:
+        self.plot, self.fmt, self.force, self.report, self.inputs = plot, fmt, force, report, inputs
+        if plot is not None:
+            from termination.figures.commands import check_plot_folder
+
+            self.fmt = check_plot_folder(plot, fmt)
+        if report is not None:
+            from termination.outputs import check_outputs
+
+            check_outputs([report], inputs, force=force)
+
+    @property
+    def wanted(self) -> bool:
+        return self.plot is not None or self.report is not None
+
+    def write(self, record: Any, plans: Any) -> None:
+        """Draw ``plans`` (a list of :class:`termination.figures.commands.PlannedFigure`) and write them."""
+        written: list[str] = []
+        if self.plot is not None:
+            from termination.figures.commands import write_figures
+
+            written += [str(p) for p in write_figures(plans, self.plot, self.fmt, force=self.force, inputs=self.inputs)]
+        if self.report is not None:
+            from termination.htmlreport import command_line, write_report
+
+            command = command_line(_ARGV.get() or _typed_command())
+            write_report(self.report, record, plans, command=command, force=self.force, inputs=self.inputs)
+            written.append(self.report)
+        if written:
+            shown = ", ".join(written[:4]) + (f" and {len(written) - 4} more" if len(written) > 4 else "")
+            typer.echo(f"termination: wrote {shown}", err=True)
+
+
+def _typed_command() -> list[str]:
+    """The arguments of the running command, rebuilt from its parsed options (when ``main`` did not see them)."""
+    import click
+
+    ctx = click.get_current_context()
+    args = [ctx.info_name or ""]
+    for param in ctx.command.params:
+        value = ctx.params.get(param.name or "")
+        if value is None or value is False or value == param.default or value == ():
+            continue
+        if isinstance(param, click.Argument):
+            args += [str(v) for v in (value if isinstance(value, (list, tuple)) else [value])]
+            continue
+        flag = param.opts[0]
+        if value is True:
+            args.append(flag)
+        elif isinstance(value, (list, tuple)) and getattr(param, "multiple", False):
+            for v in value:
+                args += [flag, *(str(u) for u in (v if isinstance(v, (list, tuple)) else [v]))]
+        elif isinstance(value, (list, tuple)):
+            args += [flag, *(str(v) for v in value)]
+        else:
+            args += [flag, str(value)]
+    return args
+
+
 # --------------------------------------------------------------------------- commands
 
 
@@ -303,16 +396,24 @@ def planes(
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
     """Symmetry-distinct faces: spacing d, tilt to the mount face, mesh, terminations, polarity."""
     from termination.reports import planes_report
 
+    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     report = planes_report(
         crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge), tilt_window=tilt_window
     )
+    if outputs.wanted:
+        from termination.figures.commands import planes_figures
+
+        outputs.write(report, planes_figures(report, crystal))
     render("planes", report, json_out, wide)
 
 
@@ -331,15 +432,24 @@ def terminations(
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
     """Atomic layers, terminations and allowed step heights of one face."""
     from termination.reports import terminations_report
 
+    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio, max_multiple)
-    render("terminations", terminations_report(crystal, _require_plane(plane), **rules), json_out, wide)
+    report = terminations_report(crystal, _require_plane(plane), **rules)
+    if outputs.wanted:
+        from termination.figures.commands import terminations_figures
+
+        outputs.write(report, terminations_figures(report, crystal, rules))
+    render("terminations", report, json_out, wide)
 
 
 @command()
@@ -365,12 +475,16 @@ def polarity(
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
     """Layer charges, dipole, Tasker type, compensation and reconstruction cells per termination."""
     from termination.reports import polarity_report
 
+    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     report = polarity_report(
@@ -381,6 +495,10 @@ def polarity(
         max_cell=max_cell,
         termination_options=rules,
     )
+    if outputs.wanted:
+        from termination.figures.commands import polarity_figures
+
+        outputs.write(report, polarity_figures(report))
     render("polarity", report, json_out, wide)
 
 
@@ -413,6 +531,9 @@ def corrugation(
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
@@ -422,6 +543,7 @@ def corrugation(
     from termination.reports import corrugation_report
     from termination.surface.corrugation import Visibility
 
+    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     visibility = Visibility(
         visible=visible or None,
@@ -439,6 +561,10 @@ def corrugation(
         charges=_charges(charge),
         max_cell=max_cell,
     )
+    if outputs.wanted:
+        from termination.figures.commands import corrugation_figures
+
+        outputs.write(report, corrugation_figures(report, crystal, _charges(charge)))
     render("corrugation", report, json_out, wide)
 
 
@@ -534,6 +660,10 @@ def match(
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    report_file: Report = None,
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
@@ -569,17 +699,36 @@ def match(
         weights=parse_element_values(weight, "--weight", MeasurementError),
         decay_length=decay_length,
     )
+    outputs = _Outputs(
+        plot, plot_format, force, report_file, inputs=_inputs(structure) + tuple(v for v in (measurement, steps) if v)
+    )
     base = read_measurement(measurement) if measurement else Measurement()
     crystal = _load(structure, a, x, symprec)
+    merged = merge(base, given)
+    rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     report = run_match(
         crystal,
-        merge(base, given),
+        merged,
         top=top,
-        model=MatchModel(flat_prior=flat_prior),
+        model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
         reconstructions=not no_reconstructions,
         charges=_charges(charge),
         max_cell=max_cell,
+        **rules,
     )
+    if outputs.wanted:
+        from termination.figures.commands import match_figures
+        from termination.identification.likelihood import measurement_visibility
+
+        plans = match_figures(
+            report,
+            crystal,
+            visibility=measurement_visibility(merged),
+            charges=_charges(charge),
+            max_cell=max_cell,
+            termination_options=rules,
+        )
+        outputs.write(report, plans)
     render("match", report, json_out, wide)
 
 
@@ -650,6 +799,9 @@ def image(
     min_step: Annotated[
         float, typer.Option("--min-step", metavar="Å", help="Smallest step height to resolve, Å.")
     ] = MIN_STEP_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    report_file: Report = None,
     json_out: Json = False,
     wide: Wide = False,
 ) -> None:
@@ -657,6 +809,8 @@ def image(
     import contextlib
 
     from termination.reports import image_report
+
+    outputs = _Outputs(plot, plot_format, force, report_file, inputs=(file,))
 
     # A progress bar only where someone watches: a terminal, and a map of a megapixel or more.
     with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
@@ -671,6 +825,10 @@ def image(
             progress=progress,
             min_step_angstrom=min_step,
         )
+    if outputs.wanted:
+        from termination.figures.commands import image_figures, measured_of
+
+        outputs.write(report, image_figures(report, measured_of(report, pixel_size=pixel_size, z_unit=z_unit)))
     render("image", report, json_out, wide)
 
 
@@ -960,6 +1118,7 @@ def main(argv: list[str] | None = None) -> None:
     if "--traceback" in args:
         _TRACEBACK.set(True)
         args = [v for v in args if v != "--traceback"]
+    _ARGV.set(tuple(args))
     if not args:
         args = ["--help"]
     command = typer.main.get_command(app)
