@@ -161,6 +161,24 @@ Report = Annotated[
         show_default=False,
     ),
 ]
+Cell = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--cell",
+        metavar="CELL",
+        help="A cell to consider: Wood notation (2x1, c(2x2), sqrt3xsqrt3R30) or a matrix (2,0,0,1); repeatable.",
+        show_default=False,
+    ),
+]
+SiteWeight = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--site-weight",
+        metavar="SITE=W",
+        help="Imaging weight of one kind of site, by its bonds kept: Ti5c=1 (five-fold Ti); repeatable.",
+        show_default=False,
+    ),
+]
 
 
 # --------------------------------------------------------------------------- errors and rendering
@@ -313,9 +331,14 @@ class _Outputs:
 
             self.fmt = check_plot_folder(plot, fmt)
         if report is not None:
+            import os
+
             from termination.outputs import check_outputs
 
-            check_outputs([report], inputs, force=force)
+            # A report inside the --plot folder that is still to be made is checked when it is written.
+            new_folder = plot is not None and not os.path.exists(plot)
+            if not (new_folder and os.path.dirname(os.path.abspath(report)) == os.path.abspath(plot)):
+                check_outputs([report], inputs, force=force)
 
     @property
     def wanted(self) -> bool:
@@ -528,6 +551,8 @@ def corrugation(
     ] = True,
     charge: Charge = None,
     max_cell: MaxCell = MAX_CELL,
+    cell: Cell = None,
+    site_weight: SiteWeight = None,
     a: LatticeA = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
@@ -538,20 +563,23 @@ def corrugation(
     wide: Wide = False,
 ) -> None:
     """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
+    from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
     from termination.errors import StructureError
     from termination.reports import corrugation_report
-    from termination.surface.corrugation import Visibility
+    from termination.surface.corrugation import Visibility, parse_site_weights
 
     outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
-    crystal = _load(structure, a, x, symprec)
+    cells = check_cells(cell)
     visibility = Visibility(
         visible=visible or None,
         weights=parse_element_values(weight, "--weight", StructureError),
+        site_weights=tuple(parse_site_weights(site_weight).items()),
         decay_length_angstrom=decay_length,
         max_depth_angstrom=depth,
         threshold=threshold,
     )
+    crystal = _load(structure, a, x, symprec)
     report = corrugation_report(
         crystal,
         _require_plane(plane),
@@ -560,11 +588,12 @@ def corrugation(
         reconstructions=reconstructions,
         charges=_charges(charge),
         max_cell=max_cell,
+        cells=cells,
     )
     if outputs.wanted:
         from termination.figures.commands import corrugation_figures
 
-        outputs.write(report, corrugation_figures(report, crystal, _charges(charge)))
+        outputs.write(report, corrugation_figures(report, crystal, _charges(charge), max_cell))
     render("corrugation", report, json_out, wide)
 
 
@@ -638,6 +667,8 @@ def match(
             show_default=False,
         ),
     ] = None,
+    depth: Depth = None,
+    site_weight: SiteWeight = None,
     charge: Charge = None,
     mount_sigma: Annotated[
         float,
@@ -656,6 +687,7 @@ def match(
         bool, typer.Option("--no-reconstructions", help="Do not add reconstruction cells of polar terminations.")
     ] = False,
     max_cell: MaxCell = MAX_CELL,
+    cell: Cell = None,
     top: Annotated[int, typer.Option("--top", metavar="N", help="Show this many candidates.")] = 10,
     a: LatticeA = None,
     x: FreeX = None,
@@ -668,10 +700,15 @@ def match(
     wide: Wide = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
+    from dataclasses import replace
+
+    from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
-    from termination.errors import MeasurementError
+    from termination.errors import MeasurementError, StructureError
     from termination.identification.likelihood import match as run_match
+    from termination.identification.likelihood import measurement_visibility
     from termination.identification.measurement import Measurement, merge, parse_value, read_measurement, read_steps
+    from termination.surface.corrugation import parse_site_weights
 
     if demo:
         from termination.structures import bundled
@@ -703,9 +740,17 @@ def match(
         plot, plot_format, force, report_file, inputs=_inputs(structure) + tuple(v for v in (measurement, steps) if v)
     )
     base = read_measurement(measurement) if measurement else Measurement()
-    crystal = _load(structure, a, x, symprec)
+    cells = check_cells(cell)
     merged = merge(base, given)
+    visibility = measurement_visibility(merged)
+    try:
+        sites = tuple(parse_site_weights(site_weight).items())
+        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=sites)
+    except StructureError as exc:
+        raise MeasurementError(str(exc)) from None
+    crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
+    rules.pop("max_multiple")
     report = run_match(
         crystal,
         merged,
@@ -714,16 +759,17 @@ def match(
         reconstructions=not no_reconstructions,
         charges=_charges(charge),
         max_cell=max_cell,
+        visibility=visibility,
+        cells=cells,
         **rules,
     )
     if outputs.wanted:
         from termination.figures.commands import match_figures
-        from termination.identification.likelihood import measurement_visibility
 
         plans = match_figures(
             report,
             crystal,
-            visibility=measurement_visibility(merged),
+            visibility=visibility,
             charges=_charges(charge),
             max_cell=max_cell,
             termination_options=rules,

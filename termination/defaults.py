@@ -58,6 +58,8 @@ MAX_CELL_LIMIT = 12
 MAX_PATTERNS = 200_000
 #: Reconstruction cells kept per polar termination as candidates of ``match``.
 MAX_CELLS_PER_TERMINATION = 4
+#: Layers (or units) from the top that may give a polar termination's compensating charge.
+COMPENSATION_LAYERS = 2
 
 # --------------------------------------------------------------------------- cleavage, screening and slabs
 
@@ -92,6 +94,11 @@ MAX_SPOT_ORDER = 2.0
 MAXIMUM_FRACTION = 0.5
 #: Two sites closer than this (in the plane and in depth) are one site, Å.
 SITE_TOL_ANGSTROM = 0.2
+#: A cell given without an atom pattern: the imaging atoms of one 1x1 cell per
+#: cell image (1 + this) times as strongly as the others.
+CELL_MODULATION = 1.0
+#: Largest index (in 1x1 cells) of a cell given by the user.
+MAX_USER_CELL = 100
 
 # --------------------------------------------------------------------------- height maps
 

@@ -15,6 +15,10 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, ClassVar, SupportsFloat
 
+import numpy as np
+from numpy.typing import ArrayLike
+
+from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
 from termination.bulk.charges import ChargeAssignment, with_formal_charges
 from termination.bulk.crystal import Crystal
 from termination.bulk.summary import StructureSummary, summarise_structure
@@ -26,10 +30,13 @@ from termination.surface.corrugation import (
     CorrugationPattern,
     Spot,
     Visibility,
+    cell_corrugation,
     lattice_type,
     reconstruction_corrugation,
+    superpose_domains,
     termination_corrugation,
 )
+from termination.surface.domains import face_point_group
 from termination.surface.faces import Mesh, distinct_faces, face_geometry
 from termination.surface.faces import tilt_window as window_variants
 from termination.surface.miller import check_hkl, hkl_text
@@ -423,11 +430,15 @@ def polarity_report(
 
 @dataclass(frozen=True)
 class TerminationCorrugation:
-    """One termination's row of the ``corrugation`` report, or one of its reconstruction cells.
+    """One termination's row of the ``corrugation`` report, or one of its cells.
 
     The pattern's fields, with the termination id, the Bravais type of the
-    apparent lattice and, for the 1x1 row, its reconstruction cells
-    (``cell`` None for 1x1).
+    apparent lattice and, for the 1x1 row, its reconstruction cells (those
+    the polarity step proposes) and the cells given with ``--cell``
+    (``cell`` None for 1x1).  A cell's ``matrix`` holds its rows in mesh
+    units (always given; ``cell`` is its Wood notation where that is
+    standard), its ``spots`` are the union over its rotational ``domains``,
+    and ``domain_lattice`` is the apparent lattice of that union.
     """
 
     id: str
@@ -439,22 +450,46 @@ class TerminationCorrugation:
     row_spacings: tuple[float, ...] = field(default=(), metadata=ANGSTROM)
     row_angles: tuple[float, ...] = field(default=(), metadata=DEG)
     spots: tuple[Spot, ...] = ()
+    matrix: tuple[tuple[int, int], tuple[int, int]] | None = None
+    domains: tuple[str, ...] = ()
+    domain_lattice: ApparentLattice | None = None
     reconstructions: tuple[TerminationCorrugation, ...] = ()
+    cells: tuple[TerminationCorrugation, ...] = ()
 
 
-def _corrugation_row(key: str, p: CorrugationPattern, reconstructions=()) -> TerminationCorrugation:
+def _corrugation_row(
+    key: str, p: CorrugationPattern, reconstructions=(), cells=(), matrix=None
+) -> TerminationCorrugation:
     return TerminationCorrugation(
         id=key,
         label=p.label,
         cell=p.cell,
+        matrix=None
+        if matrix is None
+        else ((int(matrix[0][0]), int(matrix[0][1])), (int(matrix[1][0]), int(matrix[1][1]))),
         apparent_lattice=p.apparent_lattice,
         lattice_type=lattice_type(p.apparent_lattice),
         neighbour_distance=p.neighbour_distance,
         row_spacings=tuple(p.row_spacings),
         row_angles=tuple(p.row_angles),
         spots=tuple(p.spots),
+        domains=tuple(p.domains),
+        domain_lattice=p.domain_lattice,
         reconstructions=tuple(reconstructions),
+        cells=tuple(cells),
     )
+
+
+def _matrix2(matrix: ArrayLike) -> tuple[tuple[int, int], tuple[int, int]]:
+    m = np.asarray(matrix, dtype=np.int64)
+    return (int(m[0, 0]), int(m[0, 1])), (int(m[1, 0]), int(m[1, 1]))
+
+
+def _domains_row(
+    key: str, p: CorrugationPattern, matrix: ArrayLike, rotations: ArrayLike, mesh: ArrayLike
+) -> TerminationCorrugation:
+    """The row of a cell whose pattern ``p`` is shown with its rotational domains superposed."""
+    return _corrugation_row(key, superpose_domains(p, matrix, rotations, mesh), matrix=matrix)
 
 
 @dataclass(frozen=True)
@@ -480,6 +515,7 @@ def corrugation_report(
     reconstructions: bool = True,
     charges=None,
     max_cell: int = MAX_CELL,
+    cells=(),
 ) -> CorrugationReport:
     """Corrugation of every termination of ``hkl`` (or of one) as a :class:`CorrugationReport`.
 
@@ -499,12 +535,20 @@ def corrugation_report(
         built-in guess (no reconstructions when there is none).
     max_cell : int
         Largest supercell index of the reconstruction search.
+    cells : sequence of str or CellSpec
+        Cells given by the user (Wood notation or a matrix,
+        :func:`termination.algebra.lattice2d.parse_cell`), shown for every
+        termination with the default modulation of
+        :func:`termination.surface.corrugation.cell_corrugation`.
 
     Returns
     -------
     CorrugationReport
+        Every cell with its rotational domains under the face's point group
+        superposed (:func:`termination.surface.corrugation.superpose_domains`).
     """
     v = Visibility() if visibility is None else visibility
+    specs = check_cells(cells)
     notes = []
     assignment = None
     if reconstructions:
@@ -512,15 +556,40 @@ def corrugation_report(
         if assignment is None:
             notes.append("no formal charges known (give them with --charge EL=Q): no reconstruction cells")
     ft = face_terminations(crystal, hkl)
+    mesh = ft.atoms.mesh_inplane
+    user = []
+    for spec in specs:
+        matrix = cell_matrix(spec, mesh)
+        if matrix is None:
+            m = ft.face.mesh
+            raise PlaneError(
+                f"cell {spec.label} is no supercell of the {hkl_text(ft.face.hkl)} mesh "
+                f"({m.a:.3f} × {m.b:.3f} Å, {m.gamma:.1f}°); give it as a matrix"
+            )
+        user.append((spec, matrix))
+    rotations = face_point_group(crystal, ft.face)
     keys = [t.id for t in ft.terminations] if termination is None else [ft.termination(termination).id]
     rows = []
     for key in keys:
-        p = termination_corrugation(ft, key, v)
+        p = termination_corrugation(ft, key, v, crystal=crystal)
         recs: tuple[TerminationCorrugation, ...] = ()
         if assignment is not None:
             records = termination_polarity(crystal, ft, key, max_cell=max_cell).reconstructions
-            recs = tuple(_corrugation_row(key, reconstruction_corrugation(ft, key, r, v)) for r in records)
-        rows.append(_corrugation_row(key, p, recs))
+            recs = tuple(
+                _domains_row(key, reconstruction_corrugation(ft, key, r, v, crystal=crystal), r.matrix, rotations, mesh)
+                for r in records
+            )
+        given = tuple(
+            _domains_row(
+                key,
+                cell_corrugation(ft, key, matrix, v, crystal=crystal, cell=cell_notation(matrix, mesh)),
+                matrix,
+                rotations,
+                mesh,
+            )
+            for _, matrix in user
+        )
+        rows.append(_corrugation_row(key, p, recs, given))
     return CorrugationReport(
         structure=summarise_structure(crystal),
         hkl=ft.face.hkl,

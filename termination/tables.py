@@ -289,6 +289,12 @@ def compensation_text(t: Any) -> str:
     return f"{verb} {fraction_text(t.compensation)} ({t.site_label} {kind})"
 
 
+def changed_text(rc: Any) -> str:
+    """'3 of 4 Na + 1 of 4 Cl' for the sites a reconstruction cell changes in each layer (per cell)."""
+    parts = [f"{k} of {n} {label}" for label, n, k in zip(rc.layer_labels, rc.layer_sites, rc.layer_changed) if k]
+    return " + ".join(parts) + (" added" if rc.mode == "add" else "")
+
+
 def _polarity(r: Any, wide: bool) -> list[Block]:
     out = _structure(r.structure)
     q = r.charges
@@ -300,12 +306,14 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
         cols: list[str | tuple[str, str]] = ["id", ("label", "left"), "Tasker"]
         if wide:
             cols += [("layer charges (e, top first)", "left"), "μ/A (e/Å)"]
-        cols += ["Δq (e)", ("compensation", "left"), ("cells, best first", "left")]
+        cols += ["Δq (e)", ("compensation", "left"), ("best cell", "left")]
         rows = []
         for t in f.terminations:
-            cells = ", ".join(rc.wood or _matrix(rc.matrix) for rc in t.reconstructions[:2])
-            if len(t.reconstructions) > 2:
-                cells += f", +{len(t.reconstructions) - 2}"
+            cells = t.reconstructions[0].label if t.reconstructions else ""
+            if len(t.reconstructions) > 1:
+                cells += f", +{len(t.reconstructions) - 1}"
+            if t.reconstructions and not t.reconstructions[0].exact:
+                cells = "nearest: " + cells
             row = [t.id, t.label, t.tasker_type]
             if wide:
                 row += [" ".join(_charge(la.charge) for la in t.layers), f"{t.dipole_per_area:+.4f}"]
@@ -323,24 +331,16 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
         for t in f.terminations:
             if not t.reconstructions:
                 continue
-            rrows = [
-                [
-                    rc.wood or "—",
-                    _matrix(rc.matrix),
-                    str(rc.sites),
-                    f"{rc.changed} ({rc.mode})",
-                    str(rc.patterns),
-                    f"{rc.score:.3f}",
-                ]
-                for rc in t.reconstructions[:shown]
-            ]
-            out.append(
-                _table(
-                    f"{hkl_text(f.hkl)} {t.id} {t.label}: cells that {compensation_text(t)}",
-                    [("cell", "left"), "matrix", "sites", "changed", "patterns", "eV/site"],
-                    rrows,
-                )
-            )
+            exact = t.reconstructions[0].exact
+            rrows = []
+            for rc in t.reconstructions[:shown]:
+                row = [rc.name, _matrix(rc.matrix), changed_text(rc), str(len(rc.domains)), str(rc.patterns)]
+                row += [f"{rc.score:.3f}"] + ([] if exact else [f"{rc.residual_charge:+.3f}"])
+                rrows.append(row)
+            rcols: list[str | tuple[str, str]] = [("cell", "left"), "matrix", ("changed", "left"), "domains"]
+            rcols += ["patterns", "eV/cell"] + ([] if exact else ["residual (e)"])
+            what = "cells that" if exact else "nearest cells to"
+            out.append(_table(f"{hkl_text(f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", rcols, rrows))
             if len(t.reconstructions) > shown:
                 out.append(
                     Text(f"{len(t.reconstructions) - shown} more cells up to index {r.max_cell} in --json.", "dim")
@@ -348,7 +348,8 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
     out.append(
         Text(
             "Δq = μ/d: the charge per cell the top layer must gain (> 0) or lose (< 0), μ = Σ q z over the "
-            f"repeat unit. Patterns ranked by the {r.criterion}.",
+            "repeat unit; the top two layers (or units) may give it. Patterns ranked by the "
+            f"{r.criterion}; residual: the part of Δq per 1×1 cell a nearest cell does not supply.",
             "dim",
         )
     )
@@ -375,6 +376,9 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
     weights = ", ".join(f"{el}={w:g}" for el, w in v.weights)
     seen = "all species" if v.visible is None else "only " + ", ".join(v.visible)
     depth = "top unit" if v.max_depth_angstrom is None else f"down to {v.max_depth_angstrom:g} Å"
+    sites = ", ".join(f"{key}={w:g}" for key, w in v.site_weights)
+    if sites:
+        weights = f"{weights}, {sites}" if weights else sites
     out.append(Text(f"Face {hkl_text(r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
     out.append(
         Text(
@@ -393,48 +397,75 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
         "maxima (Å)",
     ]
     if wide:
-        cols += ["row spacings (Å)", "row angles (°)"]
+        cols += ["row spacings (Å)", "row angles (°)", "matrix"]
     rows = []
     for t in r.terminations:
-        for p in (t, *t.reconstructions):
+        for p in (t, *t.reconstructions, *t.cells):
             lat = p.apparent_lattice
             row = [
                 t.id if p is t else "",
                 t.label if p is t else "",
-                p.cell or "1×1",
+                (p.cell or "1×1") + (" (given)" if any(p is c for c in t.cells) else ""),
                 length_text(lat.a),
                 length_text(lat.b),
                 f"{lat.gamma:.1f}",
-                p.lattice_type,
+                p.lattice_type.replace("centred rectangular", "centred rect."),  # fits 80 columns
                 length_text(p.neighbour_distance),
             ]
             if wide:
                 row += [
                     " ".join(length_text(s, 2) for s in p.row_spacings) or "—",
                     " ".join(f"{a:.0f}" for a in p.row_angles) or "—",
+                    "—" if p.matrix is None else _matrix(p.matrix),
                 ]
             rows.append(row)
-    out.append(_table("Apparent lattice per termination (dual of the visible spots)", cols, rows))
+    out.append(_table("Apparent lattice per termination (dual of the visible spots; one domain)", cols, rows))
     spots = []
     for t in r.terminations:
-        # Two shells of the 1×1 pattern, the first (fractional-order) shell of each reconstruction.
-        for p in (t, *t.reconstructions):
+        # Two shells of the 1×1 pattern, the first (fractional-order) shell of each cell.
+        for p in (t, *t.reconstructions, *t.cells):
             shells = sorted({round(s.length, 6) for s in p.spots})[: 2 if p is t else 1]
             for s in p.spots:
                 if round(s.length, 6) in shells:
-                    spots.append([t.id, p.cell or "1×1", spot_text(s.g), f"{s.length:.4f}", f"{s.intensity:.3f}"])
-    out.append(_table("Lowest-order visible spots", ["id", ("cell", "left"), "(h k)", "|G| (1/Å)", "|F|/F(0)"], spots))
+                    spots.append(
+                        [
+                            t.id,
+                            p.cell or "1×1",
+                            spot_text(s.g),
+                            f"{s.length:.4f}",
+                            f"{s.intensity:.3f}",
+                            f"{s.domains}/{len(p.domains)}" if p.domains else "—",
+                        ]
+                    )
+    out.append(
+        _table(
+            "Lowest-order visible spots (of all domains)",
+            ["id", ("cell", "left"), "(h k)", "|G| (1/Å)", "|F|/F(0)", "domains"],
+            spots,
+        )
+    )
+    for t in r.terminations:
+        for p in (*t.reconstructions, *t.cells):
+            if len(p.domains) > 1 and p.domain_lattice is not None:
+                out.append(
+                    Text(
+                        f"{t.id} {p.cell}: {len(p.domains)} domains superposed ({', '.join(p.domains)}); "
+                        f"their spots together: {lattice_text(p.domain_lattice)}."
+                    )
+                )
     for note in r.notes:
         out.append(Text(note, "dim"))
     out.append(
         Text(
             "|G| without the factor 2π. A geometric model: which species images at a given bias is not "
-            "predicted; try --visible and --weight. --json lists every spot.",
+            "predicted; try --visible and --weight. A given cell (--cell) brightens one 1×1 cell per cell; "
+            "+Cl: the cell takes Cl from the layer below too. domains: how many of a cell's rotational "
+            "domains show the spot. --json lists every spot.",
             "dim",
         )
     )
     if not wide:
-        out.append(Text("--wide adds the row spacings and row angles.", "dim"))
+        out.append(Text("--wide adds the row spacings, row angles and cell matrices.", "dim"))
     return out + _caution(r.structure)
 
 

@@ -26,9 +26,13 @@ RUNS = {
         ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
         ["terminations", "hexaboride:La,B", "--plane", "0", "0", "1"],
     ],
-    "polarity": [["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"]],
+    "polarity": [
+        ["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"],
+        ["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "4"],
+    ],
     "corrugation": [
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--weight", "Na=0.5"],
+        ["corrugation", "diamond:Si", "--plane", "0", "0", "1", "--cell", "2x1", "--site-weight", "Si3c=0.5"],
         ["corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--visible", "Cl", "--termination", "Na"],
     ],
     "screen": [["screen", "rocksalt:Na,Cl", "half-heusler:Ti,Ni,Sn", "bad:Xx", "--max-index", "1", "--workers", "1"]],
@@ -39,6 +43,7 @@ RUNS = {
     "match": [
         ["match", "--demo"],
         ["match", "perovskite:Sr,Ti,O", "--mount", "0", "0", "1", "--tilt", "1+-1", "--step", "1.95", "--top", "3"],
+        ["match", "diamond:Si", "--spacing", "7.68", "--cell", "2x1", "--depth", "2", "--top", "3"],
     ],
 }
 

@@ -21,6 +21,11 @@ COMMANDS = [
     ["screen", "rocksalt:Na,Cl", "perovskite:Sr,Ti,O", "half-heusler:Ti,Ni,Sn", "--max-index", "2", "--workers", "1"],
     ["slab", "perovskite:Sr,Ti,O", "--plane", "0", "1", "1", "--termination", "O2", "--cell", "2x1", "--layers", "8"],
     ["slab", "hexaboride:La,B", "--plane", "0", "0", "1", "--termination", "B6", "--symmetric"],
+    ["polarity", "rocksalt:Ni,O", "--plane", "1", "1", "1"],
+    ["polarity", "perovskite:Sr,Ti,O", "--plane", "1", "1", "0"],
+    ["corrugation", "diamond:Si", "--plane", "0", "0", "1", "--cell", "2x1", "--cell", "(2√2×√2)R45°"],
+    ["corrugation", "fcc:Cu", "--plane", "1", "1", "1", "--cell", "sqrt3xsqrt3R30", "--cell", "4,2,3,3"],
+    ["match", "diamond:Si", "--mount", "0", "0", "1", "--spacing", "7.68", "--cell", "2x1", "--cell", "c(4x2)"],
     ["match", "--demo"],
     [
         "match",

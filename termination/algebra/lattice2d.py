@@ -14,7 +14,10 @@ supercell N becomes N S.
 
 from __future__ import annotations
 
+import re
+from collections.abc import Iterable
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import cast
 
 import numpy as np
@@ -22,18 +25,24 @@ from numpy.typing import ArrayLike
 
 from termination.algebra.integer import row_basis
 from termination.arrays import FloatArray, IntArray
-from termination.defaults import FRACTIONAL_EPS, ZERO_EPS
+from termination.defaults import FRACTIONAL_EPS, MAX_USER_CELL, ZERO_EPS
+from termination.errors import PlaneError
 from termination.units import DEG
 
 __all__ = [
+    "CellSpec",
     "Wood",
     "canonical_hnf",
+    "cell_matrix",
     "cell_notation",
+    "check_cells",
     "coset_index",
     "coset_representatives",
     "gauss_reduce",
     "hnf_matrices",
     "matrix_text",
+    "mesh_kind",
+    "parse_cell",
     "reduced_obtuse",
     "supercell_classes",
     "translation_permutations",
@@ -193,7 +202,7 @@ def _ratio_text(x: float, tol: float) -> str | None:
         return str(int(k))
     k2 = round(x * x)
     if k2 >= 2 and abs(x * x - k2) <= tol * max(1.0, x * x):
-        return f"√{int(k2)}"
+        return _scale_text(int(k2))
     return None
 
 
@@ -236,6 +245,13 @@ def wood_notation(
     has no Wood notation.  On a square mesh c(2×2) is preferred to the
     equivalent (√2×√2)R45°, as is usual.
 
+    Only the standard uses are given (common practice): a rotated cell
+    (θ ≠ 0) on square and hexagonal meshes, whose shape a rotation keeps, and
+    a centred cell on square and rectangular meshes, where c(m×n) is the
+    centred rectangle.  Elsewhere (a centred cell on a hexagonal mesh,
+    ``c(√48×√12)R30°``; any rotated cell on a rectangular or oblique mesh)
+    the matrix is the clearer name and None is returned.
+
     References
     ----------
     E. A. Wood, J. Appl. Phys. 35, 1306 (1964).
@@ -250,8 +266,19 @@ def wood_notation(
     '(√3×√3)R30°'
     """
     hnf = canonical_hnf(matrix)
-    det = int(round(abs(np.linalg.det(hnf))))
     mesh = np.asarray(mesh_inplane, dtype=float)
+    key = tuple(int(v) for v in hnf.ravel())
+    return _wood_notation(key, tuple(float(v) for v in mesh.ravel()), float(angle_tol_degrees), float(length_rel_tol))
+
+
+@lru_cache(maxsize=4096)
+def _wood_notation(
+    hnf_key: tuple[int, ...], mesh_key: tuple[float, ...], angle_tol_degrees: float, length_rel_tol: float
+) -> Wood | None:
+    """:func:`wood_notation` of an HNF and a mesh given as flat tuples (cached: cells repeat across faces)."""
+    hnf = np.array(hnf_key, dtype=np.int64).reshape(2, 2)
+    mesh = np.array(mesh_key, dtype=float).reshape(2, 2)
+    det = int(round(abs(np.linalg.det(hnf))))
     rng = np.arange(-(2 * det + 1), 2 * det + 2)
     u = np.array(np.meshgrid(rng, rng, indexing="ij")).reshape(2, -1).T
     frac = u @ np.linalg.inv(hnf)
@@ -263,6 +290,7 @@ def wood_notation(
         cross = ref[0] * v[:, 1] - ref[1] * v[:, 0]
         return cast(FloatArray, np.degrees(np.arctan2(cross, v @ ref)))
 
+    kind = mesh_kind(mesh, angle_tol_degrees=angle_tol_degrees, length_rel_tol=length_rel_tol)
     th1, th2 = angle_from(mesh[0]), angle_from(mesh[1])
     lens = np.linalg.norm(v, axis=1)
     cross = u[:, None, 0] * u[None, :, 1] - u[:, None, 1] * u[None, :, 0]
@@ -270,6 +298,8 @@ def wood_notation(
     same = np.abs(dth) <= angle_tol_degrees
     best: tuple[tuple[object, ...], Wood] | None = None
     for centred, index in ((False, det), (True, 2 * det)):
+        if centred and kind not in ("square", "rectangular"):
+            continue  # a centred cell is a rectangular description: standard on square and rectangular meshes only
         ii, jj = np.nonzero(same & (cross == index))
         for i, j in zip(ii, jj):
             if centred:
@@ -285,6 +315,8 @@ def wood_notation(
                 continue
             theta = float(th1[i])
             rotated = abs(theta) > angle_tol_degrees
+            if rotated and kind not in ("square", "hexagonal"):
+                continue  # a rotated Wood cell keeps the mesh's shape only on square and hexagonal meshes
             key = (
                 rotated,
                 centred,
@@ -302,6 +334,32 @@ def wood_notation(
                 mat = ((int(u[i][0]), int(u[i][1])), (int(u[j][0]), int(u[j][1])))
                 best = (key, Wood(label, centred, 0.0 if not rotated else abs(theta), float(m), float(n), mat))
     return None if best is None else best[1]
+
+
+def mesh_kind(mesh_inplane: ArrayLike, *, angle_tol_degrees: float = 0.5, length_rel_tol: float = 1e-3) -> str:
+    """2D Bravais type of a mesh: 'square', 'hexagonal', 'rectangular', 'centred rectangular' or 'oblique'.
+
+    ``mesh_inplane`` holds the (2, 2) mesh rows (Å); the type is read from its
+    reduced obtuse basis (|a| <= |b|, 90° <= gamma <= 120°): a mirror, hence a
+    centred rectangular mesh, when two of |a|, |b|, |a + b| are equal.
+
+    >>> mesh_kind([[3.0, 0.0], [-1.5, 3.0 * np.sqrt(3) / 2]]), mesh_kind([[2.0, 0.0], [0.0, 3.0]])
+    ('hexagonal', 'rectangular')
+    """
+    a, b = reduced_obtuse(*np.asarray(mesh_inplane, dtype=float))
+    la, lb, lab = (float(np.linalg.norm(v)) for v in (a, b, a + b))
+    gamma = float(np.degrees(np.arccos(np.clip(a @ b / (la * lb), -1.0, 1.0))))
+    equal = abs(la - lb) <= length_rel_tol * lb
+    right = abs(gamma - 90.0) <= angle_tol_degrees
+    if equal and right:
+        return "square"
+    if equal and abs(gamma - 120.0) <= angle_tol_degrees:
+        return "hexagonal"
+    if right:
+        return "rectangular"
+    if equal or abs(lab - lb) <= length_rel_tol * lb:
+        return "centred rectangular"
+    return "oblique"
 
 
 def matrix_text(matrix: ArrayLike) -> str:
@@ -341,6 +399,223 @@ def cell_notation(matrix: ArrayLike, mesh_inplane: ArrayLike) -> str:
     """
     wood = wood_notation(matrix, mesh_inplane)
     return wood.label if wood is not None else matrix_text(matrix)
+
+
+#: One scale of a Wood cell: an integer, a square root or both ('2', '√3', 'sqrt3', 'sqrt(3)', '2√3').
+_SCALE = r"(\d+)?(?:(?:√|sqrt)\(?(\d+)\)?)?"
+_WOOD = re.compile(
+    rf"(?P<prefix>[pc]?)\(?{_SCALE}x{_SCALE}\)?(?:r(?P<angle>\d+(?:\.\d*)?)°?)?",
+    re.IGNORECASE,
+)
+_SEP = r"[\s\[\]\(\),;/]"
+_MATRIX = re.compile(rf"{_SEP}*" + rf"{_SEP}+".join([r"(-?\d+)"] * 4) + rf"{_SEP}*")
+#: Largest accepted scale squared (m² or n²) of a Wood cell and largest |entry| of a cell matrix.
+_MAX_SCALE2 = 10_000
+
+
+@dataclass(frozen=True)
+class CellSpec:
+    """A surface cell as written, before it is placed on a mesh: Wood notation or an integer matrix.
+
+    Attributes
+    ----------
+    text : str
+        As given ('2x1', 'c(2x2)', '(sqrt3xsqrt3)R30', '2,1,0,2').
+    label : str
+        Normal form: '(2×1)', 'c(2×2)', '(√3×√3)R30°', '(2 1 / 0 2)'.
+    matrix : tuple of tuple of int, or None
+        Rows in mesh units when given as a matrix.
+    m2, n2 : int
+        Squares of the Wood scales m and n (|A1| = m |a|, |A2| = n |b|); 0 for a matrix.
+    angle : float
+        Wood rotation θ, degrees; 0 for a matrix.
+    centred : bool
+        A c(m×n) cell.
+    """
+
+    text: str
+    label: str
+    matrix: tuple[tuple[int, int], tuple[int, int]] | None = None
+    m2: int = 0
+    n2: int = 0
+    angle: float = field(default=0.0, metadata=DEG)
+    centred: bool = False
+
+
+def _scale2(whole: str | None, root: str | None) -> int:
+    """k² j for the scale k√j written as (whole, root); 0 when neither is given."""
+    if whole is None and root is None:
+        return 0
+    return int(whole or 1) ** 2 * int(root or 1)
+
+
+def parse_cell(text: str) -> CellSpec:
+    """Read a surface cell: Wood notation or a 2×2 integer matrix.
+
+    Parameters
+    ----------
+    text : str
+        Wood notation with 'x', 'X', '×' or '*' between the scales, an
+        optional 'p' or 'c' prefix and parentheses, square roots as '√3',
+        'sqrt3' or 'sqrt(3)', a rotation as 'R30' or 'R30°': '2x1',
+        'p(2×2)', 'c(2x2)', '(√3×√3)R30°', 'sqrt3xsqrt3R30'; or four
+        integers, the rows of the matrix in mesh units: '2,0,0,1',
+        '2 1 / 0 2', '[[2, 1], [-1, 1]]'.
+
+    Returns
+    -------
+    CellSpec
+
+    Raises
+    ------
+    PlaneError
+        For anything else, for a singular matrix, and for the 1×1 mesh
+        itself, which is the unreconstructed surface and not a cell.
+
+    Examples
+    --------
+    >>> parse_cell("sqrt3xsqrt3R30").label, parse_cell("c(2x2)").centred, parse_cell("2 1 / 0 2").matrix
+    ('(√3×√3)R30°', True, ((2, 1), (0, 2)))
+    """
+    raw = str(text)
+    compact = "".join(raw.split()).replace("×", "x").replace("X", "x").replace("*", "x")
+    m = _MATRIX.fullmatch(raw.strip())
+    if m:
+        a, b, c, d = (int(v) for v in m.groups())
+        if max(abs(a), abs(b), abs(c), abs(d)) > _MAX_SCALE2:
+            raise PlaneError(f"cell {raw!r}: matrix entries must be at most {_MAX_SCALE2} in size")
+        det = a * d - b * c
+        if det == 0:
+            raise PlaneError(f"cell {raw!r}: the matrix is singular")
+        if abs(det) == 1:
+            raise PlaneError(f"cell {raw!r} is the 1×1 mesh, the unreconstructed surface, not a reconstruction cell")
+        return CellSpec(raw, matrix_text([[a, b], [c, d]]), ((a, b), (c, d)))
+    w = _WOOD.fullmatch(compact)
+    m2 = n2 = 0
+    if w:
+        g = w.groups()
+        m2, n2 = _scale2(g[1], g[2]), _scale2(g[3], g[4])
+    if not w or not m2 or not n2:
+        raise PlaneError(
+            f"cell {raw!r} is neither Wood notation (2x1, c(2x2), (sqrt3xsqrt3)R30) nor a 2×2 integer matrix (2,0,0,1)"
+        )
+    if max(m2, n2) > _MAX_SCALE2:
+        raise PlaneError(f"cell {raw!r}: Wood scales must be at most {int(np.sqrt(_MAX_SCALE2))}")
+    angle = float(w.group("angle") or 0.0)
+    if not 0.0 <= angle < 180.0:
+        raise PlaneError(f"cell {raw!r}: the rotation must lie between 0° and 180°, got {angle:g}°")
+    centred = w.group("prefix").lower() == "c"
+    if centred and m2 * n2 < 4:
+        raise PlaneError(f"cell {raw!r}: a centred cell needs m n >= 2")
+    if not centred and m2 == n2 == 1 and angle == 0.0:
+        raise PlaneError(f"cell {raw!r} is the 1×1 mesh, the unreconstructed surface, not a reconstruction cell")
+    label = ("c" if centred else "") + f"({_scale_text(m2)}×{_scale_text(n2)})"
+    if angle:
+        label += f"R{_angle_text(angle)}°"
+    return CellSpec(raw, label, None, m2, n2, angle, centred)
+
+
+def check_cells(cells: Iterable[str | CellSpec] | None, max_index: int = MAX_USER_CELL) -> tuple[CellSpec, ...]:
+    """Cells given as text or :class:`CellSpec`, parsed, bounded and without repeats, before any work.
+
+    A cell of more than ``max_index`` 1×1 cells is refused (PlaneError naming it).
+
+    >>> [c.label for c in check_cells(["2x1", "(2×1)", "c(2x2)"])]
+    ['(2×1)', 'c(2×2)']
+    """
+    out: list[CellSpec] = []
+    for c in cells or ():
+        spec = c if isinstance(c, CellSpec) else parse_cell(c)
+        if spec.matrix is not None:
+            (a, b), (p, q) = spec.matrix
+            size = abs(a * q - b * p)
+        else:
+            size = round(float(np.sqrt(spec.m2 * spec.n2)) / (2 if spec.centred else 1))
+        if size > max_index:
+            raise PlaneError(f"cell {spec.label} spans {size} 1×1 cells; at most {max_index} are accepted")
+        if spec.label not in [o.label for o in out]:
+            out.append(spec)
+    return tuple(out)
+
+
+def _scale_text(k2: int) -> str:
+    """'2' for 4, '√3' for 3, '2√3' for 12: a Wood scale from its square, the root square-free."""
+    whole, root = 1, int(k2)
+    f = 2
+    while f * f <= root:
+        while root % (f * f) == 0:
+            root //= f * f
+            whole *= f
+        f += 1
+    if root == 1:
+        return str(whole)
+    return f"√{root}" if whole == 1 else f"{whole}√{root}"
+
+
+def cell_matrix(
+    spec: CellSpec, mesh_inplane: ArrayLike, *, angle_tol_degrees: float = 0.5, length_rel_tol: float = 1e-3
+) -> IntArray | None:
+    """The supercell matrix of ``spec`` on a mesh, or None when it is no sublattice of that mesh.
+
+    Parameters
+    ----------
+    spec : CellSpec
+        From :func:`parse_cell`.
+    mesh_inplane : (2, 2) array_like
+        Mesh rows a, b, Cartesian, Å.
+    angle_tol_degrees, length_rel_tol : float
+        How close a lattice vector must come to the Wood vector (its angle in
+        degrees, its length relative), so that a rounded angle such as
+        R19.1° finds the vector at 19.107°.
+
+    Returns
+    -------
+    (2, 2) IntArray or None
+        Rows in mesh units, right-handed: the Wood vectors A1 = m R(θ) a,
+        A2 = n R(θ) b, or for c(m×n) the primitive basis A1, (A1 + A2)/2.
+        θ is tried counter-clockwise first, then clockwise.
+
+    Examples
+    --------
+    >>> hexagonal = 3.0 * np.array([[1.0, 0.0], [-0.5, np.sqrt(3) / 2]])
+    >>> cell_matrix(parse_cell("(sqrt3xsqrt3)R30"), hexagonal).tolist()
+    [[2, 1], [-1, 1]]
+    >>> cell_matrix(parse_cell("(sqrt3xsqrt3)R30"), 3.0 * np.eye(2)) is None
+    True
+    """
+    if spec.matrix is not None:
+        return np.array(spec.matrix, dtype=np.int64)
+    mesh = np.asarray(mesh_inplane, dtype=float)
+    inv = np.linalg.inv(mesh)
+    scales = (np.sqrt(spec.m2), np.sqrt(spec.n2))
+    for sign in (1.0, -1.0) if spec.angle else (1.0,):
+        t = np.radians(sign * spec.angle)
+        rot = np.array([[np.cos(t), np.sin(t)], [-np.sin(t), np.cos(t)]])  # row vectors: v -> v rot
+        rows = []
+        for k in range(2):
+            target = scales[k] * (mesh[k] @ rot)
+            u = np.rint(target @ inv)
+            v = u @ mesh
+            length_ok = abs(np.linalg.norm(v) - np.linalg.norm(target)) <= length_rel_tol * np.linalg.norm(target)
+            cos = float(np.clip(v @ target / (np.linalg.norm(v) * np.linalg.norm(target) or 1.0), -1.0, 1.0))
+            if not (length_ok and np.degrees(np.arccos(cos)) <= angle_tol_degrees):
+                break
+            rows.append(u.astype(np.int64))
+        else:
+            u1, u2 = rows
+            if spec.centred:
+                mid = u1 + u2
+                if np.any(mid % 2):
+                    continue
+                u2 = mid // 2
+            out = np.array([u1, u2], dtype=np.int64)
+            det = round(float(np.linalg.det(out)))
+            if det == 0:
+                continue
+            if det < 0:
+                out[1] *= -1
+            return out
+    return None
 
 
 def coset_representatives(hnf: ArrayLike) -> IntArray:

@@ -27,6 +27,7 @@ image          the measured map; its power spectrum with the lattice found;
 
 from __future__ import annotations
 
+import functools
 import os
 import re
 from collections.abc import Callable, Mapping, Sequence
@@ -34,10 +35,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from termination.defaults import FIGURE_DPI, FIGURE_TOP, MAX_CELL, MAX_FIGURES
 from termination.errors import TerminationError
 from termination.figures.canvas import check_format
-from termination.figures.labels import hkl_label
 from termination.surface.miller import hkl_text
 
 __all__ = [
@@ -65,9 +67,15 @@ class PlannedFigure:
 
 
 def _slug(*parts: object) -> str:
-    """A file name from parts: '(0 0 1)' -> '001', '-1' -> 'm1', spaces to '_', nothing else but [A-Za-z0-9_.-]."""
+    """A file name from parts, None left out: (0, 0, -1) -> '00m1', '(2×1)' -> '2x1', only [A-Za-z0-9_.-] kept.
+
+    >>> _slug((1, -1, 0), "T2", None, "c(4×2)")
+    '1m10_T2_c4x2'
+    """
     out = []
     for p in parts:
+        if p is None:
+            continue
         if isinstance(p, tuple):
             out.append("".join(f"m{-v}" if v < 0 else str(v) for v in p))
         else:
@@ -90,29 +98,126 @@ def planes_figures(report: Any, crystal: Any) -> list[PlannedFigure]:
     return [PlannedFigure("poles", caption + ".", lambda: pole_figure(report, crystal))]
 
 
+class CellChoice:
+    """A cell to draw on a termination: a reconstruction of the polarity step, or a cell given without atoms.
+
+    ``name`` is how the reports print it, ``matrix`` its rows in mesh units.
+    A reconstruction is given as its record, or as ``find``, a function that
+    finds it when first drawn (plans stay cheap); a cell given with
+    ``--cell`` has neither and is drawn without changed sites.
+    """
+
+    def __init__(
+        self,
+        name: str,
+        matrix: Any = None,
+        reconstruction: Any = None,
+        find: Callable[[], Any] | None = None,
+    ) -> None:
+        self.name = name
+        self._matrix = None if matrix is None else _matrix(matrix)
+        self._record = reconstruction
+        self._find = find
+
+    @property
+    def matrix(self) -> tuple[tuple[int, int], tuple[int, int]]:
+        """Rows in mesh units (a reconstruction found on first use gives its own)."""
+        if self._matrix is None:
+            self._matrix = _matrix(self.record().matrix)
+        return self._matrix
+
+    @property
+    def is_reconstruction(self) -> bool:
+        return self._record is not None or self._find is not None
+
+    def record(self) -> Any:
+        """The reconstruction record (found on first use), or None for a cell given without atoms."""
+        if self._record is None and self._find is not None:
+            self._record = self._find()
+        return self._record
+
+
+def _matrix(m: Any) -> tuple[tuple[int, int], tuple[int, int]]:
+    return ((int(m[0][0]), int(m[0][1])), (int(m[1][0]), int(m[1][1])))
+
+
+def _cell_pattern(crystal: Any, ft: Any, t_id: str, visibility: Any, cell: CellChoice | None) -> tuple[Any, int]:
+    """The pattern a Fourier figure shows (1x1, or the cell's with its domains superposed) and the domain count."""
+    from termination.surface.corrugation import (
+        Visibility,
+        cell_corrugation,
+        reconstruction_corrugation,
+        superpose_domains,
+        termination_corrugation,
+    )
+    from termination.surface.domains import face_point_group
+
+    v = Visibility() if visibility is None else visibility
+    if cell is None:
+        return termination_corrugation(ft, t_id, v, crystal=crystal), 1
+    if cell.is_reconstruction:
+        single = reconstruction_corrugation(ft, t_id, cell.record(), v, crystal=crystal)
+    else:
+        single = cell_corrugation(ft, t_id, cell.matrix, v, crystal=crystal, cell=cell.name)
+    mesh = ft.atoms.mesh_inplane
+    pattern = superpose_domains(single, cell.matrix, face_point_group(crystal, ft.face), mesh)
+    return pattern, max(1, len(pattern.domains))
+
+
 def _termination_views(
-    ft: Any, t_id: str, label: str, visibility: Any, reconstruction: Any = None, measured: Any = None
+    context: Callable[[], tuple[Any, Any]],
+    t_id: str,
+    label: str,
+    visibility: Any,
+    cell: CellChoice | None = None,
+    measured: Measured | None = None,
+    stem: str | None = None,
+    title: str | None = None,
 ) -> list[PlannedFigure]:
-    """Top view, topograph and Fourier pattern of one termination (and cell)."""
+    """Planned top view, topograph and Fourier pattern of one termination (and cell).
+
+    ``context()`` gives (crystal, face terminations) on first use, so plans stay cheap.  A cell given
+    without atoms has no topograph of its own (its atoms are those of the 1x1 termination).
+    """
     from termination.figures.fourier import fourier_pattern
     from termination.figures.topograph import simulated_topograph
     from termination.figures.topview import termination_top_view
-    from termination.surface.corrugation import reconstruction_corrugation, termination_corrugation
 
-    cell = None if reconstruction is None else (reconstruction.wood or "cell")
-    stem = _slug(ft.face.hkl, t_id, cell)
-    name = f"{hkl_label(ft.face.hkl)} {label}" + (f" {cell}" if cell else "")
+    name = title or (label + (f" {cell.name}" if cell else ""))
+    stem = stem or _slug(t_id, None if cell is None else cell.name)
+    changes = cell is not None and cell.is_reconstruction
+
+    def top() -> Any:
+        crystal, ft = context()
+        return termination_top_view(
+            ft,
+            t_id,
+            reconstruction=None if cell is None else cell.record(),
+            cell_matrix=None if cell is None else cell.matrix,
+            cell_name=None if cell is None else cell.name,
+            visibility=visibility,
+            crystal=crystal,
+        )
+
+    def topograph() -> Any:
+        crystal, ft = context()
+        return simulated_topograph(
+            ft,
+            t_id,
+            reconstruction=None if cell is None else cell.record(),
+            visibility=visibility,
+            crystal=crystal,
+            measured=None if measured is None else measured.map,
+        )
 
     def fourier() -> Any:
-        pattern = (
-            termination_corrugation(ft, t_id, visibility)
-            if reconstruction is None
-            else reconstruction_corrugation(ft, t_id, reconstruction, visibility)
-        )
+        crystal, ft = context()
+        pattern, domains = _cell_pattern(crystal, ft, t_id, visibility, cell)
         return fourier_pattern(
             pattern,
             ft.atoms.mesh_inplane,
-            cell_inplane=None if reconstruction is None else reconstruction.cell_inplane,
+            cell_inplane=None if cell is None else np.asarray(cell.matrix, dtype=float) @ ft.atoms.mesh_inplane,
+            domains=domains,
             measured=None if measured is None else measured.map,
             measured_direction_deg=None if measured is None else measured.direction,
             hkl=ft.face.hkl,
@@ -120,27 +225,24 @@ def _termination_views(
 
     beside = " beside the measured terrace" if measured is not None else ""
     over = " over the measured power spectrum" if measured is not None else ""
-    return [
+    domains = " (every rotational domain of the cell)" if cell is not None else ""
+    plans = [
         PlannedFigure(
             f"topview_{stem}",
             f"{name} from above: atoms by species and depth, surface mesh, apparent lattice"
-            + (", reconstruction cell and its changed sites" if reconstruction is not None else "")
+            + (", the cell and its changed sites" if changes else ", the cell" if cell else "")
             + ".",
-            lambda: termination_top_view(ft, t_id, reconstruction=reconstruction, visibility=visibility),
-        ),
-        PlannedFigure(
-            f"topograph_{stem}",
-            f"Simulated topograph of {name} from the corrugation model{beside}.",
-            lambda: simulated_topograph(
-                ft,
-                t_id,
-                reconstruction=reconstruction,
-                visibility=visibility,
-                measured=None if measured is None else measured.map,
-            ),
-        ),
-        PlannedFigure(f"fourier_{stem}", f"Fourier spots predicted for {name}{over}.", fourier),
+            top,
+        )
     ]
+    if cell is None or changes:
+        plans.append(
+            PlannedFigure(
+                f"topograph_{stem}", f"Simulated topograph of {name} from the corrugation model{beside}.", topograph
+            )
+        )
+    plans.append(PlannedFigure(f"fourier_{stem}", f"Fourier spots predicted for {name}{domains}{over}.", fourier))
+    return plans
 
 
 def terminations_figures(
@@ -167,14 +269,12 @@ def terminations_figures(
     ]
     for t in report.terminations:
         if t.equivalent_to is None:
-            plans += _views_of(context, t.id, t.label, None)
+            plans += _termination_views(context, t.id, f"{hkl_text(report.hkl)} {t.label}", None)
     return plans
 
 
 def polarity_figures(report: Any) -> list[PlannedFigure]:
     """The layer-charge stack of every inequivalent termination of every face of a ``polarity`` report."""
-    import functools
-
     from termination.figures.polarity import polarity_stack
 
     plans = []
@@ -191,9 +291,13 @@ def polarity_figures(report: Any) -> list[PlannedFigure]:
     return plans
 
 
-def corrugation_figures(report: Any, crystal: Any, charges: Mapping[str, float] | None = None) -> list[PlannedFigure]:
-    """Top view, topograph and Fourier pattern of every termination of a ``corrugation`` report and its cells."""
-    plans: list[PlannedFigure] = []
+def corrugation_figures(
+    report: Any, crystal: Any, charges: Mapping[str, float] | None = None, max_cell: int = MAX_CELL
+) -> list[PlannedFigure]:
+    """Top view, topograph and Fourier pattern of every termination of a ``corrugation`` report and its cells.
+
+    ``charges`` and ``max_cell`` must be those of the report, so the reconstruction cells are found again.
+    """
     cache: dict[str, Any] = {}
 
     def context() -> tuple[Any, Any]:
@@ -206,48 +310,47 @@ def corrugation_figures(report: Any, crystal: Any, charges: Mapping[str, float] 
             cache["ft"] = face_terminations(charged, report.hkl)
         return cache["crystal"], cache["ft"]
 
+    plans: list[PlannedFigure] = []
+    face = hkl_text(report.hkl)
     for row in report.terminations:
-        plans += _views_of(context, row.id, row.label, report.visibility)
+        plans += _termination_views(context, row.id, f"{face} {row.label}", report.visibility)
         for cell_row in row.reconstructions:
-            plans += _views_of(context, row.id, row.label, report.visibility, cell=cell_row.cell)
+            choice = CellChoice(
+                cell_row.cell or "cell",
+                cell_row.matrix,
+                find=functools.partial(_find_reconstruction, context, row.id, cell_row.matrix, max_cell),
+            )
+            plans += _termination_views(context, row.id, f"{face} {row.label}", report.visibility, choice)
+        for cell_row in row.cells:
+            choice = CellChoice(cell_row.cell or "cell", _matrix(cell_row.matrix))
+            plans += _termination_views(context, row.id, f"{face} {row.label}", report.visibility, choice)
     return plans
 
 
-def _views_of(
-    context: Callable[[], tuple[Any, Any]], t_id: str, label: str, visibility: Any, cell: str | None = None
-) -> list[PlannedFigure]:
-    """Planned views of one termination, and of one of its reconstruction cells named ``cell``."""
-    stem = _slug(t_id, cell)
-    kinds = ("topview", "topograph", "fourier")
-    shown = f"{label}" + (f" {cell}" if cell else "")
-    captions = (
-        f"{shown} from above: atoms by species and depth, surface mesh, apparent lattice"
-        + (", reconstruction cell and its changed sites." if cell else "."),
-        f"Simulated topograph of {shown} from the corrugation model.",
-        f"Fourier spots predicted for {shown}.",
-    )
-    out = []
-    for i, kind in enumerate(kinds):
-
-        def make(i: int = i) -> Any:
-            crystal, ft = context()
-            rec = None if cell is None else _reconstruction(crystal, ft, t_id, cell)
-            return _termination_views(ft, t_id, label, visibility, rec)[i].make()
-
-        out.append(PlannedFigure(f"{kind}_{stem}", captions[i], make))
-    return out
+def _find_reconstruction(context: Callable[[], tuple[Any, Any]], t_id: str, matrix: Any, max_cell: int) -> Any:
+    crystal, ft = context()
+    return _reconstruction(crystal, ft, t_id, matrix=matrix, max_cell=max_cell)
 
 
-def _reconstruction(crystal: Any, ft: Any, t_id: str, cell: str, max_cell: int = MAX_CELL) -> Any:
-    """The reconstruction record of termination ``t_id`` named ``cell`` (as the reports print it)."""
-    from termination.reports import cell_text
+def _reconstruction(
+    crystal: Any,
+    ft: Any,
+    t_id: str,
+    *,
+    label: str | None = None,
+    matrix: Any = None,
+    max_cell: int = MAX_CELL,
+) -> Any:
+    """The polarity step's reconstruction of ``t_id`` with this ``label`` (as ``match`` names it) or matrix."""
     from termination.surface.polarity import termination_polarity
 
     records = termination_polarity(crystal, ft, t_id, max_cell=max_cell).reconstructions
     for r in records:
-        if cell_text(r) == cell or r.wood == cell:
+        if (label is not None and label in (r.label, r.name, r.wood)) or (
+            matrix is not None and _matrix(matrix) in (_matrix(r.matrix), _matrix(r.hnf))
+        ):
             return r
-    raise TerminationError(f"termination {t_id} has no reconstruction cell {cell!r}")
+    raise TerminationError(f"termination {t_id} has no reconstruction cell {label or matrix}")
 
 
 @dataclass(frozen=True, eq=False)
@@ -297,42 +400,32 @@ def match_figures(
     best = report.candidates[0]
     cache: dict[str, Any] = {}
 
-    def context() -> tuple[Any, Any, Any]:
+    def context() -> tuple[Any, Any]:
         if "ft" not in cache:
             from termination.bulk.charges import with_formal_charges
             from termination.surface.terminations import face_terminations
 
-            charged, assignment = with_formal_charges(crystal, charges)
-            cache["crystal"], cache["charged"] = charged, assignment is not None
+            charged, _ = with_formal_charges(crystal, charges)
+            cache["crystal"] = charged
             cache["ft"] = face_terminations(charged, best.hkl, **dict(termination_options or {}))
-        return cache["crystal"], cache["ft"], cache["charged"]
+        return cache["crystal"], cache["ft"]
 
     t_id = best.termination.id
-    label = f"#{best.rank} {hkl_label(best.hkl)} {best.label}" + (f" {best.cell}" if best.cell else "")
-
-    def view(i: int) -> Any:
-        c, ft, _ = context()
-        rec = None if best.cell is None else _reconstruction(c, ft, t_id, best.cell, max_cell)
-        return _termination_views(ft, t_id, best.termination.label, visibility, rec, measured)[i].make()
-
-    beside = " beside the measured terrace" if measured is not None else ""
-    over = " over the measured power spectrum" if measured is not None else ""
-    plans += [
-        PlannedFigure("topview_best", f"The best candidate, {label}, from above.", lambda: view(0)),
-        PlannedFigure(
-            "topograph_best", f"Simulated topograph of the best candidate, {label}{beside}.", lambda: view(1)
-        ),
-        PlannedFigure(
-            "fourier_best", f"Fourier spots predicted for the best candidate, {label}{over}.", lambda: view(2)
-        ),
-    ]
-    if report.candidates[0] is not None and _has_charges(report):
+    cell = None
+    if best.cell is not None:
+        cell = _candidate_cell(context, t_id, best.cell, max_cell)
+    title = f"the best candidate, #{best.rank} {hkl_text(best.hkl)} {best.label}" + (
+        f" {best.cell}" if best.cell else ""
+    )
+    views = _termination_views(context, t_id, best.termination.label, visibility, cell, measured, "best", title)
+    plans += [PlannedFigure(p.name, p.caption[0].upper() + p.caption[1:], p.make) for p in views]
+    if _has_charges(report):
 
         def stack() -> Any:
             from termination.figures.polarity import polarity_stack
             from termination.surface.polarity import termination_polarity
 
-            c, ft, _ = context()
+            c, ft = context()
             tp = termination_polarity(c, ft, t_id, with_reconstructions=False)
             return polarity_stack(tp, ft.d, ft.face.mesh.area, hkl=ft.face.hkl)
 
@@ -345,6 +438,32 @@ def match_figures(
             )
         )
     return plans
+
+
+#: How ``match`` names a cell given with ``--cell`` (its notation, then this).
+GIVEN = " given"
+
+
+def _candidate_cell(context: Callable[[], tuple[Any, Any]], t_id: str, name: str, max_cell: int) -> CellChoice:
+    """The cell of a ``match`` candidate: a cell given with ``--cell`` ('(2×1) given'), or a reconstruction by label."""
+    if name.endswith(GIVEN):
+        from termination.algebra.lattice2d import cell_matrix, check_cells
+
+        spec = check_cells([name[: -len(GIVEN)]])[0]
+        matrix = spec.matrix
+        if matrix is None:
+            _, ft = context()
+            found = cell_matrix(spec, ft.atoms.mesh_inplane)
+            if found is None:
+                raise TerminationError(f"cell {name!r} is no supercell of the face's mesh")
+            matrix = found
+        return CellChoice(name, matrix)
+
+    def find() -> Any:
+        crystal, ft = context()
+        return _reconstruction(crystal, ft, t_id, label=name, max_cell=max_cell)
+
+    return CellChoice(name, find=find)
 
 
 def measured_of(report: Any, *, pixel_size: Any = None, z_unit: Any = None) -> Measured:

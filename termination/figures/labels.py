@@ -35,7 +35,7 @@ def hkl_label(hkl: Iterable[SupportsInt], brackets: str = "()") -> str:
 def nice_length(span: float) -> float:
     """A round length (1, 2 or 5 times a power of ten) of about a quarter of ``span``.
 
-    >>> nice_length(20.0), nice_length(7.0), nice_length(0.3)
+    >>> nice_length(20.0), nice_length(10.0), nice_length(0.3)
     (5.0, 2.0, 0.05)
     """
     target = max(float(span), 1e-12) / 4

@@ -33,11 +33,13 @@ import numpy as np
 from termination.algebra.integer import row_basis
 from termination.algebra.lattice2d import coset_representatives
 from termination.arrays import FloatArray
+from termination.bulk.crystal import Crystal
 from termination.defaults import TOPOGRAPH_PIXELS
-from termination.errors import ImageError
+from termination.errors import ImageError, StructureError
 from termination.figures.canvas import new_figure, style
 from termination.figures.labels import hkl_label, nice_length, scale_bar
 from termination.figures.palette import relief_colormap
+from termination.surface.coordination import surface_coordination
 from termination.surface.corrugation import (
     CorrugationPattern,
     Visibility,
@@ -88,11 +90,14 @@ def imaging_sites(
     key: str,
     visibility: Visibility | None = None,
     reconstruction: Reconstruction | None = None,
+    *,
+    crystal: Crystal | None = None,
 ) -> ImagingSites:
     """The sites and amplitudes the corrugation model images for termination ``key``.
 
     The same sites as :func:`termination.surface.corrugation.termination_corrugation`
-    (the top unit, or down to ``visibility.max_depth_angstrom``) and, with a
+    (the top unit, or down to ``visibility.max_depth_angstrom``; site weights
+    by the bonds each atom keeps, which need ``crystal``) and, with a
     reconstruction, as :func:`~termination.surface.corrugation.reconstruction_corrugation`:
     the 1x1 sites repeated over the cell, the removed atoms taken out or the
     added atoms put in.  The tests check that both give the same spots.
@@ -106,18 +111,24 @@ def imaging_sites(
     else:
         sa = ft.surface_atoms(t.id, v.max_depth_angstrom)
         keep = np.ones(len(sa.depth), dtype=bool)
+    coordination = None
+    if v.site_weights:
+        if crystal is None:
+            raise StructureError("site weights (such as Ti5c=1) need the crystal: its bonds give the coordination")
+        coordination = surface_coordination(crystal, ft, t.id, sa)[keep]
     species = [s for s, k in zip(sa.species, keep) if k]
     inplane, depth = sa.inplane[keep], sa.depth[keep]
+    amplitudes = v.amplitudes(species, depth, coordination)
     mesh = np.asarray(sa.mesh_inplane, dtype=float)
     if reconstruction is None:
-        return ImagingSites(inplane, v.amplitudes(species, depth), mesh, mesh)
+        return ImagingSites(inplane, amplitudes, mesh, mesh)
     r = reconstruction
     matrix = np.asarray(r.matrix, dtype=np.int64)
     cell = matrix.astype(float) @ mesh
     shifts = coset_representatives(row_basis(matrix)).astype(float) @ mesh
     pos = (inplane[None, :, :] + shifts[:, None, :]).reshape(-1, 2)
     dep = np.tile(depth, len(shifts))
-    spc = species * len(shifts)
+    amp = np.tile(amplitudes, len(shifts))
     changed = np.asarray(r.changed_atoms_inplane, dtype=float).reshape(-1, 2)
     changed_depth = np.asarray(r.changed_atoms_depth, dtype=float).reshape(-1)
     tol = v.site_tol_angstrom
@@ -127,14 +138,13 @@ def imaging_sites(
         frac -= np.rint(frac)
         hit = (np.linalg.norm(frac @ cell, axis=-1) < tol) & (np.abs(dep[None, :] - changed_depth[:, None]) < tol)
         kept = ~hit.any(axis=0)
-        pos, dep = pos[kept], dep[kept]
-        spc = [s for s, k in zip(spc, kept) if k]
+        pos, amp = pos[kept], amp[kept]
     else:
         inside = changed_depth <= float(depth.max()) + tol
         pos = np.vstack([pos, changed[inside]])
-        dep = np.concatenate([dep, changed_depth[inside]])
-        spc = spc + [s for s, k in zip(r.changed_atoms_species, inside) if k]
-    return ImagingSites(pos, v.amplitudes(spc, dep), cell, mesh)
+        added = [s for s, k in zip(r.changed_atoms_species, inside) if k]
+        amp = np.concatenate([amp, v.amplitudes(added, changed_depth[inside])])
+    return ImagingSites(pos, amp, cell, mesh)
 
 
 def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points: FloatArray) -> FloatArray:
@@ -175,6 +185,7 @@ def simulated_topograph(
     reconstruction: Reconstruction | None = None,
     visibility: Visibility | None = None,
     measured: MeasuredMap | None = None,
+    crystal: Crystal | None = None,
     span_angstrom: float | None = None,
     pixels: int = TOPOGRAPH_PIXELS,
     title: str | None = None,
@@ -193,6 +204,8 @@ def simulated_topograph(
     measured : MeasuredMap, optional
         Shown beside the simulation, high-pass filtered, cut to the same
         side length where it is larger.
+    crystal : Crystal, optional
+        The bulk crystal; needed only for ``visibility.site_weights``.
     span_angstrom : float, optional
         Side of the simulated square, Å; default four apparent periods (at
         least 12 Å).
@@ -214,11 +227,11 @@ def simulated_topograph(
     t = ft.termination(key)
     v = Visibility() if visibility is None else visibility
     pattern = (
-        termination_corrugation(ft, t.id, v)
+        termination_corrugation(ft, t.id, v, crystal=crystal)
         if reconstruction is None
-        else reconstruction_corrugation(ft, t.id, reconstruction, v)
+        else reconstruction_corrugation(ft, t.id, reconstruction, v, crystal=crystal)
     )
-    sites = imaging_sites(ft, t.id, v, reconstruction)
+    sites = imaging_sites(ft, t.id, v, reconstruction, crystal=crystal)
     la = pattern.apparent_lattice
     period = la.a if np.isfinite(la.a) else ft.face.mesh.a
     period_b = la.b if np.isfinite(la.b) else period
@@ -238,7 +251,7 @@ def simulated_topograph(
         im = ax.imshow(shown, origin="lower", extent=(0, span, 0, span), cmap=cmap, gid="simulated topograph")
         ax.set_xlabel("x along e1 (Å)")
         ax.set_ylabel("y (Å)")
-        name = f"{hkl_label(ft.face.hkl)} {t.label}" + (f" {reconstruction.wood or 'cell'}" if reconstruction else "")
+        name = f"{hkl_label(ft.face.hkl)} {t.label}" + (f" {reconstruction.label}" if reconstruction else "")
         ax.set_title(f"simulated: {name}\napparent {_lattice_text(pattern)}", fontsize=7.5)
         bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
         bar.set_label("apparent height (scaled)", fontsize=6.5)

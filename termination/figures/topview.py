@@ -21,6 +21,7 @@ import numpy as np
 from termination.algebra.integer import row_basis
 from termination.algebra.lattice2d import reduced_obtuse
 from termination.arrays import FloatArray
+from termination.bulk.crystal import Crystal
 from termination.bulk.elements import covalent_radius
 from termination.defaults import SITE_TOL_ANGSTROM
 from termination.figures.canvas import new_figure, style
@@ -152,7 +153,10 @@ def termination_top_view(
     key: str,
     *,
     reconstruction: Reconstruction | None = None,
+    cell_matrix: Sequence[Sequence[int]] | None = None,
+    cell_name: str | None = None,
     visibility: Visibility | None = None,
+    crystal: Crystal | None = None,
     depth_angstrom: float | None = None,
     span_angstrom: float | None = None,
     title: str | None = None,
@@ -169,8 +173,15 @@ def termination_top_view(
         A cell of the polarity step (:attr:`TerminationPolarity.reconstructions`):
         drawn with its removed or added sites, and the apparent lattice is
         that of the reconstructed surface.
+    cell_matrix : (2, 2) ints, optional
+        A cell given without an atom pattern (``--cell``), rows in mesh
+        units: drawn as a cell; the atoms and apparent lattice stay 1x1.
+    cell_name : str, optional
+        Its name in the legend.
     visibility : Visibility, optional
         Corrugation model of the apparent lattice (default :class:`Visibility()`).
+    crystal : Crystal, optional
+        The bulk crystal; needed only for ``visibility.site_weights``.
     depth_angstrom : float, optional
         Atoms down to this depth below the top layer are drawn; default d.
     span_angstrom : float, optional
@@ -197,12 +208,14 @@ def termination_top_view(
     sa = ft.surface_atoms(t.id, depth)
     mesh = np.asarray(sa.mesh_inplane, dtype=float)
     cell = None if reconstruction is None else np.asarray(reconstruction.cell_inplane, dtype=float)
+    if cell is None and cell_matrix is not None:
+        cell = np.asarray(cell_matrix, dtype=float) @ mesh
     pattern: CorrugationPattern = (
-        termination_corrugation(ft, t.id, v)
+        termination_corrugation(ft, t.id, v, crystal=crystal)
         if reconstruction is None
-        else reconstruction_corrugation(ft, t.id, reconstruction, v)
+        else reconstruction_corrugation(ft, t.id, reconstruction, v, crystal=crystal)
     )
-    apparent = apparent_vectors(pattern.spots, mesh, cell)
+    apparent = apparent_vectors(pattern.spots, mesh, None if reconstruction is None else cell)
     shown = mesh if cell is None else cell
     longest = float(max(np.linalg.norm(shown, axis=1).max(), np.linalg.norm(shown.sum(axis=0))))
     span = (
@@ -280,7 +293,7 @@ def termination_top_view(
             Line2D([], [], color="#000000", lw=1.4, label=f"mesh {ft.face.mesh.a:.2f} × {ft.face.mesh.b:.2f} Å")
         )
         if len(apparent) == 2:
-            amp = v.amplitudes(list(spc), dep) * ~removed
+            amp = v.amplitudes(list(spc), dep) * ~removed  # by species and depth (site weights aside)
             best = np.flatnonzero(amp >= amp.max() * (1 - 1e-9))
             origin = pos[best[int(np.argmin(np.linalg.norm(pos[best] - centre, axis=1)))]]
             ax.add_patch(
@@ -306,7 +319,7 @@ def termination_top_view(
                     label=f"apparent {la.a:.2f} × {la.b:.2f} Å, {la.gamma:.0f}°",
                 )
             )
-        if reconstruction is not None and cell is not None:
+        if cell is not None:
             ax.add_patch(
                 Polygon(
                     cell_polygon(np.zeros(2), cell),
@@ -319,9 +332,9 @@ def termination_top_view(
                     gid="reconstruction cell",
                 )
             )
-            name = reconstruction.wood or "cell"
+            name = reconstruction.label if reconstruction is not None else (cell_name or "cell")
             handles.append(Line2D([], [], color=COLOURS[2], lw=1.8, ls="-.", label=f"{name} cell"))
-            if reconstruction.mode == "remove":
+            if reconstruction is not None and reconstruction.mode == "remove":
                 rem = np.flatnonzero(removed)
                 ax.add_collection(
                     _marker_collection(
@@ -348,7 +361,7 @@ def termination_top_view(
                         label=f"removed {reconstruction.site_label}",
                     )
                 )
-            else:
+            elif reconstruction is not None:
                 added = np.asarray(reconstruction.changed_atoms_inplane, dtype=float)
                 tiles = lattice_points(cell, lo, hi, margin=span)
                 sites = (added[None, :, :] + tiles[:, None, :]).reshape(-1, 2)

@@ -4,7 +4,12 @@ A candidate is a hypothesis about the imaged surface: a face (hkl) whose
 terraces all show one termination; or, for faces with several inequivalent
 terminations, terraces of two of them (a *mixed* surface, which is what
 steps between different terminations imply); or a polar termination with
-one of the reconstruction cells that could compensate it.
+one of the reconstruction cells that could compensate it; or a termination
+with a cell the user names (a dimer row, a missing row, an adsorbate phase),
+on every face whose mesh it fits.  A cell predicts two lattices: that of one
+domain, and that of all its rotational domains superposed
+(:func:`termination.surface.corrugation.superpose_domains`); both are
+accepted.
 Symmetry-equivalent terminations (related by an operation that keeps the
 face) are one candidate: no measurement of topography can tell them apart.
 
@@ -23,6 +28,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from termination.algebra.lattice2d import cell_matrix, cell_notation, check_cells
 from termination.bulk.charges import with_formal_charges
 from termination.bulk.summary import StructureSummary, summarise_structure
 from termination.defaults import MAX_CELL, MAX_CELLS_PER_TERMINATION, MAX_INDEX
@@ -33,12 +39,16 @@ from termination.surface.corrugation import (
     ApparentLattice,
     CorrugationPattern,
     Visibility,
+    cell_corrugation,
     reconstruction_corrugation,
+    superpose_domains,
     termination_corrugation,
 )
+from termination.surface.domains import face_point_group
 from termination.surface.faces import distinct_faces, variant_tilts
-from termination.surface.miller import check_hkl
+from termination.surface.miller import check_hkl, hkl_text
 from termination.surface.polarity import termination_polarity
+from termination.surface.reconstructions import Reconstruction
 from termination.surface.steps import allowed_heights
 from termination.surface.terminations import FaceTerminations, TerminationRef, face_terminations
 from termination.units import ANGSTROM, DEG
@@ -62,7 +72,9 @@ class Candidate:
     relation : str or None
         How the members of the first class are related ('rotated 90°').
     cell : str or None
-        Reconstruction cell (Wood or matrix notation); None for 1x1.
+        Reconstruction cell (Wood or matrix notation, '+Cl' when the layer
+        below gives sites too), or a user cell's notation followed by
+        ' given'; None for 1x1.
     d : float
         Plane spacing, Å.
     tilts, tilt_variants
@@ -70,7 +82,8 @@ class Candidate:
         variants; empty without a mount.
     lattices : tuple of tuple of ApparentLattice
         Per class, the apparent lattices its terraces may show (one for 1x1;
-        a reconstruction cell may add its multi-domain pattern).
+        a cell adds the lattice of its rotational domains superposed when
+        that differs).
     periods : tuple of tuple of float
         Per class, the periods one measured spacing may be (Å), five per lattice.
     step_heights, step_multiples, step_lower, step_upper, step_factors, step_lower_id, step_upper_id
@@ -204,13 +217,30 @@ def _class_steps(ft: FaceTerminations, classes: list[tuple[str, ...]], model: Ma
 
 
 def _lattice_entry(patterns: list[CorrugationPattern]) -> tuple[tuple[ApparentLattice, ...], tuple[float, ...]]:
-    lattices = tuple(p.apparent_lattice for p in patterns)
-    periods = tuple(
-        v
-        for p in patterns
-        for v in periodicities(p.apparent_lattice.a, p.apparent_lattice.b, p.apparent_lattice.gamma, p.row_spacings)
-    )
-    return lattices, periods
+    """The lattices a class's terraces may show, and their periods: each pattern's, and its domains' together."""
+    lattices: list[ApparentLattice] = []
+    periods: list[float] = []
+    for p in patterns:
+        entries = [(p.apparent_lattice, p.row_spacings)]
+        dl = p.domain_lattice
+        if dl is not None and _lattice_key(dl) != _lattice_key(p.apparent_lattice):
+            entries.append((dl, ()))
+        for lat, rows in entries:
+            lattices.append(lat)
+            periods += periodicities(lat.a, lat.b, lat.gamma, rows)
+    return tuple(lattices), tuple(periods)
+
+
+def _lattice_key(lat: ApparentLattice) -> tuple[float, float, float]:
+    return (round(lat.a, 6), round(lat.b, 6), round(lat.gamma, 4))
+
+
+def _kept_cells(records: tuple[Reconstruction, ...]) -> list[Reconstruction]:
+    """The best cells of each kind: from the top layer alone and from two layers (records come best first)."""
+    one = [r for r in records if sum(1 for k in r.layer_changed if k) == 1]
+    two = [r for r in records if sum(1 for k in r.layer_changed if k) > 1]
+    kept = set(id(r) for r in one[:MAX_CELLS_PER_TERMINATION] + two[:MAX_CELLS_PER_TERMINATION])
+    return [r for r in records if id(r) in kept]
 
 
 def candidate_table(
@@ -223,6 +253,8 @@ def candidate_table(
     reconstructions=True,
     charges=None,
     max_cell=MAX_CELL,
+    cells=(),
+    select_cells=None,
     **termination_options,
 ):
     """Predictions of every face x termination (x reconstruction, x terrace mix) of ``crystal``.
@@ -243,6 +275,19 @@ def candidate_table(
         Formal charges per element for the polarity check.
     max_cell : int
         Largest supercell index of reconstruction candidates.
+    cells : sequence of str or CellSpec
+        Cells the user names (Wood notation or matrix,
+        :func:`termination.algebra.lattice2d.parse_cell`): each adds a
+        candidate per termination on every face whose mesh it fits, with the
+        default modulation of :func:`termination.surface.corrugation.cell_corrugation`.
+    select_cells : callable, optional
+        Reconstruction cells are the expensive part.  When given, the
+        candidates without cells are built first and
+        ``select_cells(candidates)`` returns the (hkl, termination id) pairs
+        whose cells are worth building (``match`` passes those whose tilt and
+        steps leave them in contention); the others keep the prior share of
+        their cells unspent.  Default: build the cells of every polar
+        termination.
     termination_options
         Passed to :func:`termination.surface.terminations.face_terminations`
         (``layer_tol_angstrom``, ``bond_factor``, ``bond_cutoff_angstrom``, ``unit_ratio``).
@@ -253,6 +298,7 @@ def candidate_table(
     """
     model = model or MatchModel()
     vis = Visibility() if visibility is None else visibility
+    specs = check_cells(cells)
     mount = None if mount is None else check_hkl(mount, "mount")
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     # Checked once for the crystal: per termination a species that is merely
@@ -267,8 +313,16 @@ def candidate_table(
     face_costs = [min(t.weighted_bonds_per_nm2 for t in ft.terminations) for _, ft in per_face]
     scale = _bond_scale(face_costs)
     w_min = min(face_costs)
-    rows: list[Candidate] = []
+    groups: list[list[Candidate]] = []  # per termination: its 1x1 candidate, then its cells
+    pending = []  # polar terminations whose reconstruction cells are still to build
+    fitted: dict[str, int] = {spec.label: 0 for spec in specs}
+    domains_seen: dict[str, list[tuple[tuple[int, int, int], tuple[str, ...]]]] = {}
     for (f, ft), w_face in zip(per_face, face_costs):
+        mesh = ft.atoms.mesh_inplane
+        user = [(spec, m) for spec in specs if (m := cell_matrix(spec, mesh)) is not None]
+        for spec, _ in user:
+            fitted[spec.label] += 1
+        rotations = face_point_group(crystal, ft.face)
         tilts, variants = ((), ()) if mount is None else _upward_tilts(crystal, f.variants, mount)
         log_face = -model.index_weight * (sum(abs(v) for v in f.hkl) - 1) - model.bond_weight * (w_face - w_min) / scale
         reps = [t for t in ft.terminations if t.equivalent_to is None]
@@ -277,15 +331,32 @@ def candidate_table(
         cost = np.array([t.weighted_bonds_per_nm2 for t in reps])
         p_class = np.array([len(m) for m in members]) * np.exp(-model.bond_weight * (cost - w_face) / scale)
         p_class /= p_class.sum()
-        patterns = {t.id: termination_corrugation(ft, t.id, vis) for t in reps}
+        patterns = {t.id: termination_corrugation(ft, t.id, vis, crystal=crystal) for t in reps}
         base = dict(hkl=f.hkl, d=ft.d, tilts=tilts, tilt_variants=variants)
         single_share = 1.0 - (model.mixed_share if len(reps) > 1 else 0.0)
         for k, t in enumerate(reps):
             lattices, periods = _lattice_entry([patterns[t.id]])
             steps = _class_steps(ft, [members[k]], model)
-            polar, recon = polar_info(ft, t) if polar_info else (None, ())
-            share = model.reconstructed_share if recon else 0.0
-            log_single = log_face + math.log(single_share * p_class[k])
+            polar, polarity = polar_info.polarity(ft, t) if polar_info else (None, None)
+            given = [
+                (
+                    cell_notation(m, mesh) + " given",
+                    [
+                        superpose_domains(
+                            cell_corrugation(ft, t.id, m, vis, crystal=crystal, cell=cell_notation(m, mesh)),
+                            m,
+                            rotations,
+                            mesh,
+                        )
+                    ],
+                )
+                for _, m in user
+            ]
+            user_share = model.user_cell_share if given else 0.0
+            if k == 0:
+                for (spec, _), (_, cell_patterns) in zip(user, given):
+                    domains_seen.setdefault(spec.label, []).append((f.hkl, cell_patterns[0].domains))
+            log_single = log_face + math.log(single_share * p_class[k]) + math.log1p(-user_share)
             one = dict(
                 base,
                 classes=(TerminationRef.of(t),),
@@ -294,26 +365,24 @@ def candidate_table(
                 polar=polar,
                 **steps,
             )
-            rows.append(
-                Candidate(
-                    cell=None,
-                    lattices=(lattices,),
-                    periods=(periods,),
-                    log_prior=log_single + math.log1p(-share),
-                    **one,
-                )
-            )
-            for cell_name, cell_patterns in recon:
+            group: list[Candidate] = [
+                Candidate(cell=None, lattices=(lattices,), periods=(periods,), log_prior=log_single, **one)
+            ]
+            log_given = log_face + math.log(single_share * p_class[k])
+            for cell_name, cell_patterns in given:
                 cl, cp = _lattice_entry(cell_patterns)
-                rows.append(
+                group.append(
                     Candidate(
                         cell=cell_name,
                         lattices=(cl,),
                         periods=(cp,),
-                        log_prior=log_single + math.log(share / len(recon)),
+                        log_prior=log_given + math.log(user_share / len(given)),
                         **one,
                     )
                 )
+            groups.append(group)
+            if polar_info is not None and polar_info.may_have_cells(polarity):
+                pending.append((len(groups) - 1, ft, t, rotations, polarity, log_single, one))
         if len(reps) > 1:
             cheapest = sorted(range(len(reps)), key=lambda k: -p_class[k])[: model.max_mixed_classes]
             pairs = [tuple(sorted(p)) for p in itertools.combinations(cheapest, 2)]
@@ -321,27 +390,68 @@ def candidate_table(
             weight /= weight.sum()
             for (i, j), w in zip(pairs, weight):
                 entries = [_lattice_entry([patterns[reps[k].id]]) for k in (i, j)]
-                rows.append(
-                    Candidate(
-                        classes=(TerminationRef.of(reps[i]), TerminationRef.of(reps[j])),
-                        members=(members[i], members[j]),
-                        relation=relation[reps[i].id],
-                        cell=None,
-                        lattices=tuple(e[0] for e in entries),
-                        periods=tuple(e[1] for e in entries),
-                        log_prior=log_face + math.log(model.mixed_share * w),
-                        polar=None,
-                        **base,
-                        **_class_steps(ft, [members[i], members[j]], model),
-                    )
+                groups.append(
+                    [
+                        Candidate(
+                            classes=(TerminationRef.of(reps[i]), TerminationRef.of(reps[j])),
+                            members=(members[i], members[j]),
+                            relation=relation[reps[i].id],
+                            cell=None,
+                            lattices=tuple(e[0] for e in entries),
+                            periods=tuple(e[1] for e in entries),
+                            log_prior=log_face + math.log(model.mixed_share * w),
+                            polar=None,
+                            **base,
+                            **_class_steps(ft, [members[i], members[j]], model),
+                        )
+                    ]
                 )
+    # Reconstruction cells last: the expensive part, built where they may matter.
+    chosen = None
+    if select_cells is not None and pending:
+        chosen = set(select_cells(tuple(c for group in groups for c in group)))
+    spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
+    for index, ft, t, rotations, polarity, log_single, one in pending:
+        share = model.reconstructed_share
+        if chosen is not None and (ft.face.hkl, t.id) not in chosen:
+            spent.append(log_single + math.log(share))
+        else:
+            recon = polar_info.cells(ft, t, rotations, polarity)
+            if not recon:
+                continue
+            groups[index] += [
+                Candidate(
+                    cell=cell_name,
+                    lattices=(cl,),
+                    periods=(cp,),
+                    log_prior=log_single + math.log(share / len(recon)),
+                    **one,
+                )
+                for cell_name, (cl, cp) in ((name, _lattice_entry(pats)) for name, pats in recon)
+            ]
+        first = groups[index][0]
+        groups[index][0] = replace(first, log_prior=first.log_prior + math.log1p(-share))
+    rows = [c for group in groups for c in group]
     if model.flat_prior:
         rows = [replace(r, log_prior=0.0) for r in rows]
     lp = np.array([r.log_prior for r in rows])
-    lp -= logsumexp(lp)
+    lp -= logsumexp(np.concatenate([lp, spent if not model.flat_prior else []]))
     out = tuple(replace(r, log_prior=float(v)) for r, v in zip(rows, lp))
     if vis == Visibility():
         notes = [*notes, "imaging model: every species images alike (--visible and --weight change it)"]
+    for label, count in fitted.items():
+        if not count:
+            notes = [*notes, f"cell {label} fits the mesh of no face up to index {int(max_index)}: not tried"]
+    for label, seen in domains_seen.items():
+        parts = [f"{hkl_text(hkl)} {' + '.join(names)}" for hkl, names in seen[:4]]
+        more = f"; and {len(seen) - 4} more faces" if len(seen) > 4 else ""
+        notes = [*notes, f"cell {label}, rotational domains superposed: " + "; ".join(parts) + more]
+    if specs:
+        notes = [
+            *notes,
+            "given cells: one 1×1 cell per cell images twice as strongly; each is matched with one domain "
+            "and with its rotational domains superposed",
+        ]
     return CandidateTable(
         structure=summarise_structure(crystal),
         mount=mount,
@@ -360,8 +470,41 @@ def _upward_tilts(crystal, variants, mount):
     return tuple(float(a) for a in ang[keep]), tuple(v for v, k in zip(variants, keep) if k)
 
 
+class _PolarityProvider:
+    """Polarity of terminations (cheap) and their reconstruction cells with corrugation (expensive)."""
+
+    def __init__(self, charged, reconstructions, max_cell, vis):
+        self.charged = charged
+        self.reconstructions = reconstructions
+        self.max_cell = max_cell
+        self.vis = vis
+
+    def polarity(self, ft, t):
+        """(Tasker type III?, the polarity record without cells)."""
+        pol = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=False)
+        return pol.tasker_type == "III", pol
+
+    def may_have_cells(self, pol) -> bool:
+        """Whether a cell search can give anything: reconstructions asked for, a polar termination to compensate."""
+        return (
+            bool(self.reconstructions) and pol is not None and pol.tasker_type == "III" and pol.compensation is not None
+        )
+
+    def cells(self, ft, t, rotations, pol):
+        """[(cell label, [pattern with its domains superposed]), ...] of the best cells, best first."""
+        full = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=True)
+        out = []
+        for r in _kept_cells(full.reconstructions):
+            try:
+                pattern = reconstruction_corrugation(ft, t.id, r, self.vis, crystal=self.charged)
+            except StructureError:
+                continue
+            out.append((r.label, [superpose_domains(pattern, r.matrix, rotations, ft.atoms.mesh_inplane)]))
+        return out
+
+
 def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
-    """Charged crystal and a function (ft, termination) -> (polar, [(cell, [patterns]), ...]).
+    """Charged crystal, a :class:`_PolarityProvider` (None without formal charges) and notes.
 
     Without formal charges (given, from the file, or the built-in guess) the
     polarity is not assessed and no reconstruction candidates are added.
@@ -376,16 +519,4 @@ def _polarity_provider(crystal, charges, reconstructions, max_cell, vis):
     notes = [f"formal charges {found.method}: " + ", ".join(f"{el} {q:+g}" for el, q in found.charges.items())]
     if found.caution:
         notes.append(found.caution)
-
-    def info(ft, t):
-        pol = termination_polarity(charged, ft, t.id, max_cell=max_cell, with_reconstructions=reconstructions)
-        cells = []
-        for r in pol.reconstructions[:MAX_CELLS_PER_TERMINATION]:
-            try:
-                pattern = reconstruction_corrugation(ft, t.id, r, vis)
-            except StructureError:
-                continue
-            cells.append((pattern.cell, [pattern]))
-        return pol.tasker_type == "III", cells
-
-    return charged, info, notes
+    return charged, _PolarityProvider(charged, reconstructions, max_cell, vis), notes

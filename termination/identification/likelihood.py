@@ -40,8 +40,11 @@ prior
     |class| exp(-bond_weight (w_t - w_F)/W), normalised; a share
     (``mixed_share``, default 0.2) goes to mixed surfaces of the cheapest
     terminations; a polar termination gives half its mass to its
-    reconstruction cells.  ``flat_prior`` makes every candidate equally
-    likely.
+    reconstruction cells; cells the user names (``--cell``) get
+    ``user_cell_share`` (default half) of a termination's mass, in equal
+    parts, on every face whose mesh they fit.  A cell is matched with one
+    domain and with all its rotational domains superposed (two lattices).
+    ``flat_prior`` makes every candidate equally likely.
 
 The posterior of a candidate is exp(log prior + sum log L), normalised.  It
 is relative: :mod:`termination.identification.fit` checks separately that
@@ -64,6 +67,7 @@ from termination.identification.fit import FitCheck, fit_check
 from termination.identification.lattices import (
     angle_log_likelihood,
     lattice_readings,
+    log_student,
     pair_log_likelihood,
     spacing_log_likelihood,
 )
@@ -563,8 +567,47 @@ def match(crystal, measurement: Measurement, *, top: int | None = None, **option
     opts.setdefault("max_index", measurement.max_index or MAX_INDEX)
     if "visibility" not in opts:
         opts["visibility"] = measurement_visibility(measurement)
+    opts.setdefault("select_cells", cells_in_contention(measurement, opts.get("model") or MatchModel()))
     table = candidate_table(crystal, **opts)
     return score(table, measurement, top=top)
+
+
+#: A termination whose best conceivable reconstruction cell would still trail the best candidate by
+#: more than this (natural log units, a factor of e^25 ~ 10^11) gets no cells built.
+CONTENTION_MARGIN = 25.0
+
+
+def cells_in_contention(measurement: Measurement, model: MatchModel):
+    """A ``select_cells`` function for :func:`candidate_table`: the terminations whose cells may matter.
+
+    A cell shares its termination's tilt and steps; only its lattice differs,
+    and no lattice can score better than every measured spacing and angle
+    matched exactly.  So a cell of termination t can reach at most
+    log prior(t) + L_tilt(t) + L_steps(t) + L_lattice,max; if that trails the
+    best candidate without cells by more than :data:`CONTENTION_MARGIN`, the
+    cell search of t is skipped.  The ranking is the same as with every cell
+    built, up to candidates e^-25 times less probable than the best.
+    """
+    eff = effective_measurement(measurement, model)
+    dof = model.tail_dof
+    sigmas = [s for _, s in eff["spacings"]] + ([eff["row_angle"][1]] if eff["row_angle"] is not None else [])
+    lattice_max = float(sum(log_student(0.0, 0.0, s, dof) for s in sigmas))
+
+    def select(candidates):
+        if not candidates:
+            return set()
+        prior = [0.0 if model.flat_prior else c.log_prior for c in candidates]
+        scored = [_score_one(c, eff, model) for c in candidates]
+        best = max(p + sc.loglik for p, sc in zip(prior, scored))
+        out = set()
+        for c, p, sc in zip(candidates, prior, scored):
+            if c.cell is None and not c.mixed:
+                bound = p + (sc.terms.tilt or 0.0) + (sc.terms.steps or 0.0) + lattice_max
+                if bound >= best - CONTENTION_MARGIN:
+                    out.add((c.hkl, c.termination.id))
+        return out
+
+    return select
 
 
 def measurement_visibility(measurement: Measurement) -> Visibility:

@@ -54,6 +54,9 @@ class MatchModel:
         Mixed-terrace hypotheses pair the cheapest this-many terminations of a face.
     reconstructed_share : float
         Prior mass of a polar termination given to its reconstruction cells.
+    user_cell_share : float
+        Prior mass of a termination given to the cells the user names
+        (``--cell``), in equal parts, on the faces whose mesh they fit.
     flat_prior : bool
         Every candidate equally likely a priori.
     fit_alpha : float
@@ -82,6 +85,7 @@ class MatchModel:
     mixed_share: float = 0.2
     max_mixed_classes: int = 3
     reconstructed_share: float = 0.5
+    user_cell_share: float = 0.5
     flat_prior: bool = False
     fit_alpha: float = 1e-3
     fit_outlier_alpha: float = 0.05
@@ -99,6 +103,7 @@ class MatchModel:
                 "step_outlier_fraction",
                 "mixed_share",
                 "reconstructed_share",
+                "user_cell_share",
                 "fit_alpha",
                 "fit_outlier_alpha",
             ):

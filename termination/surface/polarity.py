@@ -35,6 +35,7 @@ from termination.bulk.crystal import Crystal
 from termination.bulk.elements import count_species
 from termination.defaults import (
     CHARGE_TOL_E,
+    COMPENSATION_LAYERS,
     DIPOLE_TOL_E_PER_ANGSTROM,
     FRACTION_TOL,
     MAX_CELL,
@@ -48,7 +49,7 @@ from termination.surface.reconstructions import (
     Reconstruction,
     _reconstructions,
     check_max_cell,
-    compensation_sites,
+    compensation_layers,
 )
 from termination.surface.terminations import FaceTerminations, SurfaceAtoms
 from termination.units import ANGSTROM, ANGSTROM2, E_ANGSTROM, E_PER_ANGSTROM, E
@@ -182,6 +183,20 @@ def _fraction_text(f: float) -> str:
     return f"{fr.numerator}/{fr.denominator}" if abs(float(fr) - abs(f)) < RELATIVE_EPS else f"{abs(f):.4g}"
 
 
+def _nearest_note(recs: tuple[Reconstruction, ...], compensation: float, max_cell: int, kind: str) -> str:
+    """What the nearest cells realise instead of the exact compensation, and where the rest must come from."""
+    names: list[str] = []
+    for r in recs:
+        text = f"{r.name} ({r.residual_charge:+.3f} e per cell left)"
+        if text not in names:
+            names.append(text)
+    shown = ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+    return (
+        f"no cell up to index {max_cell} realises {_fraction_text(compensation)} of the {kind} exactly; nearest: "
+        f"{shown}; the remainder is left to electronic compensation or adsorbates"
+    )
+
+
 def termination_polarity(
     crystal: Crystal | None,
     face_terminations: FaceTerminations,
@@ -193,6 +208,7 @@ def termination_polarity(
     fraction_tol: float = FRACTION_TOL,
     max_patterns: int = MAX_PATTERNS,
     with_reconstructions: bool = True,
+    layers: int = COMPENSATION_LAYERS,
 ) -> TerminationPolarity:
     """Layer charges, dipole, Tasker type, compensation and reconstructions of one termination.
 
@@ -215,10 +231,16 @@ def termination_polarity(
         See :func:`termination.surface.reconstructions.reconstructions`.
     with_reconstructions : bool
         Skip the supercell search when False.
+    layers : {1, 2}
+        Layers (or units) from the top that may give the compensating charge
+        (:func:`termination.surface.reconstructions.compensation_layers`).
 
     Returns
     -------
     TerminationPolarity
+        With the reconstruction cells that realise the compensation, best
+        first; when none up to ``max_cell`` does, the nearest ones (smallest
+        residual charge first) and a note saying so.
 
     Notes
     -----
@@ -233,7 +255,11 @@ def termination_polarity(
     layer cancels it (the layer-stack condition of Goniakowski et al.,
     sigma_top' = sigma_top + dq).  The compensation is f = dq / Q with Q the
     top unit's charge (the top layer's when the unit is neutral).  For a
-    rock-salt (111) stack (+-sigma layers, spacing d/2) f = -1/2.
+    rock-salt (111) stack (+-sigma layers, spacing d/2) f = -1/2.  The charge
+    dq may come from the top layer and the one below it
+    (:func:`termination.surface.reconstructions.reconstructions`); where no
+    cell realises it exactly, the nearest cells are listed and the remainder
+    is left to electronic compensation or adsorbates.
 
     References
     ----------
@@ -246,7 +272,7 @@ def termination_polarity(
         raise TypeError("termination_polarity needs the crystal to search reconstructions")
     t = ft.termination(termination_key)
     ru = ft.repeat_unit(t.id)
-    layers = layer_charges(ru, ft.layer_tol_angstrom)
+    layer_rows = layer_charges(ru, ft.layer_tol_angstrom)
     area = ft.face.mesh.area
     d = ft.d
     if ru.charges is None:
@@ -257,7 +283,7 @@ def termination_polarity(
     q = np.asarray(ru.charges, dtype=float)
     mu = float(q @ ru.depth)
     dq = mu / d
-    charged = any(abs(L.charge) > charge_tol_e for L in layers)
+    charged = any(abs(L.charge) > charge_tol_e for L in layer_rows)
     tasker: TaskerType
     if not charged:
         tasker = "I"
@@ -273,7 +299,8 @@ def termination_polarity(
     if tasker == "I" and abs(mu) / area > dipole_tol_e_per_angstrom:
         note = "neutral layers, but their rumpling gives the repeat unit a dipole"
     if tasker == "III":
-        group = compensation_sites(ft, t.id, "auto", charge_tol_e)
+        groups = compensation_layers(ft, t.id, "auto", charge_tol_e, layers)
+        group = groups[0]
         # The atoms carry charges (checked above), so the sites do too.
         Q = 0.0 if group.charge is None else float(np.sum(group.charge))
         sites_kind = "top unit" if group.kind == "unit" else "top layer"
@@ -289,14 +316,20 @@ def termination_polarity(
                     "these sites can give"
                 )
             elif with_reconstructions and crystal is not None:
-                recs = _reconstructions(crystal, ft, t.id, compensation, n_cells, group, fraction_tol, max_patterns)
-                if not recs:
+                if compensation > 0:
+                    groups = groups[:1]
+                recs = _reconstructions(
+                    crystal, ft, t.id, compensation, n_cells, groups, fraction_tol, max_patterns, nearest=True
+                )
+                if recs and not recs[0].exact:
+                    note = _nearest_note(recs, compensation, n_cells, sites_kind)
+                elif not recs:
                     note = f"no supercell up to index {n_cells} realises {_fraction_text(compensation)} of the sites"
     return TerminationPolarity(
         id=t.id,
         label=t.label,
         tasker_type=tasker,
-        layers=layers,
+        layers=layer_rows,
         dipole=mu,
         dipole_per_area=mu / area,
         compensating_charge=dq,

@@ -198,3 +198,105 @@ def test_translation_classes_match_brute_force(mesh, matrix, base, k):
     assert r.distinct == len(orbits)
     best = min(0.5 * phi[np.ix_(c, c)].sum() * 14.399645 / k for c in orbits.values())
     assert r.energy_ev[0] == pytest.approx(best, abs=1e-9)
+
+
+# Standard Wood notation only ------------------------------------------------------------------
+
+RECTANGULAR = np.array([[2.88, 0.0], [0.0, 4.08]])  # fcc (110) of Au, a = 4.08 Å (from memory)
+
+
+def test_wood_notation_is_standard_only():
+    # Wood 1964; common practice: a centred cell is the centred rectangle (square and rectangular
+    # meshes only); a rotated cell keeps the mesh's shape only on square and hexagonal meshes.
+    # "c(2×2)" on a hexagonal mesh (2a, a + b) is a rotated (2×1) domain: (1×2)R60°, not a centred cell
+    assert wood_notation([[2, 0], [1, 1]], HEXAGONAL).label == "(1×2)R60°"
+    assert wood_notation([[1, 1], [-1, 1]], RECTANGULAR).label == "c(2×2)"
+    assert wood_notation([[1, 0], [0, 2]], RECTANGULAR).label == "(1×2)"  # the missing-row cell of Au, Pt (110)
+    assert wood_notation([[1, 1], [-2, 2]], SQUARE).label == "(√2×2√2)R45°"  # O on Cu(100) (common practice)
+
+
+def test_the_issue_name_c_root48_is_replaced_by_the_matrix():
+    # Issue 13: a hexagonal cell used to be named c(√48×√12)R30°; its conventional cell is
+    # 4√3 a × 2√3 a turned by 30°, the centring (A1 + A2)/2.
+    from termination.algebra.lattice2d import cell_notation
+
+    a1 = np.array([8, 4])  # 4√3 a at 30° on the 120° mesh: (8, 4) -> |.| = √48 a
+    a2 = np.array([-2, 2])  # 2√3 a at 120°
+    m = np.array([a1, (a1 + a2) // 2])
+    assert abs(round(np.linalg.det(m))) == 12
+    assert cell_notation(m, HEXAGONAL) == "(8 4 / 3 3)"  # the matrix, no Wood name
+
+
+@pytest.mark.parametrize(
+    "mesh, kind",
+    [(SQUARE, "square"), (HEXAGONAL, "hexagonal"), (RECTANGULAR, "rectangular"), ([[2.0, 0.0], [0.7, 3.1]], "oblique")],
+)
+def test_mesh_kind(mesh, kind):
+    from termination.algebra.lattice2d import mesh_kind
+
+    assert mesh_kind(mesh) == kind
+
+
+# Parsing cells ----------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "text, mesh, label, lattice",
+    [
+        ("2x1", SQUARE, "(2×1)", [[2, 0], [0, 1]]),  # Wood 1964
+        ("p(2×2)", SQUARE, "(2×2)", [[2, 0], [0, 2]]),
+        ("c(2x2)", SQUARE, "c(2×2)", [[1, 1], [-1, 1]]),  # Wood 1964: c(2×2) = (√2×√2)R45°
+        ("c(4x2)", SQUARE, "c(4×2)", [[2, 1], [0, 2]]),
+        ("(√3×√3)R30°", HEXAGONAL, "(√3×√3)R30°", [[2, 1], [-1, 1]]),  # Wood 1964
+        ("sqrt3xsqrt3R30", HEXAGONAL, "(√3×√3)R30°", [[2, 1], [-1, 1]]),
+        ("(sqrt(7) x sqrt(7))R19.1", HEXAGONAL, "(√7×√7)R19.1°", [[3, 1], [-1, 2]]),  # arccos(5/(2√7)) = 19.11°
+        ("(√2×2√2)R45°", SQUARE, "(√2×2√2)R45°", [[1, 1], [-2, 2]]),
+        ("1x2", RECTANGULAR, "(1×2)", [[1, 0], [0, 2]]),
+        ("2,1,0,2", SQUARE, "(2 1 / 0 2)", [[2, 1], [0, 2]]),
+        ("[[2, 1], [-1, 1]]", HEXAGONAL, "(2 1 / -1 1)", [[2, 1], [-1, 1]]),
+    ],
+)
+def test_parse_cell_and_place_it_on_a_mesh(text, mesh, label, lattice):
+    from termination.algebra.lattice2d import cell_matrix, parse_cell
+
+    spec = parse_cell(text)
+    assert spec.label == label
+    m = cell_matrix(spec, mesh)
+    assert m is not None and round(np.linalg.det(m)) > 0
+    # the same sublattice, whatever basis: compare Hermite forms (basis-independent)
+    assert np.array_equal(canonical_hnf(m), canonical_hnf(lattice))
+    if spec.matrix is None and not spec.centred:
+        # Wood's definition: |A1| = m|a|, |A2| = n|b|, both turned by the same angle
+        v = m @ np.asarray(mesh)
+        assert np.linalg.norm(v[0]) ** 2 == pytest.approx(spec.m2 * np.linalg.norm(mesh[0]) ** 2)
+        assert np.linalg.norm(v[1]) ** 2 == pytest.approx(spec.n2 * np.linalg.norm(mesh[1]) ** 2)
+
+
+def test_a_wood_cell_that_does_not_fit_the_mesh_gives_none():
+    from termination.algebra.lattice2d import cell_matrix, parse_cell
+
+    assert cell_matrix(parse_cell("(sqrt3xsqrt3)R30"), SQUARE) is None  # no √3 R30° vector on a square net
+    assert cell_matrix(parse_cell("(√2×√2)R45°"), HEXAGONAL) is None
+
+
+@pytest.mark.parametrize(
+    "text, message",
+    [
+        ("1x1", "unreconstructed"),
+        ("(1×1)", "unreconstructed"),
+        ("1,0,0,1", "unreconstructed"),
+        ("2,4,1,2", "singular"),
+        ("2y1", "neither Wood"),
+        ("2x", "neither Wood"),
+        ("c(1x1)", "centred"),
+        ("(2x2)R200", "between 0° and 180°"),
+        ("1000x1", "at most"),
+    ],
+)
+def test_bad_cells_are_refused_with_their_text(text, message):
+    from termination.algebra.lattice2d import parse_cell
+    from termination.errors import PlaneError
+
+    with pytest.raises(PlaneError, match=message) as info:
+        parse_cell(text)
+    assert repr(text) in str(info.value) or text in str(info.value)

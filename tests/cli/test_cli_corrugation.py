@@ -65,7 +65,7 @@ def test_corrugation_json_has_the_issue_fields():
         assert abs(lat["a_angstrom"] - a) < 1e-3 and abs(lat["b_angstrom"] - a) < 1e-3
         assert abs(lat["gamma_deg"] - 120) < 1e-6
         assert t["lattice_type"] == "hexagonal"
-        assert {"g", "length_per_angstrom", "intensity"} == set(t["spots"][0])
+        assert {"g", "length_per_angstrom", "intensity", "domains"} == set(t["spots"][0])
     # One termination, a weight and a depth: the JSON records the settings.
     r = invoke(
         "corrugation",

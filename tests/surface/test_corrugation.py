@@ -491,3 +491,77 @@ def test_reconstruction_records_of_the_polarity_step(proto):
         visibility=Visibility(visible=["La"], max_depth_angstrom=4.0, decay_length_angstrom=float("inf")),
     )
     assert spot(q, (0.5, 0.5)) == 0.0 and q.apparent_lattice.a == pytest.approx(4.157)
+
+
+# Site weights: one kind of site images (issue 13) ----------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def rutile(from_spacegroup):
+    """Rutile TiO2: P4_2/mnm, a = 4.594 Å, c = 2.959 Å, O at 4f x = 0.305 (from memory)."""
+    from pymatgen.core import Lattice
+
+    c = from_spacegroup("P4_2/mnm", Lattice.tetragonal(4.594, 2.959), [("Ti", (0, 0, 0)), ("O", (0.305, 0.305, 0))])
+    return c, face_terminations(c, (1, 1, 0))
+
+
+def test_rutile_110_coordination_tells_five_fold_from_six_fold_ti(rutile):
+    # TiO2(110) with its bridging-O rows: the top O bridges two Ti (O2c), the in-plane O keep
+    # three bonds (O3c), and the Ti rows alternate between five-fold (Ti5c, one apical bond cut)
+    # and six-fold (Ti6c, under the bridging O) (U. Diebold, Surf. Sci. Rep. 48, 53 (2003)).
+    from termination.surface.coordination import surface_coordination
+
+    c, ft = rutile
+    bridging = next(t for t in ft.terminations if t.label == "O")
+    atoms = ft.surface_atoms(bridging.id, 1.5)
+    n = surface_coordination(c, ft, bridging.id, atoms)
+    kinds = sorted(f"{el}{k}c" for el, k in zip(atoms.species, n))
+    assert kinds == ["O2c", "O3c", "O3c", "Ti5c", "Ti6c"]
+    # Deep atoms keep the bulk coordination: 6 for Ti, 3 for O (rutile, common practice).
+    deep = ft.surface_atoms(bridging.id, 8.0)
+    n = surface_coordination(c, ft, bridging.id, deep)
+    far = deep.depth > 4.0
+    assert set(zip(np.array(deep.species)[far], n[far])) == {("Ti", 6), ("O", 3)}
+
+
+def test_rutile_110_five_fold_ti_rows_are_6_5_angstrom_apart(rutile):
+    # Empty-state STM of TiO2(110) shows the Ti5c rows along [001], a√2 = 6.50 Å apart, 2.96 Å
+    # along the rows (U. Diebold et al., Phys. Rev. Lett. 77, 1322 (1996)).  The Ti lie 1.3 Å
+    # below the bridging O, below the top unit: flat with the top unit only, the Ti5c and Ti6c
+    # together (3.25 Å rows) with --depth, the Ti5c rows alone with the six-fold Ti weighted 0.
+    c, ft = rutile
+    key = next(t.id for t in ft.terminations if t.label == "O")
+    flat = termination_corrugation(ft, key, Visibility(visible=["Ti"]), crystal=c)
+    assert lattice_type(flat.apparent_lattice) == "flat"
+    both = termination_corrugation(ft, key, Visibility(visible=["Ti"], max_depth_angstrom=2.0), crystal=c)
+    assert both.row_spacings[0] == pytest.approx(4.594 * R2 / 2)
+    five = termination_corrugation(
+        ft, key, Visibility(visible=["Ti"], max_depth_angstrom=2.0, site_weights={"Ti6c": 0}), crystal=c
+    )
+    lat = five.apparent_lattice
+    assert (lat.a, lat.b, lat.gamma) == pytest.approx((2.959, 4.594 * R2, 90.0))
+    assert five.row_spacings[0] == pytest.approx(4.594 * R2)
+    # the same with the five-fold Ti switched on alone
+    only5 = termination_corrugation(
+        ft, key, Visibility(visible=["O"], max_depth_angstrom=2.0, weights={"O": 0}, site_weights={"Ti5": 1}), crystal=c
+    )
+    assert only5.apparent_lattice == lat
+
+
+def test_site_weights_are_checked(rutile):
+    _, ft = rutile
+    from termination.surface.corrugation import parse_site, parse_site_weights
+
+    assert parse_site("Ti5c") == ("Ti", 5) and parse_site("o2") == ("O", 2)
+    assert Visibility(site_weights={"Ti6": 0}).site_weights == (("Ti6c", 0.0),)
+    for bad in ("Ti", "5c", "Tix5", "Zz5c"):
+        with pytest.raises(StructureError):
+            parse_site(bad)
+    with pytest.raises(StructureError, match="non-negative"):
+        Visibility(site_weights={"Ti5c": -1})
+    with pytest.raises(StructureError, match="twice"):
+        parse_site_weights(["Ti5c=1", "Ti5=0"])
+    with pytest.raises(StructureError, match="need the crystal"):
+        termination_corrugation(ft, "T1", Visibility(site_weights={"Ti5c": 1}))
+    with pytest.raises(StructureError, match="'Sr'"):
+        Visibility(site_weights={"Sr5c": 1}).check(ft.atoms.species)

@@ -103,8 +103,12 @@ def test_perovskite_110_is_type_III(charged):
     assert by["SrTiO"].compensating_charge == pytest.approx(-2.0)
     for t in by.values():
         assert t.tasker_type == "III" and t.compensation == pytest.approx(-0.5)
-    # One of the two O of a 1×1 cell can go: the (1×1) cell realises it
-    assert "(1×1)" in woods(by["O2"])
+    # One of the two O of a 1×1 cell can go: named for what it is, never a "(1×1)" reconstruction (issue 13)
+    names = [r.name for r in by["O2"].reconstructions]
+    assert "1×1 with 1 of 2 O removed" in names
+    assert "(1×1)" not in names and "(1×1)" not in woods(by["O2"])
+    (one,) = [r for r in by["O2"].reconstructions if r.name.startswith("1×1")]
+    assert one.wood is None and one.sites == 2 and one.changed == 1
 
 
 # Hexaborides -----------------------------------------------------------------------------------
@@ -314,7 +318,7 @@ def test_rotated_and_shifted_input_cell_gives_the_same_polarity():
 def test_reconstructions_realise_the_fraction_with_whole_sites(charged):
     c = charged("rocksalt:Na,Cl")
     ft = face_terminations(c, (1, 1, 1))
-    recs = reconstructions(c, ft, "Na", -1 / 3, max_cell=6)
+    recs = reconstructions(c, ft, "Na", -1 / 3, max_cell=6, layers=1)
     assert recs and all(r.changed == round(r.sites / 3) for r in recs)
     assert all(round(abs(np.linalg.det(np.array(r.matrix)))) == r.sites for r in recs)
     # a third of a triangular layer: the √3 vacancy lattice has the lowest energy  # common practice

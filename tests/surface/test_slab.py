@@ -240,7 +240,9 @@ def test_cells_are_chosen_by_wood_notation_matrix_or_rank():
     assert select_reconstruction(recs, pattern=2) is recs[1]
     for text in ("(2×1)", "2x1", "(2 x 1)", "2 0 0 1"):
         assert select_reconstruction(recs, text).matrix == ((2, 0), (0, 1))
-    assert select_reconstruction(recs, "c(4x2)").wood == "c(4×2)"
+    # a centred cell on the hexagonal (111) mesh has no standard Wood name: it goes by its matrix
+    assert select_reconstruction(recs, "2 0 1 2").matrix == ((2, 0), (1, 2))
+    assert select_reconstruction(recs, "(2x2)").wood == "(2×2)"
 
 
 def test_an_adatom_pattern_adds_the_sites_one_period_up():
