@@ -318,13 +318,23 @@ def _termination_rules(
 class _Outputs:
     """``--plot DIR``, ``--plot-format`` and ``--report FILE`` of one command: checked before the work, written after.
 
-    Figures and reports are drawn by :mod:`termination.figures` (matplotlib is imported only then) and
-    written through :mod:`termination.outputs`; a line on stderr names what was written.
+    ``values`` are the command's parsed arguments (its ``locals()`` on entry), for the command line a
+    report shows when ``main`` did not see it typed.  Figures and reports are drawn by
+    :mod:`termination.figures` (matplotlib is imported only then) and written through
+    :mod:`termination.outputs`; a line on stderr names what was written.
     """
 
     def __init__(
-        self, plot: str | None, fmt: str, force: bool, report: str | None = None, inputs: tuple[str, ...] = ()
+        self,
+        command: str,
+        values: dict[str, Any],
+        plot: str | None,
+        fmt: str,
+        force: bool,
+        report: str | None = None,
+        inputs: tuple[str, ...] = (),
     ) -> None:
+        self.command, self.values = command, dict(values)
         self.plot, self.fmt, self.force, self.report, self.inputs = plot, fmt, force, report, inputs
         if plot is not None:
             from termination.figures.commands import check_plot_folder
@@ -354,7 +364,7 @@ class _Outputs:
         if self.report is not None:
             from termination.htmlreport import command_line, write_report
 
-            command = command_line(_ARGV.get() or _typed_command())
+            command = command_line(_ARGV.get() or _typed_command(self.command, self.values))
             write_report(self.report, record, plans, command=command, force=self.force, inputs=self.inputs)
             written.append(self.report)
         if written:
@@ -362,29 +372,27 @@ class _Outputs:
             typer.echo(f"termination: wrote {shown}", err=True)
 
 
-def _typed_command() -> list[str]:
-    """The arguments of the running command, rebuilt from its parsed options (when ``main`` did not see them)."""
-    import click
-
-    ctx = click.get_current_context()
-    args = [ctx.info_name or ""]
-    for param in ctx.command.params:
-        value = ctx.params.get(param.name or "")
-        if value is None or value is False or value == param.default or value == ():
+def _typed_command(command: str, values: dict[str, Any]) -> list[str]:
+    """The arguments of ``command``, rebuilt from its parsed ``values`` (when ``main`` did not see them typed)."""
+    params = typer.main.get_command(app).commands[command].params  # type: ignore[attr-defined]
+    args = [command]
+    for param in params:
+        value = values.get(param.name)
+        if value is None or value == param.default or value in ((), []):
             continue
-        if isinstance(param, click.Argument):
+        if param.param_type_name == "argument":
             args += [str(v) for v in (value if isinstance(value, (list, tuple)) else [value])]
             continue
-        flag = param.opts[0]
-        if value is True:
-            args.append(flag)
-        elif isinstance(value, (list, tuple)) and getattr(param, "multiple", False):
+        if value is True or value is False:
+            flags = param.opts if value else param.secondary_opts
+            args += flags[:1]
+        elif getattr(param, "multiple", False):
             for v in value:
-                args += [flag, *(str(u) for u in (v if isinstance(v, (list, tuple)) else [v]))]
+                args += [param.opts[0], *(str(u) for u in (v if isinstance(v, (list, tuple)) else [v]))]
         elif isinstance(value, (list, tuple)):
-            args += [flag, *(str(v) for v in value)]
+            args += [param.opts[0], *(str(v) for v in value)]
         else:
-            args += [flag, str(value)]
+            args += [param.opts[0], str(value)]
     return args
 
 
@@ -428,7 +436,7 @@ def planes(
     """Symmetry-distinct faces: spacing d, tilt to the mount face, mesh, terminations, polarity."""
     from termination.reports import planes_report
 
-    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
+    outputs = _Outputs("planes", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     report = planes_report(
         crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge), tilt_window=tilt_window
@@ -464,7 +472,7 @@ def terminations(
     """Atomic layers, terminations and allowed step heights of one face."""
     from termination.reports import terminations_report
 
-    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
+    outputs = _Outputs("terminations", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio, max_multiple)
     report = terminations_report(crystal, _require_plane(plane), **rules)
@@ -507,7 +515,7 @@ def polarity(
     """Layer charges, dipole, Tasker type, compensation and reconstruction cells per termination."""
     from termination.reports import polarity_report
 
-    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
+    outputs = _Outputs("polarity", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     report = polarity_report(
@@ -569,7 +577,7 @@ def corrugation(
     from termination.reports import corrugation_report
     from termination.surface.corrugation import Visibility, parse_site_weights
 
-    outputs = _Outputs(plot, plot_format, force, inputs=_inputs(structure))
+    outputs = _Outputs("corrugation", locals(), plot, plot_format, force, inputs=_inputs(structure))
     cells = check_cells(cell)
     visibility = Visibility(
         visible=visible or None,
@@ -700,6 +708,7 @@ def match(
     wide: Wide = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
+    typed = dict(locals())  # the arguments as parsed, before --demo fills in its own
     from dataclasses import replace
 
     from termination.algebra.lattice2d import check_cells
@@ -737,7 +746,13 @@ def match(
         decay_length=decay_length,
     )
     outputs = _Outputs(
-        plot, plot_format, force, report_file, inputs=_inputs(structure) + tuple(v for v in (measurement, steps) if v)
+        "match",
+        typed,
+        plot,
+        plot_format,
+        force,
+        report_file,
+        inputs=_inputs(structure) + tuple(v for v in (measurement, steps) if v),
     )
     base = read_measurement(measurement) if measurement else Measurement()
     cells = check_cells(cell)
@@ -856,7 +871,7 @@ def image(
 
     from termination.reports import image_report
 
-    outputs = _Outputs(plot, plot_format, force, report_file, inputs=(file,))
+    outputs = _Outputs("image", locals(), plot, plot_format, force, report_file, inputs=(file,))
 
     # A progress bar only where someone watches: a terminal, and a map of a megapixel or more.
     with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:

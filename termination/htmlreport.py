@@ -85,12 +85,25 @@ def versions() -> dict[str, str]:
 def inline_svg(svg: bytes | str, prefix: str) -> str:
     """An SVG file as an element to put in a page: no XML prolog or DOCTYPE, every id prefixed with ``prefix``.
 
+    Ids are made valid and unique in the page: blanks become '_', a repeated
+    id (matplotlib repeats glyph definitions and the gids of a figure's parts)
+    gets '~2', '~3', ...; references keep pointing at the first, as they did.
+
     >>> inline_svg('<?xml version="1.0"?><svg><g id="a" clip-path="url(#a)"/><use xlink:href="#a"/></svg>', "f1-")
     '<svg><g id="f1-a" clip-path="url(#f1-a)"/><use xlink:href="#f1-a"/></svg>'
+    >>> inline_svg('<svg><g id="pole label"/><g id="pole label"/></svg>', "f2-")
+    '<svg><g id="f2-pole_label"/><g id="f2-pole_label~2"/></svg>'
     """
     text = svg.decode("utf-8") if isinstance(svg, bytes) else svg
     text = text[text.index("<svg") :]
-    text = re.sub(r'\bid="([^"]+)"', lambda m: f'id="{prefix}{m.group(1)}"', text)
+    seen: dict[str, int] = {}
+
+    def unique(m: re.Match[str]) -> str:
+        name = prefix + re.sub(r"\s+", "_", m.group(1))
+        seen[name] = seen.get(name, 0) + 1
+        return f'id="{name}"' if seen[name] == 1 else f'id="{name}~{seen[name]}"'
+
+    text = re.sub(r'\bid="([^"]+)"', unique, text)
     text = re.sub(r"url\(#([^)]+)\)", lambda m: f"url(#{prefix}{m.group(1)})", text)
     text = re.sub(r'href="#([^"]+)"', lambda m: f'href="#{prefix}{m.group(1)}"', text)
     return text.strip()

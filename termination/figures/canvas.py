@@ -85,5 +85,11 @@ def render(fig: Any, fmt: str = "png", dpi: float = FIGURE_DPI) -> bytes:
     metadata: dict[str, Any] = {"png": {"Software": None}, "svg": {"Date": None}, "pdf": {"CreationDate": None}}[f]
     buffer = io.BytesIO()
     with style():
+        if fig.get_layout_engine() is not None and not getattr(fig, "_termination_laid_out", False):
+            # Constrained layout moves the axes a little on every draw; lay out once and keep it,
+            # so that every rendering of a figure (PNG, then SVG for a report) has the same geometry.
+            fig.draw_without_rendering()
+            fig.set_layout_engine("none")
+            fig._termination_laid_out = True
         fig.savefig(buffer, format=f, dpi=dpi, metadata=metadata)
     return buffer.getvalue()

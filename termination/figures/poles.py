@@ -170,7 +170,8 @@ def stereographic_projection(
         families = [check_hkl(f) for f in faces]
     poles = poles_within(crystal, m, families)
     scores = dict(highlight or {})
-    ranked = sorted((f for f in families if f in scores), key=lambda f: (-scores[f], families.index(f)))
+    # Scores equal to 12 decimals keep the order of ``faces`` (as the match report ranks its faces).
+    ranked = sorted((f for f in families if f in scores), key=lambda f: (-round(scores[f], 12), families.index(f)))
     chosen = {f: i for i, f in enumerate(ranked[: max(int(top), 0)])}
     with style():
         fig = new_figure(width_in, width_in)

@@ -161,7 +161,7 @@ def step_histogram(
                 color="#000000",
                 lw=1.0,
                 gid="measured density",
-                label=f"measured: {len(values)} steps (density, each with its σ)",
+                label=f"{len(values)} measured steps:\nhistogram, and density\n(each a normal of its σ)",
             )
             upper.plot(values, np.zeros_like(values), "|", color="#000000", ms=8, mew=1.0, gid="measured steps")
             if ladders:
@@ -171,7 +171,7 @@ def step_histogram(
                         upper.axvline(h, color=st.colour, ls=st.linestyle, lw=0.8, alpha=0.7, zorder=0)
             upper.set_ylabel("steps per bin")
             upper.set_xlim(0.0, top)
-            upper.legend(loc="best")
+            upper.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=6.5)
             if lower is None:
                 upper.set_xlabel("step height (Å)")
         if lower is not None:
