@@ -15,7 +15,9 @@ In the repository this file sits at the top level; it is installed as
 
 from __future__ import annotations
 
+import contextlib
 import contextvars
+import dataclasses
 import functools
 import json
 import sys
@@ -33,6 +35,7 @@ from termination.defaults import (
     MAX_CELL,
     MAX_INDEX,
     MAX_MULTIPLE,
+    MAX_NAN_FRACTION,
     MIN_STEP_ANGSTROM,
     SLAB_LAYERS,
     SLAB_VACUUM_ANGSTROM,
@@ -293,6 +296,16 @@ def _charges(items: list[str] | None) -> dict[str, float] | None:
     return parse_charge_options(items) or None
 
 
+def _site_weights(items: list[str] | None) -> dict[str, float]:
+    from termination.errors import MeasurementError, StructureError
+    from termination.surface.corrugation import parse_site_weights
+
+    try:
+        return parse_site_weights(items)
+    except StructureError as exc:
+        raise MeasurementError(str(exc)) from None
+
+
 def _element(text: str, option: str) -> str:
     from termination.bulk.elements import check_symbol
     from termination.errors import MeasurementError, StructureError
@@ -346,8 +359,9 @@ class _Outputs:
             from termination.outputs import check_outputs
 
             # A report inside the --plot folder that is still to be made is checked when it is written.
-            new_folder = plot is not None and not os.path.exists(plot)
-            if not (new_folder and os.path.dirname(os.path.abspath(report)) == os.path.abspath(plot)):
+            inside_new = plot is not None and not os.path.exists(plot)
+            inside_new = inside_new and os.path.dirname(os.path.abspath(report)) == os.path.abspath(str(plot))
+            if not inside_new:
                 check_outputs([report], inputs, force=force)
 
     @property
@@ -364,7 +378,9 @@ class _Outputs:
         if self.report is not None:
             from termination.htmlreport import command_line, write_report
 
-            command = command_line(_ARGV.get() or _typed_command(self.command, self.values))
+            given = _ARGV.get()
+            typed = given if given and given[0] == self.command else _typed_command(self.command, self.values)
+            command = command_line(typed)
             write_report(self.report, record, plans, command=command, force=self.force, inputs=self.inputs)
             written.append(self.report)
         if written:
@@ -623,6 +639,19 @@ def match(
             "--measurement", metavar="FILE", help="Measurement file (TOML); options override it.", show_default=False
         ),
     ] = None,
+    image_file: Annotated[
+        str | None,
+        typer.Option(
+            "--image",
+            metavar="FILE",
+            help="Topograph to analyse (as `termination image`); its tilt, spacings, row angle and steps "
+            "override --measurement, and the other options override them.",
+            show_default=False,
+        ),
+    ] = None,
+    pixel_size: PixelSize = None,
+    z_unit: ZUnit = None,
+    channel: Channel = None,
     mount: Mount = None,
     tilt: Annotated[
         str | None,
@@ -709,15 +738,13 @@ def match(
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
     typed = dict(locals())  # the arguments as parsed, before --demo fills in its own
-    from dataclasses import replace
 
     from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
-    from termination.errors import MeasurementError, StructureError
+    from termination.errors import MeasurementError
     from termination.identification.likelihood import match as run_match
     from termination.identification.likelihood import measurement_visibility
     from termination.identification.measurement import Measurement, merge, parse_value, read_measurement, read_steps
-    from termination.surface.corrugation import parse_site_weights
 
     if demo:
         from termination.structures import bundled
@@ -744,6 +771,9 @@ def match(
         visible=tuple(_element(v, "--visible") for v in visible or ()),
         weights=parse_element_values(weight, "--weight", MeasurementError),
         decay_length=decay_length,
+        depth=depth,
+        site_weights=_site_weights(site_weight),
+        cells=tuple(cell or ()),
     )
     outputs = _Outputs(
         "match",
@@ -752,17 +782,23 @@ def match(
         plot_format,
         force,
         report_file,
-        inputs=_inputs(structure) + tuple(v for v in (measurement, steps) if v),
+        inputs=_inputs(structure) + tuple(v for v in (measurement, steps, image_file) if v),
     )
     base = read_measurement(measurement) if measurement else Measurement()
-    cells = check_cells(cell)
+    measured_lines: tuple[str, ...] = ()
+    if image_file is None and (pixel_size or z_unit or channel):
+        raise MeasurementError("--pixel-size, --z-unit and --channel calibrate an --image FILE; none was given")
+    if image_file is not None:
+        from termination.reports import image_measurement
+
+        with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+            from_image, measured_lines = image_measurement(
+                image_file, pixel_size=pixel_size, z_unit=z_unit, channel=channel, progress=progress
+            )
+        base = merge(base, from_image)
     merged = merge(base, given)
+    cells = check_cells(merged.cells)
     visibility = measurement_visibility(merged)
-    try:
-        sites = tuple(parse_site_weights(site_weight).items())
-        visibility = replace(visibility, max_depth_angstrom=depth, site_weights=sites)
-    except StructureError as exc:
-        raise MeasurementError(str(exc)) from None
     crystal = _load(structure, a, x, symprec)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
@@ -778,8 +814,10 @@ def match(
         cells=cells,
         **rules,
     )
+    if measured_lines:
+        report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
     if outputs.wanted:
-        from termination.figures.commands import match_figures
+        from termination.figures.commands import match_figures, read_measured
 
         plans = match_figures(
             report,
@@ -788,6 +826,7 @@ def match(
             charges=_charges(charge),
             max_cell=max_cell,
             termination_options=rules,
+            measured=None if image_file is None else read_measured(image_file, pixel_size, z_unit, channel),
         )
         outputs.write(report, plans)
     render("match", report, json_out, wide)
@@ -815,31 +854,51 @@ def _progress_bar() -> Any:
     return bar()
 
 
+PixelSize = Annotated[
+    str | None,
+    typer.Option(
+        "--pixel-size",
+        metavar="LENGTH",
+        help="Pixel size with unit, e.g. 0.05nm, or x,y: 0.05nm,0.06nm "
+        "(default: the sidecar FILE.toml, then the file's own metadata).",
+        show_default=False,
+    ),
+]
+ZUnit = Annotated[
+    str | None,
+    typer.Option(
+        "--z-unit",
+        metavar="UNIT",
+        help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm "
+        "(default: the sidecar, then the file's metadata).",
+        show_default=False,
+    ),
+]
+Channel = Annotated[
+    str | None,
+    typer.Option(
+        "--channel",
+        metavar="NAME",
+        help="Channel of an instrument file, e.g. Z or Z:backward (default: the height channel, forward).",
+        show_default=False,
+    ),
+]
+
+
 @command()
 @one_line_errors("image")
 def image(
     file: Annotated[
-        str, typer.Argument(metavar="FILE", help="Height map: .npy, .tif/.tiff, or a text matrix.", show_default=False)
+        str,
+        typer.Argument(
+            metavar="FILE",
+            help="Height map: .npy, .tif/.tiff, a text matrix, or an instrument file (.sxm, .nxs/.h5, .ibw).",
+            show_default=False,
+        ),
     ],
-    pixel_size: Annotated[
-        str | None,
-        typer.Option(
-            "--pixel-size",
-            metavar="LENGTH",
-            help="Pixel size with unit, e.g. 0.05nm, or x,y: "
-            "0.05nm,0.06nm (default: pixel_size in the sidecar FILE.toml).",
-            show_default=False,
-        ),
-    ] = None,
-    z_unit: Annotated[
-        str | None,
-        typer.Option(
-            "--z-unit",
-            metavar="UNIT",
-            help="Unit of the stored heights: nm, A, pm, or per count e.g. 0.01nm (default: z_unit in the sidecar).",
-            show_default=False,
-        ),
-    ] = None,
+    pixel_size: PixelSize = None,
+    z_unit: ZUnit = None,
+    channel: Channel = None,
     out: Annotated[
         str | None,
         typer.Option(
@@ -860,6 +919,20 @@ def image(
     min_step: Annotated[
         float, typer.Option("--min-step", metavar="Å", help="Smallest step height to resolve, Å.")
     ] = MIN_STEP_ANGSTROM,
+    drift_lattice: Annotated[
+        str | None,
+        typer.Option(
+            "--drift-lattice",
+            metavar="TYPE",
+            help="The surface's 2D lattice is square, rectangular or hexagonal: estimate and remove a linear "
+            "drift of the slow scan from it (never by default).",
+            show_default=False,
+        ),
+    ] = None,
+    max_nan: Annotated[
+        float,
+        typer.Option("--max-nan", metavar="FRACTION", help="Largest fraction of missing (NaN) pixels accepted."),
+    ] = MAX_NAN_FRACTION,
     plot: Plot = None,
     plot_format: PlotFormat = FORMATS[0],
     report_file: Report = None,
@@ -867,8 +940,6 @@ def image(
     wide: Wide = False,
 ) -> None:
     """Tilt, lattice and step heights of a topograph (height map)."""
-    import contextlib
-
     from termination.reports import image_report
 
     outputs = _Outputs("image", locals(), plot, plot_format, force, report_file, inputs=(file,))
@@ -879,17 +950,21 @@ def image(
             file,
             pixel_size=pixel_size,
             z_unit=z_unit,
+            channel=channel,
             mount=_triple(mount),
             out=out,
             steps_out=steps_out,
             force=force,
             progress=progress,
             min_step_angstrom=min_step,
+            drift_lattice=drift_lattice,
+            max_nan_fraction=max_nan,
         )
     if outputs.wanted:
-        from termination.figures.commands import image_figures, measured_of
+        from termination.figures.commands import image_figures, read_measured
 
-        outputs.write(report, image_figures(report, measured_of(report, pixel_size=pixel_size, z_unit=z_unit)))
+        measured = read_measured(file, pixel_size, z_unit, channel, report.analysis.lattice)
+        outputs.write(report, image_figures(report, measured))
     render("image", report, json_out, wide)
 
 
@@ -1179,7 +1254,7 @@ def main(argv: list[str] | None = None) -> None:
     if "--traceback" in args:
         _TRACEBACK.set(True)
         args = [v for v in args if v != "--traceback"]
-    _ARGV.set(tuple(args))
+    typed = _ARGV.set(tuple(args))  # the command line as given, for reports; forgotten when it ends
     if not args:
         args = ["--help"]
     command = typer.main.get_command(app)
@@ -1195,6 +1270,8 @@ def main(argv: list[str] | None = None) -> None:
             raise
         typer.echo(f"termination: error: {exc.format_message()}", err=True)
         sys.exit(2)
+    finally:
+        _ARGV.reset(typed)
     sys.exit(code if isinstance(code, int) else 0)
 
 

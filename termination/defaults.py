@@ -104,6 +104,8 @@ MAX_USER_CELL = 100
 
 #: Smallest step height resolved in a height map, Å.
 MIN_STEP_ANGSTROM = 0.5
+#: Largest fraction of missing (NaN) pixels a height map may have.
+MAX_NAN_FRACTION = 0.5
 
 # --------------------------------------------------------------------------- figures
 

@@ -51,7 +51,7 @@ td.left, th.left { text-align: left; }
 caption { text-align: left; font-weight: 600; padding: 0.3em 0; }
 .scroll { overflow-x: auto; }
 figure { margin: 1.5em 0; }
-figure svg { max-width: 100%; height: auto; display: block; }
+figure svg { width: min(100%, 46em); height: auto; display: block; }
 figcaption { font-size: 0.9em; color: #444; margin-top: 0.3em; }
 code, pre { font-family: ui-monospace, 'SFMono-Regular', Menlo, monospace; font-size: 0.88em; }
 pre { background: #f6f6f6; padding: 0.7em; overflow-x: auto; }
@@ -260,7 +260,10 @@ def report_html(
         s = record.structure
         title = f"Which face and termination? {s.formula} ({s.name})"
         fails = "" if record.fit.fits else " fails"
-        top = f'<div class="verdict{fails}"><strong>{_e(record.verdict)}</strong><br>{_e(record.decided_by)}</div>'
+        top = (
+            f'<div class="verdict{fails}"><strong>{_e(record.verdict)}</strong><br>'
+            f"Decided by {_e(record.decided_by)}.</div>"
+        )
         if record.warning:
             top += f'<div class="warning">{_e(record.warning)}</div>'
         body = (

@@ -605,7 +605,7 @@ def corrugation_report(
 
 @dataclass(frozen=True)
 class ImageSource:
-    """The height map analysed: file, size in pixels, pixel size and height range."""
+    """The height map analysed: file, channel, size in pixels, pixel size, height range and calibration."""
 
     file: str
     nx: int
@@ -614,6 +614,10 @@ class ImageSource:
     pixel_size_y: float = field(metadata=ANGSTROM)
     height_min: float = field(default=0.0, metadata=ANGSTROM)
     height_max: float = field(default=0.0, metadata=ANGSTROM)
+    channel: str | None = None
+    direction: str | None = None
+    scan_direction: str | None = None
+    calibration: str = "arguments"
 
 
 @dataclass(frozen=True)
@@ -627,11 +631,49 @@ class ImageReport(Tabular):
     written: tuple[str, ...] = ()
 
 
+def _source(path, hm) -> ImageSource:
+    import numpy as np
+
+    ny, nx = hm.shape
+    finite = hm.heights[np.isfinite(hm.heights)]
+    return ImageSource(
+        file=str(path),
+        nx=nx,
+        ny=ny,
+        pixel_size_x=hm.pixel_size[0],
+        pixel_size_y=hm.pixel_size[1],
+        height_min=float(finite.min()),
+        height_max=float(finite.max()),
+        channel=hm.channel,
+        direction=hm.direction,
+        scan_direction=hm.scan_direction,
+        calibration=hm.calibration,
+    )
+
+
+def _image_comment(source: ImageSource, analysis) -> str:
+    """Comment lines of files written from an image: the source, what was not determined, and the notes."""
+    channel = (
+        ""
+        if source.channel is None
+        else f", channel {source.channel}" + (f" {source.direction}" if source.direction else "")
+    )
+    lines = [
+        f"from {source.file} ({source.nx} x {source.ny} px, pixel {source.pixel_size_x:g} x "
+        f"{source.pixel_size_y:g} Å{channel}; calibration from {source.calibration})"
+    ]
+    if analysis.undetermined:
+        lines.append("not determined: " + ", ".join(analysis.undetermined))
+    lines += list(analysis.notes)
+    return "\n".join(lines)
+
+
 def image_report(
     path,
     *,
     pixel_size=None,
     z_unit=None,
+    channel=None,
     mount=None,
     out=None,
     steps_out=None,
@@ -646,11 +688,15 @@ def image_report(
     path : path
         Height map (see :func:`termination.imaging.reading.read_heightmap`).
     pixel_size, z_unit : str, optional
-        Calibration; default from the sidecar file.
+        Calibration; default from the sidecar file, then from the file's metadata.
+    channel : str, optional
+        Channel of an instrument file.
     mount : 3 ints, optional
         Mount face, written to the measurement file.
     out, steps_out : path, optional
-        Measurement file and step list to write.
+        Measurement file and step list to write. Neither is written when it
+        would be empty: no step found, or nothing measured at all
+        (:class:`~termination.errors.MeasurementError` with the reason).
     force : bool
         Overwrite existing outputs.
     progress : callable, optional
@@ -662,8 +708,6 @@ def image_report(
     -------
     ImageReport
     """
-    import numpy as np
-
     from termination.errors import MeasurementError
     from termination.identification.measurement import (
         Measurement,
@@ -672,39 +716,68 @@ def image_report(
         measurement_from_image,
     )
     from termination.imaging.analysis import analyse_heightmap
-    from termination.imaging.fourier import DRIFT_NOTE
     from termination.imaging.reading import read_heightmap, sidecar_path
     from termination.outputs import check_outputs, write_text
 
     check_outputs([out, steps_out], [path, sidecar_path(path)], force=force, error=MeasurementError)
     mount = None if mount is None else Measurement(mount=tuple(mount)).mount  # a bad mount fails before the work
-    hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit)
+    hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit, channel=channel)
     analysis = analyse_heightmap(hm.heights, hm.pixel_size, progress=progress, **parameters)
-    ny, nx = hm.shape
-    comment = f"from {path} ({nx} x {ny} px, pixel {hm.pixel_size[0]:g} x {hm.pixel_size[1]:g} Å)"
+    source = _source(path, hm)
+    comment = _image_comment(source, analysis)
+    reasons = "; ".join(n for n in analysis.notes if "not determined" in n or n.startswith(("no ", "one ")))
     texts = []
     if out:
-        lattice_note = "\n" + DRIFT_NOTE if analysis.lattice is not None else ""
         measured = measurement_from_image(analysis, mount=mount)
-        texts.append((out, format_measurement(measured, comment=comment + lattice_note)))
+        if measured.tilt is None and not measured.spacings and not measured.steps:
+            raise MeasurementError(f"nothing measured in {path} ({reasons or 'see the notes'}): {out} not written")
+        texts.append((out, format_measurement(measured, comment=comment)))
     if steps_out:
         steps = measurement_from_image(analysis).steps
         if not steps:
-            raise MeasurementError(f"no step heights found in {path}: {steps_out} not written")
+            raise MeasurementError(
+                f"no step heights found in {path} ({reasons or 'one terrace'}): {steps_out} not written"
+            )
         texts.append((steps_out, format_steps(steps, comment=comment)))
     for target, text in texts:  # every output checked and formatted before the first is written
         write_text(target, text, force=force, error=MeasurementError)
-    finite = hm.heights[np.isfinite(hm.heights)]
-    source = ImageSource(
-        file=str(path),
-        nx=nx,
-        ny=ny,
-        pixel_size_x=hm.pixel_size[0],
-        pixel_size_y=hm.pixel_size[1],
-        height_min=float(finite.min()),
-        height_max=float(finite.max()),
-    )
     return ImageReport(source=source, analysis=analysis, written=tuple(str(t) for t, _ in texts))
+
+
+def image_measurement(path, *, pixel_size=None, z_unit=None, channel=None, progress=None, **parameters):
+    """What a height-map file measures, for ``termination match --image``.
+
+    Returns
+    -------
+    (Measurement, tuple of str)
+        The measurement (:func:`termination.identification.measurement.measurement_from_image`)
+        and lines that say what was measured and what was not, for the report.
+    """
+    from termination.identification.measurement import measurement_from_image
+    from termination.imaging.analysis import analyse_heightmap
+    from termination.imaging.reading import read_heightmap
+
+    hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit, channel=channel)
+    analysis = analyse_heightmap(hm.heights, hm.pixel_size, progress=progress, **parameters)
+    m = measurement_from_image(analysis)
+    source = _source(path, hm)
+    parts = []
+    if m.tilt is not None:
+        parts.append(f"terrace tilt {m.tilt}°")
+    if m.spacings:
+        parts.append("spacings " + ", ".join(str(v) for v in m.spacings) + " Å")
+    if m.row_angle is not None:
+        parts.append(f"row angle {m.row_angle}°")
+    if m.steps:
+        parts.append("steps " + ", ".join(str(v) for v in m.steps) + " Å")
+    lines = [
+        f"Measured on {source.file} ({source.nx} × {source.ny} px, calibration from {source.calibration}): "
+        + ("; ".join(parts) if parts else "nothing")
+        + ("" if not analysis.undetermined else "; not determined: " + ", ".join(analysis.undetermined))
+        + "; command-line values override these."
+    ]
+    lines += [n for n in analysis.notes if "not determined" in n or n.startswith(("no ", "one ", "drift"))]
+    return m, tuple(lines)
 
 
 # --------------------------------------------------------------------------- screen

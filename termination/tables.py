@@ -601,10 +601,11 @@ def _match(r: Any, wide: bool) -> list[Block]:
 
 def _image(r: Any, wide: bool) -> list[Block]:
     s, a = r.source, r.analysis
+    channel = "" if s.channel is None else f", channel {s.channel}" + (f" {s.direction}" if s.direction else "")
     out: list[Block] = [
         Text(
             f"{s.file}: {s.nx} × {s.ny} px, pixel {s.pixel_size_x:g} × {s.pixel_size_y:g} Å, heights "
-            f"{s.height_min:.2f} to {s.height_max:.2f} Å",
+            f"{s.height_min:.2f} to {s.height_max:.2f} Å{channel} (calibration from {s.calibration})",
             "bold",
         )
     ]
@@ -634,7 +635,15 @@ def _image(r: Any, wide: bool) -> list[Block]:
             [_pm(lat.a, lat.sigma_a), _pm(lat.b, lat.sigma_b), _pm(lat.gamma, lat.sigma_gamma, 2)]
             + ([f"{lat.direction:.1f}", str(lat.peaks)] if wide else [])
         ]
-    out.append(_table("Lattice (two shortest periodicities, in the terrace plane)", cols, rows))
+    out.append(_table("Lattice (two shortest periodicities, in the terrace plane; γ obtuse)", cols, rows))
+    if a.drift is not None:
+        d = a.drift
+        out.append(
+            Text(
+                f"Drift removed for a {d.lattice_type} lattice: shear {_pm(d.shear, d.sigma_shear, 4)}, "
+                f"slow-scan stretch {_pm(d.y_scale, d.sigma_y_scale, 4)}"
+            )
+        )
     steps = [[str(i), _pm(st.height, st.sigma)] for i, st in enumerate(a.steps, 1)] or [["—", "none found"]]
     out.append(_table(f"Steps ({a.terraces} terraces)", ["#", "height (Å)"], steps))
     for note in a.notes:

@@ -79,42 +79,94 @@ def synthetic_heightmap(
     azimuth_deg=0.0,
     step_heights=(),
     step_azimuth_deg=0.0,
+    step_positions=None,
     step_wave_angstrom=0.0,
+    meander_angstrom=0.0,
     step_width_px=1.0,
+    corner_pieces=(),
     lattice=None,
     corrugation_angstrom=0.1,
+    lateral_shifts=False,
+    line_offset_angstrom=0.0,
+    adsorbate_fraction=0.0,
+    adsorbate_height_angstrom=0.8,
+    adsorbate_radius_px=3.0,
+    background_angstrom=0.0,
+    background_exponent=2.0,
+    background_scale_px=64.0,
     noise_angstrom=0.0,
+    drift=None,
     seed=0,
 ):
-    """A topograph with known geometry, heights in Å.
+    """A topograph with known geometry and the artifacts of a raw image, heights in Å.
+
+    Every artifact has its own parameter and is off by default, so a test can
+    switch on one at a time or all together.
 
     Parameters
     ----------
     shape : (ny, nx)
-        Image size, pixels.
+        Image size, pixels. Rows are scan lines (fast scan along x).
     pixel_size : float or (2,)
         Pixel size along x and y, Å.
     tilt_deg, azimuth_deg : float
         Tilt of the terrace plane and the azimuth of its steepest ascent
         (from +x towards +y), deg.
     step_heights : sequence of float
-        Heights of the steps, Å, measured along the terrace normal; the
-        steps are evenly spaced across the image, each one up (positive) or
-        down (negative).
+        Heights of the steps, Å, measured along the terrace normal, each one
+        up (positive) or down (negative) in the direction ``step_azimuth_deg``.
     step_azimuth_deg : float
         Direction in which the step edges advance (normal to the edges), deg.
+    step_positions : sequence of float, optional
+        Position of each step across the image along ``step_azimuth_deg``, as
+        a fraction in (0, 1); steps closer than their terraces are wide make
+        a step bunch. Default: evenly spaced.
     step_wave_angstrom : float
         Amplitude of a sinusoidal meander of the step edges, Å.
+    meander_angstrom : float
+        Standard deviation of a random meander of each step edge (a smooth
+        random function along the edge, correlation length about 1/8 of the
+        image), Å.
     step_width_px : float
         Width of the step edge (a tanh profile), pixels.
+    corner_pieces : sequence of (corner, pixels, height)
+        Terrace pieces cut off in an image corner by a circular edge:
+        ``corner`` 0..3 (row 0 / col 0, row 0 / last col, last row / col 0,
+        last row / last col), their area in pixels and their height above
+        the terrace they sit on, Å (negative: below).
     lattice : (a, b, gamma_deg, direction_deg) or None
         Corrugation lattice in the terrace plane: lengths Å, angles deg.
     corrugation_angstrom : float
         Amplitude of each cosine of the corrugation, Å.
+    lateral_shifts : bool
+        Shift the corrugation of every terrace (and corner piece) by a random
+        in-plane vector, as the atomic lattice of one terrace is shifted
+        against the next across a step.
+    line_offset_angstrom : float
+        Standard deviation of a random height offset of each scan line
+        (row), Å.
+    adsorbate_fraction : float
+        Fraction of the image area covered by adsorbates (bumps) and
+        vacancy islands (pits), half each, in [0, 0.5].
+    adsorbate_height_angstrom : float
+        Height of the bumps and depth of the pits, Å.
+    adsorbate_radius_px : float
+        Radius of each bump or pit (a cosine profile), pixels.
+    background_angstrom : float
+        Standard deviation of a low-frequency random background, Å: power
+        spectral density proportional to ``|k|**-background_exponent``, cut off
+        smoothly at wavelengths below ``background_scale_px`` pixels.
+    background_exponent : float
+        Exponent of the background's power spectrum (2: 1/f in amplitude).
+    background_scale_px : float
+        Shortest wavelength of the background, pixels.
     noise_angstrom : float
         Standard deviation of white Gaussian noise, Å.
+    drift : (shear, y_scale) or None
+        Linear drift during the slow scan: the surface point imaged at pixel
+        (x, y) is (x + shear * y, (1 + y_scale) * y).
     seed : int
-        Seed of the noise and of the step meander phases.
+        Seed of every random part.
 
     Returns
     -------
@@ -125,51 +177,141 @@ def synthetic_heightmap(
     The terrace plane is :math:`z = \\tan\\theta\\,(x\\cos\\phi + y\\sin\\phi)`.
     A step of height h shifts z by :math:`h / \\cos\\theta` so that the
     distance between terrace planes is h. The corrugation
-    :math:`A \\sum_g \\cos 2\\pi\\, g \\cdot r_\\parallel` uses in-plane
+    :math:`A \\sum_g \\cos 2\\pi\\, g \\cdot (r_\\parallel - s_k)` uses in-plane
     coordinates :math:`r_\\parallel` of the 3-D surface point, so the image
-    shows the lattice foreshortened by the tilt, as a real topograph does.
+    shows the lattice foreshortened by the tilt, as a real topograph does;
+    :math:`s_k` is the lateral shift of terrace k (zero without
+    ``lateral_shifts``). Drift maps the image grid onto the surface before
+    anything is evaluated; line offsets, adsorbates, background and noise
+    are added in image coordinates.
     """
     ny, nx = (int(s) for s in shape)
     px = parse_pixel_size(pixel_size)
     if ny < 2 or nx < 2:
         raise ImageError(f"shape must be at least 2 x 2, got {shape!r}")
+    if not 0.0 <= adsorbate_fraction <= 0.5:
+        raise ImageError(f"adsorbate_fraction must lie in [0, 0.5], got {adsorbate_fraction!r}")
     rng = np.random.default_rng(seed)
     x = (np.arange(nx) - (nx - 1) / 2.0) * px[0]
     y = (np.arange(ny) - (ny - 1) / 2.0) * px[1]
     X, Y = np.meshgrid(x, y)
+    if drift is not None:
+        shear, y_scale = (float(v) for v in drift)
+        X = X + shear * Y
+        Y = (1.0 + y_scale) * Y
     th, ph = math.radians(tilt_deg), math.radians(azimuth_deg)
     slope = math.tan(th)
-    Z = slope * (X * math.cos(ph) + Y * math.sin(ph))
+    plane = slope * (X * math.cos(ph) + Y * math.sin(ph))
+    Z = plane.copy()
+    terrace = np.zeros((ny, nx), dtype=np.int64)  # terrace index of each pixel, for the lateral shifts
     steps = np.asarray(step_heights, dtype=np.float64)
     if steps.size:
         ps = math.radians(step_azimuth_deg)
         u = X * math.cos(ps) + Y * math.sin(ps)
         v = -X * math.sin(ps) + Y * math.cos(ps)
         umin, umax = float(u.min()), float(u.max())
-        positions = umin + (umax - umin) * np.arange(1, steps.size + 1) / (steps.size + 1)
-        vspan = float(v.max() - v.min())
+        if step_positions is None:
+            fractions = np.arange(1, steps.size + 1) / (steps.size + 1)
+        else:
+            fractions = np.asarray(step_positions, dtype=np.float64)
+            if fractions.shape != steps.shape or not np.all((fractions > 0) & (fractions < 1)):
+                raise ImageError(f"step_positions must give one fraction in (0, 1) per step, got {step_positions!r}")
+        positions = umin + (umax - umin) * fractions
+        vmin, vspan = float(v.min()), float(v.max() - v.min())
         phases = rng.uniform(0, 2 * math.pi, steps.size)
         width = step_width_px * float(np.mean(px))
-        for h, u0, phase in zip(steps, positions, phases):
+        for i, (h, u0, phase) in enumerate(zip(steps, positions, phases)):
             edge = u0 + step_wave_angstrom * np.sin(2 * math.pi * v / vspan + phase)
+            if meander_angstrom:
+                edge = edge + meander_angstrom * _random_curve((v - vmin) / vspan, rng, seed + i)
             Z += (h / math.cos(th)) * 0.5 * (1 + np.tanh((u - edge) / width))
+            terrace += u > edge
+    for k, (corner, pixels, h) in enumerate(corner_pieces):
+        if corner not in (0, 1, 2, 3) or not pixels > 0:
+            raise ImageError(f"corner_pieces entries are (corner 0..3, pixels > 0, height), got {corner_pieces!r}")
+        r = math.sqrt(4.0 * float(pixels) / math.pi)
+        ri = np.arange(ny)[:, None] - (0 if corner in (0, 1) else ny - 1)
+        ci = np.arange(nx)[None, :] - (0 if corner in (0, 2) else nx - 1)
+        inside = np.hypot(ri, ci) < r
+        Z[inside] += float(h) / math.cos(th)
+        terrace[inside] = steps.size + 1 + k
     if lattice is not None:
         a, b, gamma, direction = lattice
-        _, g = reciprocal_shell(a, b, gamma, direction)
+        real, g = reciprocal_shell(a, b, gamma, direction)
         # orthonormal in-plane basis of the tilted terrace plane
         n = np.array([-slope * math.cos(ph), -slope * math.sin(ph), 1.0])
         n /= np.linalg.norm(n)
         e1 = np.array([1.0, 0.0, 0.0]) - n[0] * n
         e1 /= np.linalg.norm(e1)
         e2 = np.cross(n, e1)
-        Zp = slope * (X * math.cos(ph) + Y * math.sin(ph))
-        s1 = X * e1[0] + Y * e1[1] + Zp * e1[2]
-        s2 = X * e2[0] + Y * e2[1] + Zp * e2[2]
+        s1 = X * e1[0] + Y * e1[1] + plane * e1[2]
+        s2 = X * e2[0] + Y * e2[1] + plane * e2[2]
+        n_terraces = int(terrace.max()) + 1
+        shifts = np.zeros((n_terraces, 2))
+        if lateral_shifts:
+            shifts = rng.uniform(0, 1, (n_terraces, 2)) @ real
         for gv in g:
-            Z += corrugation_angstrom * np.cos(2 * math.pi * (gv[0] * s1 + gv[1] * s2))
+            phase = 2 * math.pi * (shifts @ gv)
+            Z += corrugation_angstrom * np.cos(2 * math.pi * (gv[0] * s1 + gv[1] * s2) - phase[terrace])
+    del X, Y, plane
+    if adsorbate_fraction:
+        Z += _adsorbates((ny, nx), adsorbate_fraction, adsorbate_height_angstrom, adsorbate_radius_px, rng)
+    if background_angstrom:
+        Z += _background((ny, nx), background_angstrom, background_exponent, background_scale_px, rng)
+    if line_offset_angstrom:
+        Z += rng.normal(0.0, line_offset_angstrom, ny)[:, None]
     if noise_angstrom:
         Z += rng.normal(0.0, noise_angstrom, Z.shape)
     return Z
+
+
+def _random_curve(t, rng, seed):
+    """A smooth random function of t in [0, 1] with unit standard deviation (sum of 16 random sinusoids)."""
+    local = np.random.default_rng([seed, 7])
+    k = np.arange(1, 17)
+    amp = local.normal(0.0, 1.0, k.size) / k  # correlation length ~ 1/8 of the span
+    amp /= math.sqrt(float(np.sum(amp**2)) / 2.0)
+    phase = local.uniform(0, 2 * math.pi, k.size)
+    out = np.zeros_like(t)
+    for kk, aa, pp in zip(k, amp, phase):
+        out += aa * np.sin(2 * math.pi * kk * t + pp)
+    return out
+
+
+def _adsorbates(shape, fraction, height, radius_px, rng):
+    """Bumps (+height) and pits (-height) with a cosine profile covering ``fraction`` of the area."""
+    ny, nx = shape
+    area = math.pi * radius_px**2 / 2.0  # effective area of a cosine bump above half height, pixels
+    count = int(round(fraction * ny * nx / area))
+    out = np.zeros(shape)
+    r = int(math.ceil(radius_px))
+    dy, dx = np.mgrid[-r : r + 1, -r : r + 1]
+    profile = 0.5 * (1 + np.cos(np.pi * np.minimum(np.hypot(dy, dx) / radius_px, 1.0)))
+    rows = rng.integers(0, ny, count)
+    cols = rng.integers(0, nx, count)
+    signs = np.where(rng.random(count) < 0.5, 1.0, -1.0)
+    padded = np.zeros((ny + 2 * r, nx + 2 * r))
+    for i, j, s in zip(rows, cols, signs):
+        window = padded[i : i + 2 * r + 1, j : j + 2 * r + 1]
+        # overlapping bumps do not pile up: keep the larger magnitude
+        np.copyto(window, s * height * profile, where=np.abs(s * height * profile) > np.abs(window))
+    out += padded[r : r + ny, r : r + nx]
+    return out
+
+
+def _background(shape, rms, exponent, scale_px, rng):
+    """A random field with power spectrum ``|k|**-exponent`` below wavelength ``scale_px``, scaled to ``rms``."""
+    ny, nx = shape
+    ky = np.fft.fftfreq(ny)[:, None]
+    kx = np.fft.rfftfreq(nx)[None, :]
+    k = np.hypot(kx, ky)
+    k[0, 0] = 1.0
+    amp = k ** (-exponent / 2.0) * np.exp(-((k * scale_px) ** 2))
+    amp[0, 0] = 0.0
+    spec = amp * (rng.normal(size=amp.shape) + 1j * rng.normal(size=amp.shape))
+    field = np.fft.irfft2(spec, s=(ny, nx))
+    field -= field.mean()
+    return field * (rms / float(np.std(field)))
 
 
 def synthetic_measurement(

@@ -140,10 +140,13 @@ DIMENSIONLESS = {
     "p_value",
     "alpha",
     "fractions",
+    "nan_fraction",
+    "outlier_fraction",
+    "fitted_fraction",
     "bulk_units",
 }
-# Records whose numbers are all dimensionless (log-likelihood terms).
-DIMENSIONLESS_RECORDS = {"Terms"}
+# Records whose numbers are all dimensionless (log-likelihood terms; drift shear and stretch).
+DIMENSIONLESS_RECORDS = {"Terms", "DriftCorrection"}
 
 
 def test_one_key_per_concept_and_units_on_every_dimensional_key():

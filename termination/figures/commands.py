@@ -49,9 +49,9 @@ __all__ = [
     "draw",
     "image_figures",
     "match_figures",
-    "measured_of",
     "planes_figures",
     "polarity_figures",
+    "read_measured",
     "terminations_figures",
     "write_figures",
 ]
@@ -450,14 +450,13 @@ def _candidate_cell(context: Callable[[], tuple[Any, Any]], t_id: str, name: str
         from termination.algebra.lattice2d import cell_matrix, check_cells
 
         spec = check_cells([name[: -len(GIVEN)]])[0]
-        matrix = spec.matrix
-        if matrix is None:
-            _, ft = context()
-            found = cell_matrix(spec, ft.atoms.mesh_inplane)
-            if found is None:
-                raise TerminationError(f"cell {name!r} is no supercell of the face's mesh")
-            matrix = found
-        return CellChoice(name, matrix)
+        if spec.matrix is not None:
+            return CellChoice(name, spec.matrix)
+        _, ft = context()
+        found = cell_matrix(spec, ft.atoms.mesh_inplane)
+        if found is None:
+            raise TerminationError(f"cell {name!r} is no supercell of the face's mesh")
+        return CellChoice(name, found)
 
     def find() -> Any:
         crystal, ft = context()
@@ -466,14 +465,20 @@ def _candidate_cell(context: Callable[[], tuple[Any, Any]], t_id: str, name: str
     return CellChoice(name, find=find)
 
 
-def measured_of(report: Any, *, pixel_size: Any = None, z_unit: Any = None) -> Measured:
-    """The height map of an ``image`` report, read again with the same calibration, and its lattice direction."""
+def read_measured(
+    path: Any, pixel_size: Any = None, z_unit: Any = None, channel: Any = None, lattice: Any = None
+) -> Measured:
+    """A height-map file read again with the calibration the command used, for its figures.
+
+    ``lattice`` (an ``image`` analysis's) gives the direction of the measured
+    lattice vector a; without it a Fourier figure turns its prediction onto the
+    measured spectrum by itself (:func:`termination.figures.fourier.best_turn`).
+    """
     from termination.figures.topograph import MeasuredMap
     from termination.imaging.reading import read_heightmap
 
-    hm = read_heightmap(report.source.file, pixel_size=pixel_size, z_unit=z_unit)  # type: ignore[no-untyped-call]
-    lattice = report.analysis.lattice
-    name = Path(report.source.file).name
+    hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit, channel=channel)
+    name = Path(path).name
     return Measured(MeasuredMap(hm.heights, hm.pixel_size, name=name), None if lattice is None else lattice.direction)
 
 

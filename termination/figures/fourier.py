@@ -11,9 +11,11 @@ the corrugation record lists domains) are drawn as diamonds.
 
 With a measured height map the pattern is drawn over its power spectrum
 (high-pass filtered as in :mod:`termination.figures.topograph`, Hann window,
-log scale), turned so that the predicted apparent lattice
-vector a lies along the measured one (the image's frame is not the
-crystal's; the remaining twofold ambiguity is the sign of a).
+log scale), turned into the image's frame (which is not the crystal's): so
+that the predicted apparent lattice vector a lies along the measured one when
+its direction is given, otherwise by the turn that puts the most measured
+power under its first shell of bright spots (:func:`best_turn`, every 0.25°;
+as precise as the spectrum's pixels allow, a degree or two on a small map).
 """
 
 from __future__ import annotations
@@ -31,7 +33,7 @@ from termination.figures.topograph import MeasuredMap
 from termination.figures.topview import apparent_vectors
 from termination.surface.corrugation import CorrugationPattern, reciprocal_points
 
-__all__ = ["fourier_pattern", "power_spectrum", "spot_positions"]
+__all__ = ["best_turn", "first_shell", "fourier_pattern", "power_spectrum", "spot_positions"]
 
 
 def spot_positions(pattern: CorrugationPattern, mesh_inplane: FloatArray, rotation_deg: float = 0.0) -> FloatArray:
@@ -50,6 +52,48 @@ def spot_positions(pattern: CorrugationPattern, mesh_inplane: FloatArray, rotati
 def _turned(points: FloatArray, angle_deg: float) -> FloatArray:
     c, s = math.cos(math.radians(angle_deg)), math.sin(math.radians(angle_deg))
     out: FloatArray = np.asarray(points, dtype=float) @ np.array([[c, s], [-s, c]])
+    return out
+
+
+def best_turn(
+    points: FloatArray, log_power: FloatArray, kx: FloatArray, ky: FloatArray, step_deg: float = 0.25
+) -> float:
+    """The turn (degrees, counterclockwise) that puts the most power of a spectrum under ``points`` (M, 2), 1/Å.
+
+    Notes
+    -----
+    For each angle phi on a grid of ``step_deg`` the points are turned by phi
+    and the log power above its median (negative values counted as 0) is
+    interpolated bilinearly at them and summed; the angle with the largest
+    sum wins.  Points outside the spectrum count 0.  Give the first shell of
+    bright spots: they are what a topograph resolves best, and farther,
+    weaker orders mostly add noise.
+    """
+    from scipy import ndimage
+
+    g = np.asarray(points, dtype=float).reshape(-1, 2)
+    if not len(g):
+        return 0.0
+    level = np.clip(np.asarray(log_power, dtype=float) - float(np.median(log_power)), 0.0, None)
+    phi = np.radians(np.arange(0.0, 360.0, step_deg))
+    c, s = np.cos(phi)[:, None], np.sin(phi)[:, None]
+    x = g[None, :, 0] * c - g[None, :, 1] * s
+    y = g[None, :, 0] * s + g[None, :, 1] * c
+    rows = (y - ky[0]) / (ky[1] - ky[0])
+    cols = (x - kx[0]) / (kx[1] - kx[0])
+    values = ndimage.map_coordinates(level, [rows.ravel(), cols.ravel()], order=1, mode="constant", cval=0.0)
+    return float(np.degrees(phi[int(np.argmax(values.reshape(x.shape).sum(axis=1)))]))
+
+
+def first_shell(pattern: CorrugationPattern, mesh_inplane: FloatArray) -> FloatArray:
+    """(K, 2) G of the shortest bright spots: |F(G)|/F(0) at least half the largest, |G| within 5 % of the shortest."""
+    g = spot_positions(pattern, mesh_inplane)
+    if not len(g):
+        return g
+    w = np.array([s.intensity for s in pattern.spots], dtype=float)
+    r = np.linalg.norm(g, axis=1)
+    bright = w >= 0.5 * w.max()
+    out: FloatArray = g[bright & (r <= 1.05 * r[bright].min())]
     return out
 
 
@@ -101,7 +145,8 @@ def fourier_pattern(
         A height map whose power spectrum is drawn underneath.
     measured_direction_deg : float, optional
         Direction of the measured lattice vector a in the image, degrees from
-        +x towards +y; the prediction is turned to put its a there.
+        +x towards +y; the prediction is turned to put its a there.  Without
+        it, the prediction is turned by :func:`best_turn`.
     hkl : 3 ints, optional
         The face, for the title.
     title : str, optional
@@ -117,10 +162,21 @@ def fourier_pattern(
     """
     mesh = np.asarray(mesh_inplane, dtype=float)
     rotation = 0.0
-    if measured is not None and measured_direction_deg is not None:
+    spectrum = None
+    if measured is not None:
+        from termination.figures.topograph import highpass
+
+        la = pattern.apparent_lattice
+        period = la.a if np.isfinite(la.a) else float(np.linalg.norm(mesh[0]))
+        sigma_px = max(1.0, 0.75 * period / min(measured.pixel_size))
+        power, kx, ky = power_spectrum(highpass(measured.heights, sigma_px), measured.pixel_size)
+        log_power = np.log10(power + power.max() * 1e-12)
+        spectrum = (log_power, kx, ky)
         vectors = apparent_vectors(pattern.spots, mesh, cell_inplane)
-        if len(vectors):
+        if measured_direction_deg is not None and len(vectors):
             rotation = float(measured_direction_deg) - math.degrees(math.atan2(vectors[0][1], vectors[0][0]))
+        else:
+            rotation = best_turn(first_shell(pattern, mesh), log_power, kx, ky)
     g = spot_positions(pattern, mesh, rotation)
     intensity = np.array([s.intensity for s in pattern.spots], dtype=float)
     g_max = (
@@ -135,15 +191,9 @@ def fourier_pattern(
         fig = new_figure(width_in, width_in * 0.92)
         ax = fig.add_subplot()
         ax.set_aspect("equal")
-        if measured is not None:
-            from termination.figures.topograph import highpass
-
-            la = pattern.apparent_lattice
-            period = la.a if np.isfinite(la.a) else float(np.linalg.norm(mesh[0]))
-            sigma_px = max(1.0, 0.75 * period / min(measured.pixel_size))
-            power, kx, ky = power_spectrum(highpass(measured.heights, sigma_px), measured.pixel_size)
+        if spectrum is not None:
+            log_power, kx, ky = spectrum
             dkx, dky = kx[1] - kx[0], ky[1] - ky[0]
-            log_power = np.log10(power + power.max() * 1e-12)
             # Clip to the background and the brightest peaks, not the step-edge streak at k = 0.
             lo, hi = np.percentile(log_power, [50.0, 99.9])
             ax.imshow(

@@ -567,6 +567,8 @@ def match(crystal, measurement: Measurement, *, top: int | None = None, **option
     opts.setdefault("max_index", measurement.max_index or MAX_INDEX)
     if "visibility" not in opts:
         opts["visibility"] = measurement_visibility(measurement)
+    if measurement.cells and not opts.get("cells"):
+        opts["cells"] = measurement.cells
     opts.setdefault("select_cells", cells_in_contention(measurement, opts.get("model") or MatchModel()))
     table = candidate_table(crystal, **opts)
     return score(table, measurement, top=top)
@@ -619,4 +621,8 @@ def measurement_visibility(measurement: Measurement) -> Visibility:
         kw["weights"] = measurement.weights
     if measurement.decay_length is not None:
         kw["decay_length_angstrom"] = measurement.decay_length
+    if measurement.depth is not None:
+        kw["max_depth_angstrom"] = measurement.depth
+    if measurement.site_weights:
+        kw["site_weights"] = tuple(measurement.site_weights.items())
     return Visibility(**kw)

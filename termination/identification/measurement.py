@@ -15,10 +15,13 @@ File format (TOML, lengths in Å, angles in degrees, every key optional)::
     row_angle = { value = 90.0, sigma = 4.0 }      # deg
     spacings = [ { value = 4.19, sigma = 0.15 } ]  # corrugation periodicities, Å
     steps = [ { value = 2.97, sigma = 0.12 } ]     # step heights, Å
+    cells = ["2x1"]                                # cells of your own to try (Wood or matrix)
     [visibility]
     visible = ["Sn"]
     weights = { Na = 0.2 }
-    decay_length = 1.0                           # Å
+    site_weights = { Ti5c = 1.0, Ti6c = 0.2 }      # by surface coordination
+    decay_length = 1.0                             # Å
+    depth = 4.0                                    # atoms down to this depth image, Å
 
 A measured value is written as a table ``{ value = 54.0, sigma = 2.0 }``;
 ``sigma`` may be left out, and then the consumer applies its documented
@@ -39,10 +42,11 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 
 from termination.defaults import MAX_LENGTH_ANGSTROM
-from termination.errors import MeasurementError
+from termination.errors import MeasurementError, TerminationError
 from termination.inputs import read_input_text
 from termination.outputs import write_text
 from termination.quantities import NUMBER_PATTERN
+from termination.surface.corrugation import parse_site_weights
 from termination.units import ANGSTROM, DEG
 
 __all__ = [
@@ -70,8 +74,8 @@ SIGMA_LIMIT = 1000.0
 #: Largest measurement file or step list read, bytes.
 MAX_FILE_BYTES = 1024 * 1024
 
-_TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "visibility"}
-_VISIBILITY_KEYS = {"visible", "weights", "decay_length"}
+_TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "cells", "visibility"}
+_VISIBILITY_KEYS = {"visible", "weights", "decay_length", "depth", "site_weights"}
 
 
 def _check_real(number, what):
@@ -145,6 +149,12 @@ class Measurement:
         Visibility weights per element symbol, non-negative.
     decay_length : float or None
         Decay length of the visibility with depth, Å, positive.
+    depth : float or None
+        Atoms down to this depth below the top layer image, Å (default: the top unit).
+    site_weights : dict of str to float
+        Visibility weights per site, by element and surface coordination ('Ti5c').
+    cells : tuple of str
+        Cells of your own to try as candidates: Wood notation or a matrix ('2x1', 'c(2x2)', '2 0 0 1').
     """
 
     mount: tuple[int, int, int] | None = None
@@ -156,6 +166,9 @@ class Measurement:
     visible: tuple[str, ...] = ()
     weights: dict[str, float] = field(default_factory=dict)
     decay_length: float | None = field(default=None, metadata=ANGSTROM)
+    depth: float | None = field(default=None, metadata=ANGSTROM)
+    site_weights: dict[str, float] = field(default_factory=dict)
+    cells: tuple[str, ...] = ()
 
     def __post_init__(self):
         _check_measurement(self)
@@ -236,6 +249,28 @@ def _check_measurement(m):
         if d <= 0:
             raise MeasurementError(f"decay_length must be positive, got {d:g} Å")
         set_(m, "decay_length", d)
+    if m.depth is not None:
+        d = _check_real(m.depth, "depth (Å)")
+        if not 0 <= d <= MAX_LENGTH_ANGSTROM:
+            raise MeasurementError(f"depth must lie in [0, {MAX_LENGTH_ANGSTROM:g}] Å, got {d:g}")
+        set_(m, "depth", d)
+    if not isinstance(m.site_weights, dict):
+        raise MeasurementError(f"site_weights must map sites such as 'Ti5c' to numbers, got {m.site_weights!r}")
+
+    try:
+        sites = parse_site_weights(
+            [f"{k}={_check_real(w, f'site weight of {k}')!r}" for k, w in m.site_weights.items()], "site_weights"
+        )
+    except TerminationError as exc:
+        raise MeasurementError(str(exc)) from None
+    if any(w < 0 for w in sites.values()):
+        raise MeasurementError(f"site weights must be non-negative, got {m.site_weights!r}")
+    set_(m, "site_weights", sites)
+    cells = tuple(m.cells)
+    for c in cells:
+        if not isinstance(c, str) or not c.strip():
+            raise MeasurementError(f"cells must be written as text such as '2x1' or '2 0 0 1', got {c!r}")
+    set_(m, "cells", cells)
 
 
 def parse_value(text):
@@ -350,6 +385,14 @@ def _measurement_from_dict(data, source):
             kw["weights"] = vis["weights"]
         if "decay_length" in vis:
             kw["decay_length"] = vis["decay_length"]
+        if "depth" in vis:
+            kw["depth"] = vis["depth"]
+        if "site_weights" in vis:
+            kw["site_weights"] = vis["site_weights"]
+        if "cells" in data:
+            if not isinstance(data["cells"], list):
+                raise MeasurementError(f"cells must be a list of cells such as ['2x1'], got {data['cells']!r}")
+            kw["cells"] = tuple(data["cells"])
         return Measurement(**kw)
     except MeasurementError as exc:
         raise MeasurementError(f"{source}: {exc}") from None
@@ -455,7 +498,9 @@ def format_measurement(measurement, *, comment=None):
         if values:
             items = ", ".join(_toml_value(v) for v in values)
             lines.append(f"{name} = [ {items} ]  # Å")
-    if m.visible or m.weights or m.decay_length is not None:
+    if m.cells:
+        lines.append("cells = [" + ", ".join(_toml_string(c) for c in m.cells) + "]")
+    if m.visible or m.weights or m.decay_length is not None or m.depth is not None or m.site_weights:
         lines.append("")
         lines.append("[visibility]")
         if m.visible:
@@ -463,8 +508,13 @@ def format_measurement(measurement, *, comment=None):
         if m.weights:
             items = ", ".join(f"{_toml_key(k)} = {_toml_float(w)}" for k, w in m.weights.items())
             lines.append(f"weights = {{ {items} }}")
+        if m.site_weights:
+            items = ", ".join(f"{_toml_key(k)} = {_toml_float(w)}" for k, w in m.site_weights.items())
+            lines.append(f"site_weights = {{ {items} }}")
         if m.decay_length is not None:
             lines.append(f"decay_length = {_toml_float(m.decay_length)}  # Å")
+        if m.depth is not None:
+            lines.append(f"depth = {_toml_float(m.depth)}  # Å")
     return "\n".join(lines) + "\n"
 
 
@@ -673,10 +723,14 @@ def measurement_from_image(analysis, *, mount=None, max_index=None):
     -------
     Measurement
         ``tilt`` is the terrace tilt (relative to the scanner plane, taken
-        as the mount face); ``spacings`` are the lattice a and b and
-        ``row_angle`` its gamma, when a lattice was found; ``steps`` are the
-        step heights. Anything not found is left empty. Values are rounded
-        to 1e-4 (Å or degrees) and sigmas to two significant digits.
+        as the mount face) with its measured sigma; ``spacings`` are the
+        lattice a and b and ``row_angle`` its gamma in the obtuse convention
+        (90-120°; ``match`` compares gamma or 180° - gamma, whichever is
+        closer), when a lattice was found; ``steps`` are the step heights.
+        Anything not found is left empty, and so is ``row_angle`` when a
+        drift correction fixed gamma from the stated lattice type (then it
+        was assumed, not measured). Values are rounded to 1e-4 (Å or
+        degrees) and sigmas to two significant digits.
     """
     from termination.imaging.analysis import HeightMapAnalysis
 
@@ -691,7 +745,8 @@ def measurement_from_image(analysis, *, mount=None, max_index=None):
     spacings, row_angle = (), None
     if lat is not None:
         spacings = (_rounded(lat.a, lat.sigma_a), _rounded(lat.b, lat.sigma_b))
-        row_angle = _rounded(lat.gamma, lat.sigma_gamma)
+        if analysis.drift is None:
+            row_angle = _rounded(lat.gamma, lat.sigma_gamma)
     steps = tuple(_rounded(s.height, s.sigma) for s in analysis.steps)
     return Measurement(
         mount=tuple(mount) if mount is not None else None,

@@ -1,49 +1,54 @@
-"""One height map from pixels to measurement: plane fit, terraces, steps and lattice.
+"""One height map from pixels to measurement: plane fit, terrace model, steps and lattice.
 
 The analysis of one topograph runs in four stages:
 
 1. **Plane fit** of all pixels: the macroscopic inclination of the imaged
    area and its azimuth relative to the scanner plane.
-2. **Terrace fit** (:mod:`termination.imaging.terraces`): step edges are
-   excluded by a gradient threshold, the remaining pixels are split into
-   terraces by the height histogram of the levelled image, and one common
-   plane with one offset per terrace is fitted. Level, histogram, segment,
-   refit are repeated until the plane stops changing. The common plane is
-   the terrace plane; its tilt is the one that identifies the face.
-3. **Lattice** (:mod:`termination.imaging.fourier`): the terrace-levelled
-   image is Hann-windowed and Fourier transformed; significant peaks are
-   located to sub-pixel precision, the strongest two independent ones span
-   the reciprocal lattice, and every peak it indexes refines it.
-4. **Steps**: the height between each pair of adjacent terraces, from the
-   terrace offsets of stage 2.
+2. **Terrace model** (:mod:`termination.imaging.terraces`): one plane, one
+   offset per terrace, one offset per scan line and, where needed, a smooth
+   background, fitted jointly with step edges, adsorbates, pits and missing
+   pixels masked; levelling, segmentation and fitting repeat until the plane
+   is stable. The common plane is the terrace plane; its tilt is the one
+   that identifies the face.
+3. **Steps**: the height between terraces of adjacent levels, one value per
+   pair of levels.
+4. **Lattice** (:mod:`termination.imaging.fourier`): measured on each of the
+   largest terraces and combined, so that lateral shifts between terraces
+   cannot bias it; optionally corrected for a linear drift.
 
-Readers and calibration live in :mod:`termination.imaging.reading`.
+Readers and calibration live in :mod:`termination.imaging.reading` and
+:mod:`termination.imaging.instruments`.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from termination.errors import ImageError
-from termination.imaging.fourier import Lattice, fourier_lattice
+from termination.imaging.fourier import DriftCorrection, Lattice, measure_lattice
 from termination.imaging.parameters import ImageParameters
-from termination.imaging.reading import check_heights, parse_pixel_size
+from termination.imaging.reading import MAX_HEIGHT_ANGSTROM, check_heights, parse_pixel_size
 from termination.imaging.terraces import (
     Step,
     _coordinates,
-    _flattened,
     _plane_slopes,
-    _segment,
-    _smooth,
-    _steps,
-    _structure_ratio,
+    fit_terraces,
+    levelled_image,
+    terrace_steps,
     tilt_azimuth,
 )
+from termination.units import ANGSTROM, DEG
 
-__all__ = ["HeightMapAnalysis", "Tilt", "analyse_heightmap"]
+__all__ = ["SEGMENT_PIXELS", "HeightMapAnalysis", "Tilt", "analyse_heightmap"]
+
+#: Larger images are segmented on a copy binned to about this many pixels (the fit uses every pixel).
+SEGMENT_PIXELS = 512 * 512
 
 
 @dataclass(frozen=True)
@@ -63,14 +68,14 @@ class Tilt:
     terrace_azimuth : float or None
         The same for the terrace plane, deg.
     terrace_sigma : float or None
-        Statistical standard uncertainty of ``terrace``, deg.
+        Standard uncertainty of ``terrace``, deg.
     """
 
-    macroscopic: float
-    terrace: float | None
-    azimuth: float
-    terrace_azimuth: float | None
-    terrace_sigma: float | None
+    macroscopic: float = field(metadata=DEG)
+    terrace: float | None = field(metadata=DEG)
+    azimuth: float = field(metadata=DEG)
+    terrace_azimuth: float | None = field(metadata=DEG)
+    terrace_sigma: float | None = field(metadata=DEG)
 
 
 @dataclass(frozen=True)
@@ -83,9 +88,25 @@ class HeightMapAnalysis:
     lattice : Lattice or None
         None when no lattice was found (the reason is in ``notes``).
     steps : tuple of Step
-        One entry per pair of adjacent terraces, empty for a single terrace.
+        One entry per pair of adjacent terraces, empty when none was found.
     terraces : int
         Number of terraces (connected flat regions) used in the fit.
+    nan_fraction : float
+        Fraction of missing (NaN) pixels.
+    outlier_fraction : float
+        Fraction of the finite pixels left out of the final fit as adsorbates,
+        pits or other outliers by the residual test.
+    fitted_fraction : float
+        Fraction of the finite pixels used in the terrace fit (the rest are
+        step edges, outliers and pieces too small to keep).
+    line_offset_rms : float
+        Root-mean-square offset of the scan lines, Å (0 when not fitted).
+    background : bool
+        Whether a smooth background was fitted and removed.
+    relief : float
+        Root-mean-square height of the smooth relief left after the fit, Å.
+    drift : DriftCorrection or None
+        The drift correction applied to the lattice, when asked for.
     notes : tuple of str
         Assumptions and the reasons for anything not found.
     """
@@ -94,23 +115,49 @@ class HeightMapAnalysis:
     lattice: Lattice | None
     steps: tuple[Step, ...]
     terraces: int
+    nan_fraction: float
+    outlier_fraction: float
+    fitted_fraction: float
+    line_offset_rms: float = field(metadata=ANGSTROM)
+    background: bool
+    relief: float = field(metadata=ANGSTROM)
+    drift: DriftCorrection | None
     notes: tuple[str, ...]
 
+    @property
+    def undetermined(self) -> tuple[str, ...]:
+        """Names of the measured quantities that were not determined."""
+        out = []
+        if self.tilt.terrace is None:
+            out.append("terrace tilt")
+        if self.lattice is None:
+            out.append("lattice")
+        if not self.steps:
+            out.append("step heights")
+        return tuple(out)
 
-def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
+
+def analyse_heightmap(
+    heights: ArrayLike,
+    pixel_size: Any,
+    *,
+    progress: Callable[[float, str], object] | None = None,
+    **parameters: Any,
+) -> HeightMapAnalysis:
     """Tilt, lattice and step heights of one height map.
 
     Parameters
     ----------
     heights : (ny, nx) array_like
-        Heights, Å; NaN marks missing pixels. x along columns, y along rows.
+        Heights, Å; NaN marks missing pixels. x along columns (the fast scan
+        direction), y along rows (one row per scan line).
     pixel_size : float or (2,) sequence or str
         Pixel size along x and y, Å (or text with a unit, e.g. ``"0.05nm"``).
     progress : callable, optional
         Called as ``progress(fraction, stage)`` with fraction in [0, 1].
     **parameters
         Any field of :class:`~termination.imaging.parameters.ImageParameters`
-        (``min_step_angstrom=0.3``, ``edge_guard_px=3``, ...).
+        (``min_step_angstrom=0.3``, ``drift_lattice="hexagonal"``, ...).
 
     Returns
     -------
@@ -120,7 +167,8 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     ------
     ImageError
         For an unusable image (see :func:`termination.imaging.reading.check_heights`),
-        a bad pixel size or a bad parameter.
+        more missing pixels than ``max_nan_fraction``, a bad pixel size or a
+        bad parameter.
 
     Notes
     -----
@@ -128,41 +176,27 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     pixels; tilt :math:`\\theta = \\arctan\\sqrt{a^2+b^2}`, azimuth
     :math:`\\operatorname{atan2}(b, a)` (steepest ascent, from +x to +y).
 
-    *Terrace fit.* Minimises :math:`\\sum_k \\sum_{i \\in k} (z_i - a x_i - b
-    y_i - c_k)^2` over terrace pixels, one offset :math:`c_k` per terrace.
-    The covariance of (a, b) is :math:`f s^2 M^{-1}`, with :math:`M` the
-    within-terrace scatter matrix of (x, y), :math:`s^2` the residual
-    variance and :math:`f` the pixel-correlation factor (AR(1) along rows
-    and columns). The tilt is taken relative to the scanner plane, which is
-    assumed parallel to the mount face.
+    *Terrace model* (:func:`termination.imaging.terraces.fit_terraces`): one
+    plane, one offset per terrace, one offset per scan line (constrained so
+    that the y tilt survives) and a smooth background, with step edges,
+    adsorbates, pits and missing pixels masked. The covariance of (a, b) is
+    :math:`v M^{-1}`, with M the within-terrace scatter matrix of (x, y) and
+    v the variance per pixel of a mean (residual variance times the pixel
+    correlation factor, plus the smooth relief left). The y slope also
+    carries the trend that the scan-line offsets may hide,
+    :math:`\\sigma_r^2 / \\sum_i (y_i - \\bar y)^2` with :math:`\\sigma_r` their rms,
+    and, when a background was fitted, each slope carries its unknowable
+    linear part, :math:`12 \\sigma_B^2 / L^2` (:math:`\\sigma_B` the background's
+    rms height, L the image side). The tilt is taken relative to the scanner
+    plane, which is assumed parallel to the mount face.
 
-    *Steps.* For adjacent terraces k and l the height is the distance
-    between their parallel planes, :math:`h = |c_l - c_k| / \\sqrt{1 + a^2 +
-    b^2}`, with :math:`\\sigma_h^2 = [f s^2 (1/N_k + 1/N_l) + d^T C_{ab} d] /
-    (1 + a^2 + b^2)`, where :math:`d` joins the terrace centroids. The
-    scanner's z calibration is not included unless given.
+    *Steps* (:func:`termination.imaging.terraces.terrace_steps`): the
+    distance between the parallel planes of adjacent terraces.
 
-    *Lattice.* The levelled image (terrace pixels only, others zero) is
-    multiplied by a 2-D Hann window and transformed. A peak counts when its
-    power exceeds :math:`\\mu \\ln(N/\\alpha)`, where :math:`\\mu` is the mean
-    noise power at its \\|k\\| (median of the annulus / ln 2), :math:`N` the
-    number of bins in a half plane and :math:`\\alpha` the false-alarm
-    probability. Positions are refined per axis with the exact Hann
-    three-point formula. Maxima on radial streaks (the transform of
-    straight step edges) are dropped. The strongest peak and the strongest
-    one not parallel to it span the reciprocal lattice. Each coordinate carries
-    :math:`\\sigma_k = \\Delta k \\sqrt{1/12 + \\sigma_\\delta^2}\\, B`: the grid
-    resolution (uniform over one bin), the interpolation noise, and the
-    broadening B of the peak relative to the window's own shape. The
-    reciprocal basis is least-squares fitted to all indexed peaks, scaled by
-    the reduced chi-square when larger than one, and propagated to the
-    real-space a, b, gamma. The scanner is assumed drift-free and linear.
-
-    References
-    ----------
-    T. Grandke, IEEE Trans. Instrum. Meas. 32, 350 (1983) (Hann interpolation).
+    *Lattice* (:func:`termination.imaging.fourier.measure_lattice`):
+    measured on each of the largest terraces and combined.
     """
-    z = check_heights(heights)
+    z = check_heights(heights, max_abs=MAX_HEIGHT_ANGSTROM)
     try:
         px = parse_pixel_size(pixel_size)
     except ImageError as exc:
@@ -170,33 +204,51 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     unknown = set(parameters) - set(ImageParameters.names()) | ({"bin", "workers"} & set(parameters))
     if unknown:
         raise ImageError(f"unknown image parameter {sorted(unknown)[0]!r}")
-    # segment large images on a binned copy (about 1024 x 1024 pixels)
-    params = ImageParameters(**parameters, bin=max(1, int(round(math.sqrt(z.size / 1024**2)))))
+    # segment large images on a binned copy (about 512 x 512 pixels)
+    params = ImageParameters(**parameters, bin=max(1, int(round(math.sqrt(z.size / SEGMENT_PIXELS)))))
     if progress is not None and not callable(progress):
         raise ImageError(f"progress must be callable, got {progress!r}")
 
-    def report(fraction, stage):
+    def report(fraction: float, stage: str) -> None:
         if progress is not None:
             progress(fraction, stage)
 
-    notes = []
     valid = np.isfinite(z)
+    nan_fraction = 1.0 - float(valid.mean())
+    if nan_fraction > params.max_nan_fraction:
+        raise ImageError(
+            f"{nan_fraction:.1%} of the pixels are missing (NaN), more than the limit of "
+            f"{params.max_nan_fraction:.0%} (max_nan_fraction)"
+        )
+    notes = []
+    if nan_fraction > 0:
+        notes.append(f"{nan_fraction:.1%} of the pixels are missing (NaN) and were left out")
     coords = _coordinates(z.shape, px)
     report(0.0, "plane fit")
     a0, b0 = _plane_slopes(z, valid, coords)
     macro_tilt, macro_az = tilt_azimuth(a0, b0)
 
     report(0.1, "terraces")
-    terr = _segment(z, valid, coords, px, params)
-    a, b = terr.slope
+    fit = fit_terraces(z, valid, coords, px, params)
+    a, b = fit.slope
     terrace_tilt, terrace_az = tilt_azimuth(a, b)
 
     report(0.6, "steps")
-    structure = _structure_ratio(z.shape, terr, params.structure_smooth_px, params.bin)
-    dist, near = terr.dist, terr.near
-    steps, _f, cov_ab = _steps(terr, z.shape, dist, near, params)
-    n_levels = len(set(terr.level_of.tolist()))
+    steps, cov_ab = terrace_steps(fit, params)
+    n_levels = len(set(np.asarray(fit.level_of).tolist()))
     slope = math.hypot(a, b)
+    if cov_ab is not None:
+        cov_ab = cov_ab.copy()
+        x, y = coords
+        if fit.line_rms > 0:
+            # the linear trend of the true line offsets is indistinguishable from the y slope
+            cov_ab[1, 1] += fit.line_rms**2 / float(np.sum((y - y.mean()) ** 2))
+        if fit.background is not None:
+            # so is the linear part of a background: taken as large as the fitted background's rms height
+            # over the image, a slope of rms sqrt(12) / L along each side L
+            rms2 = fit.background.rms**2
+            cov_ab[0, 0] += 12.0 * rms2 / float(np.ptp(x) + px[0]) ** 2
+            cov_ab[1, 1] += 12.0 * rms2 / float(np.ptp(y) + px[1]) ** 2
     if cov_ab is not None and slope > 0:
         u = np.array([a, b]) / slope
         sig_slope = math.sqrt(max(float(u @ cov_ab @ u), 0.0))
@@ -205,32 +257,46 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
     else:
         sig_slope = float("nan")
     terrace_sigma = math.degrees(sig_slope / (1 + slope * slope))
-    hidden = structure > params.max_structure_ratio
-    if hidden:
+    relief_limit = params.max_relief_fraction * params.min_step_angstrom
+    hidden = fit.structure > params.max_structure_ratio and fit.peak_relief > relief_limit
+    # with one level only, a background with relief of a step's size may hide the staircase
+    bent = n_levels < 2 and fit.background is not None and fit.background.rms > relief_limit
+    if bent and not hidden:
         notes.append(
-            f"terrace tilt and steps not determined: relief larger than the corrugation remains after "
-            f"the terrace fit ({structure:.1f} times the noise level), e.g. steps hidden by noise"
+            f"terrace tilt not determined: one level only, and the fitted background ({fit.background.rms:.2f} Å "
+            "rms) could hide steps the segmentation did not resolve"
+        )
+        terrace_tilt = terrace_az = terrace_sigma = None
+        steps = ()
+    elif hidden:
+        notes.append(
+            f"terrace tilt and steps not determined: smooth relief up to {fit.peak_relief:.2f} Å remains after "
+            f"the terrace fit ({fit.structure:.1f} times what noise leaves), e.g. steps the segmentation "
+            "did not resolve"
         )
         terrace_tilt = terrace_az = terrace_sigma = None
         steps = ()
     elif n_levels < 2:
-        notes.append("one terrace: no step heights")
+        notes.append("one terrace level: no step heights")
     elif not steps:
         notes.append("several levels but no two adjacent terraces: no step heights")
     else:
         notes.append(
-            "step sigmas are statistical (fit covariance with pixel correlation)"
+            "step sigmas are statistical (fit covariance with pixel correlation and the smooth relief left)"
             + ("" if params.z_calibration_fraction else "; the scanner's z calibration is not included")
         )
+    notes.append(
+        f"{fit.fitted:.0%} of the finite pixels used in the terrace fit (the rest: step edges, adsorbates, pits, "
+        "pieces too small to keep)"
+    )
+    if fit.background is not None:
+        notes.append(f"a smooth background (nodes {params.background_spacing_px:g} px apart) was fitted and removed")
     notes.append("tilts are relative to the scanner plane, taken as parallel to the mount face")
 
     report(0.7, "lattice")
-    resid = _flattened(z, valid, terr, near, coords, params)
-    if hidden:
-        # keep the unresolved relief out of the Fourier transform
-        resid = resid - _smooth(resid, valid, params.structure_smooth_px)
-        resid[~valid] = 0.0
-    lattice = fourier_lattice(resid, px, (a, b), params, notes)
+    flat, keep = levelled_image(z, valid, fit, coords, params)
+    lattice, drift = measure_lattice(flat, keep, fit, px, (a, b), params, notes)
+    del flat, keep
     report(1.0, "done")
     tilt = Tilt(
         macroscopic=macro_tilt,
@@ -239,4 +305,17 @@ def analyse_heightmap(heights, pixel_size, *, progress=None, **parameters):
         terrace_azimuth=terrace_az,
         terrace_sigma=terrace_sigma,
     )
-    return HeightMapAnalysis(tilt=tilt, lattice=lattice, steps=steps, terraces=terr.n, notes=tuple(notes))
+    return HeightMapAnalysis(
+        tilt=tilt,
+        lattice=lattice,
+        steps=steps,
+        terraces=fit.n,
+        nan_fraction=nan_fraction,
+        outlier_fraction=fit.outliers,
+        fitted_fraction=fit.fitted,
+        line_offset_rms=fit.line_rms,
+        background=fit.background is not None,
+        relief=fit.relief,
+        drift=drift,
+        notes=tuple(notes),
+    )

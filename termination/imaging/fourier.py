@@ -1,20 +1,28 @@
-"""The Fourier lattice of a terrace-levelled height map: peaks, their sub-bin positions and the reduced 2D lattice.
+"""The Fourier lattice of a terrace-levelled height map: peaks, sub-bin positions, per-terrace lattices combined.
 
-The scanner is assumed drift-free and linear (:data:`DRIFT_NOTE`).
+The scanner is assumed drift-free and linear (:data:`DRIFT_NOTE`) unless a
+drift correction is asked for with the expected lattice type.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import fft as sp_fft
 from scipy import ndimage
 
 from termination.algebra.lattice2d import gauss_reduce
+from termination.arrays import AnyArray, BoolArray, FloatArray, IntArray
+from termination.imaging.parameters import ImageParameters
+from termination.imaging.terraces import TerraceFit
+from termination.units import ANGSTROM, DEG
 
-__all__ = ["DRIFT_NOTE", "Lattice", "fourier_lattice"]
+__all__ = ["DRIFT_NOTE", "DriftCorrection", "Lattice", "fourier_lattice", "measure_lattice"]
 
 DRIFT_NOTE = (
     "lattice assumes a drift-free, linear scanner: drift, creep or a wrong x/y calibration distort a, b and gamma"
@@ -32,7 +40,8 @@ class Lattice:
         measured in the terrace plane (the projection onto the scanner plane
         is stretched back by the terrace tilt).
     gamma : float
-        The acute angle between them, deg in (0, 90] (60 for hexagonal).
+        The angle between them in the obtuse convention, deg in [90, 120]
+        (120 for hexagonal, 90 for square and rectangular).
     sigma_a, sigma_b : float
         Standard uncertainties of a and b, Å.
     sigma_gamma : float
@@ -40,20 +49,51 @@ class Lattice:
     direction : float
         Direction of the vector a, deg in [0, 180) from +x towards +y.
     peaks : int
-        Number of Fourier peaks (in one half plane) indexed by the lattice.
+        Number of Fourier peaks (in one half plane) indexed by the lattice,
+        summed over the terraces measured.
+    terraces : int
+        Number of terraces whose lattices were combined (0: measured on the
+        whole image at once).
     """
 
-    a: float
-    b: float
-    gamma: float
-    sigma_a: float
-    sigma_b: float
-    sigma_gamma: float
-    direction: float
+    a: float = field(metadata=ANGSTROM)
+    b: float = field(metadata=ANGSTROM)
+    gamma: float = field(metadata=DEG)
+    sigma_a: float = field(metadata=ANGSTROM)
+    sigma_b: float = field(metadata=ANGSTROM)
+    sigma_gamma: float = field(metadata=DEG)
+    direction: float = field(metadata=DEG)
     peaks: int
+    terraces: int = 0
 
 
-def _hann_amplitude(f):
+@dataclass(frozen=True)
+class DriftCorrection:
+    """A linear drift of the slow scan, estimated from the lattice type the surface is known to have.
+
+    The surface point imaged at pixel (x, y) is taken to be
+    :math:`(x + s\\,y,\\ (1 + e)\\,y)`: the fast scan (x) is undistorted and
+    the slow scan is sheared by s and stretched by e.
+
+    Parameters
+    ----------
+    lattice_type : str
+        ``"square"``, ``"rectangular"`` or ``"hexagonal"``.
+    shear, sigma_shear : float
+        s and its standard uncertainty (dimensionless, x shift per unit y).
+    y_scale, sigma_y_scale : float
+        e and its standard uncertainty (0 for a rectangular lattice, whose
+        shape fixes only the shear).
+    """
+
+    lattice_type: str
+    shear: float
+    sigma_shear: float
+    y_scale: float
+    sigma_y_scale: float
+
+
+def _hann_amplitude(f: ArrayLike) -> FloatArray:
     """Magnitude of the (periodic) Hann window's transform at ``f`` bins, W(0) = 1.
 
     Notes
@@ -67,7 +107,9 @@ def _hann_amplitude(f):
     return np.abs(np.where(near, 0.5, out))
 
 
-def _refine_axis(a_m, a_0, a_p, noise_amp):
+def _refine_axis(
+    a_m: FloatArray, a_0: FloatArray, a_p: FloatArray, noise_amp: FloatArray
+) -> tuple[FloatArray, FloatArray, FloatArray]:
     """Sub-bin offset of a Hann-windowed peak from three amplitudes along one axis.
 
     Returns offset (bins), its noise standard deviation (bins) and the
@@ -100,7 +142,7 @@ def _refine_axis(a_m, a_0, a_p, noise_amp):
     return delta, sig_delta, broad
 
 
-def _radial_background(power, kr, dk):
+def _radial_background(power: AnyArray, kr: AnyArray, dk: float) -> Any:
     """Mean noise power at each pixel from the median power of its |k| annulus.
 
     Notes
@@ -110,7 +152,7 @@ def _radial_background(power, kr, dk):
     """
     ring = (kr / dk).astype(np.int64)
     n_ring = int(ring.max()) + 1
-    logp = np.log(power + 1e-300)
+    logp = np.log(np.maximum(power.astype(np.float64), 1e-300))
     lo, hi = float(logp.min()), float(logp.max())
     key = ring.ravel() + 0.999 * (logp.ravel() - lo) / (hi - lo + 1e-12)
     order = np.sort(key)
@@ -126,33 +168,110 @@ def _radial_background(power, kr, dk):
 
 
 _MIRROR = 3  # columns of negative kx added to the half spectrum
+_ZOOM_FLOOR = 0.08  # bins: error of the fine-grid refinement of a peak of unknown shape
 
 
-def _half_power(resid, workers):
-    """Power spectrum of the Hann-windowed image, kx >= -3 bins, ky centred.
+def _half_power(resid: AnyArray, workers: int, keep_window: bool = False) -> Any:
+    """Power spectrum of the Hann-windowed image, kx >= -3 bins, ky centred (single precision).
 
     Returns power (ny, nx // 2 + 1 + _MIRROR); column ``_MIRROR`` is kx = 0
     and row ``ny // 2`` is ky = 0. The columns of negative kx come from
     the symmetry P(-k) = P(k) of a real image.
     """
     ny, nx = resid.shape
-    win = np.outer(np.hanning(ny + 1)[:-1], np.hanning(nx + 1)[:-1])
-    spec = sp_fft.rfft2(resid * win, workers=workers)
-    power = spec.real**2 + spec.imag**2
-    power = sp_fft.fftshift(power, axes=0)
+    win = resid.astype(np.float32, copy=True)
+    win *= np.hanning(ny + 1)[:-1, None].astype(np.float32)
+    win *= np.hanning(nx + 1)[None, :-1].astype(np.float32)
+    spec = sp_fft.rfft2(win, workers=workers)
+    if not keep_window:
+        del win
+    power = np.empty((ny, spec.shape[1] + _MIRROR), dtype=np.float32)
+    shift = ny // 2
+    # fftshift along y while writing into the output, then the mirrored columns
+    body = power[:, _MIRROR:]
+    sq = spec.real**2
+    sq += spec.imag**2
+    del spec
+    body[shift:] = sq[: ny - shift]
+    body[:shift] = sq[ny - shift :]
+    del sq
     flip = (2 * (ny // 2) - np.arange(ny)) % ny
-    mirror = power[flip][:, _MIRROR:0:-1]
-    return np.concatenate([mirror, power], axis=1)
+    power[:, :_MIRROR] = body[flip][:, _MIRROR:0:-1]
+    return (power, win) if keep_window else power
 
 
-def fourier_lattice(resid, px, slope, p, notes):
-    """The reduced lattice of a levelled image (Å, degrees), or None with the reason appended to ``notes``."""
+def _zoom_refine(
+    win: AnyArray, kx_bins: FloatArray, ky_bins: FloatArray, step: float = 0.25, half: int = 3
+) -> tuple[FloatArray, FloatArray]:
+    """Sub-bin peak positions from the transform evaluated on a fine grid around each peak.
+
+    Parameters
+    ----------
+    win : (ny, nx) float32 ndarray
+        The windowed image that was transformed.
+    kx_bins, ky_bins : (m,) ndarray
+        Peak positions on the FFT grid, bins (ky centred).
+
+    Returns
+    -------
+    dx, dy : (m,) ndarray
+        Offsets from the grid positions, bins, in [-1, 1].
+
+    Notes
+    -----
+    :math:`F(k) = \\sum_{x,y} w(x, y)\\, e^{-2\\pi i (k_x x / n_x + k_y y / n_y)}` is
+    evaluated directly (two matrix products, the first in single
+    precision) on a grid of ``step`` bins, ±``half`` steps around the
+    peak; the maximum of :math:`|F|^2` on that grid is refined by a
+    parabola through its neighbours along each axis. Unlike an
+    interpolation formula for a known window, this does not assume the
+    peak's shape, which a terrace mask changes.
+    """
+    ny, nx = win.shape
+    offs = np.arange(-half, half + 1) * step
+    x = np.arange(nx)
+    y = np.arange(ny)
+    m = len(kx_bins)
+    dx = np.zeros(m)
+    dy = np.zeros(m)
+    if m == 0:
+        return dx, dy
+    # the sums along x for every peak and fine offset at once: one single-precision matrix product each
+    phx = (2 * np.pi / nx) * np.outer(x, (np.asarray(kx_bins)[:, None] + offs[None, :]).ravel())
+    a_all = win @ np.cos(phx).astype(np.float32) - 1j * (win @ np.sin(phx).astype(np.float32))
+    del phx
+    k = offs.size
+    for i, ky0 in enumerate(ky_bins):
+        a = a_all[:, i * k : (i + 1) * k]
+        phy = (2 * np.pi / ny) * np.outer(ky0 + offs, y)
+        f = np.exp(-1j * phy) @ a.astype(np.complex128)
+        power = f.real**2 + f.imag**2
+        iy, ix = np.unravel_index(int(np.argmax(power)), power.shape)
+        for axis, idx, out in ((1, ix, dx), (0, iy, dy)):
+            line = power[iy, :] if axis == 1 else power[:, ix]
+            delta = 0.0
+            if 0 < idx < line.size - 1:
+                lm, l0, lp = np.log(line[idx - 1 : idx + 2] + 1e-300)
+                den = lm - 2 * l0 + lp
+                if den < 0:
+                    delta = 0.5 * (lm - lp) / den
+            out[i] = float(np.clip(offs[idx] + delta * step, -1.0, 1.0))
+    return dx, dy
+
+
+def _spectrum_peaks(
+    resid: AnyArray, px: tuple[float, float], p: ImageParameters, notes: list[str]
+) -> tuple[FloatArray, FloatArray] | None:
+    """Significant Fourier peaks of a levelled image: positions g (m, 2), 1/Å, and their sigmas, strongest first.
+
+    Returns (g, sig) or None, with the reason appended to ``notes``.
+    """
     ny, nx = resid.shape
-    power = _half_power(resid, p.workers)
+    power, win = _half_power(resid, p.workers, keep_window=True)
     cy, cx = ny // 2, _MIRROR
     dkx, dky = 1.0 / (nx * px[0]), 1.0 / (ny * px[1])
-    kx = (np.arange(power.shape[1]) - cx) * dkx
-    ky = (np.arange(ny) - cy) * dky
+    kx = ((np.arange(power.shape[1]) - cx) * dkx).astype(np.float32)
+    ky = ((np.arange(ny) - cy) * dky).astype(np.float32)
     kr = np.hypot(kx[None, :], ky[:, None])
     # one half plane: kx > 0, or kx == 0 and ky > 0
     half = np.zeros(power.shape, dtype=bool)
@@ -165,20 +284,24 @@ def fourier_lattice(resid, px, slope, p, notes):
     if not usable.any():
         notes.append(f"no lattice: the image is too small for a periodicity to repeat {p.min_periods} times")
         return None
-    bg_img = np.full(power.shape, np.inf)
+    bg_img = np.full(power.shape, np.inf, dtype=np.float32)
     bg_img[half] = _radial_background(power[half], kr[half], max(dkx, dky))
+    del kr
     n_bins = int(half.sum())
-    thr = bg_img * math.log(n_bins / p.lattice_false_alarm)
-    cand = usable & (power > thr)
+    del half
+    cand = usable & (power > bg_img * np.float32(math.log(n_bins / p.lattice_false_alarm)))
+    del usable
     if cand.any():
         cand &= power == ndimage.maximum_filter(power, size=3, mode="nearest")
     rows, cols = np.nonzero(cand)
+    del cand
     if rows.size == 0:
         notes.append(f"no lattice: no Fourier peak above the noise (false-alarm probability {p.lattice_false_alarm:g})")
         return None
-    order = np.argsort(power[rows, cols])[::-1]
+    power64 = power  # peaks are read from the single-precision spectrum
+    order = np.argsort(power64[rows, cols])[::-1]
     rows, cols = rows[order], cols[order]
-    streak = _is_streak(power, rows, cols, cx, cy, p.streak_ratio)
+    streak = _is_streak(power64, rows, cols, cx, cy, p.streak_ratio)
     if streak.any():
         k = int(streak.sum())
         notes.append(f"{k} Fourier {'maximum' if k == 1 else 'maxima'} on radial streaks (step edges) ignored")
@@ -186,18 +309,30 @@ def fourier_lattice(resid, px, slope, p, notes):
     if rows.size == 0:
         notes.append("no lattice: only streaks from step edges in the Fourier transform")
         return None
-    noise_amp = np.sqrt(bg_img[rows, cols] / 2.0)
+    noise_amp = np.sqrt(bg_img[rows, cols].astype(np.float64) / 2.0)
 
-    def amp(r, c):
-        return np.sqrt(power[r, c])
+    def amp(r: IntArray, c: IntArray) -> Any:
+        return np.sqrt(power64[r, c].astype(np.float64))
 
-    dx, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
-    dy, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
+    _, sx, bx = _refine_axis(amp(rows, cols - 1), amp(rows, cols), amp(rows, cols + 1), noise_amp)
+    _, sy, by = _refine_axis(amp(rows - 1, cols), amp(rows, cols), amp(rows + 1, cols), noise_amp)
+    del power
+    dx, dy = _zoom_refine(win, (cols - cx).astype(np.float64), (rows - cy).astype(np.float64))
+    del win
     g = np.stack([(cols - cx + dx) * dkx, (rows - cy + dy) * dky], axis=1)
-    # FFT grid resolution (uniform over a bin) with the interpolation noise, times broadening
-    sig = np.stack([dkx * np.sqrt(1 / 12 + sx**2) * bx, dky * np.sqrt(1 / 12 + sy**2) * by], axis=1)
+    # position noise (from the three-point amplitudes) with a floor for the refinement's own error,
+    # times the broadening of the peak against the window's own width
+    sig = np.stack([dkx * np.sqrt(_ZOOM_FLOOR**2 + sx**2) * bx, dky * np.sqrt(_ZOOM_FLOOR**2 + sy**2) * by], axis=1)
+    return g, sig
+
+
+def _fit_basis(
+    g: FloatArray, sig: FloatArray, p: ImageParameters, notes: list[str]
+) -> tuple[FloatArray, FloatArray, int] | None:
+    """Reciprocal basis (2, 2) (rows g1, g2) least-squares fitted to every indexed peak, its (4, 4) covariance
+    (parameters g1x, g2x, g1y, g2y) and the number of peaks used; or None with the reason in ``notes``."""
     basis, hk = _index_peaks(g, p.index_tol)
-    if basis is None:
+    if basis is None or hk is None:
         glen = np.hypot(g[:, 0], g[:, 1])
         d = 1.0 / glen[0]
         notes.append(f"no lattice: one periodicity only (rows {d:.3f} Å apart), no second direction")
@@ -214,7 +349,7 @@ def fourier_lattice(resid, px, slope, p, notes):
     h = np.rint(hk[ok])
     gm, sm = g[ok], sig[ok]
     gmat = np.empty((2, 2))
-    cov = np.zeros((4, 4))  # parameters: g1x, g2x, g1y, g2y
+    cov = np.zeros((4, 4))
     for c in (0, 1):
         w = 1.0 / sm[:, c] ** 2
         nmat = (h * w[:, None]).T @ h
@@ -227,22 +362,35 @@ def fourier_lattice(resid, px, slope, p, notes):
     if dof > 0:
         chi2 = float(np.sum(((gm - pred) / sm) ** 2)) / dof
         cov *= max(1.0, chi2)
-    params = np.array([gmat[0, 0], gmat[1, 0], gmat[0, 1], gmat[1, 1]])
-    sl = np.asarray(slope, dtype=np.float64)
-    metric = np.eye(2) + np.outer(sl, sl)  # image (x, y) lifted onto the terrace plane
-    values, transform = _real_lattice(params, None, metric)
+    return gmat, cov, int(ok.sum())
+
+
+def _params(gmat: FloatArray) -> FloatArray:
+    return np.array([gmat[0, 0], gmat[1, 0], gmat[0, 1], gmat[1, 1]])
+
+
+def _lattice_values(
+    params: FloatArray,
+    cov: FloatArray,
+    metric: FloatArray,
+    p_count: int,
+    terraces: int,
+    drift: DriftCorrection | None = None,
+) -> Lattice:
+    """The Lattice record from reciprocal parameters and their covariance (propagated by central differences)."""
+    values, transform = _real_lattice(params, None, metric, drift)
     jac = np.empty((4, 4))
     for i in range(4):
         step = 1e-6 * np.max(np.abs(params))
         dp = np.zeros(4)
         dp[i] = step
         jac[:, i] = (
-            _real_lattice(params + dp, transform, metric)[0] - _real_lattice(params - dp, transform, metric)[0]
+            _real_lattice(params + dp, transform, metric, drift)[0]
+            - _real_lattice(params - dp, transform, metric, drift)[0]
         ) / (2 * step)
     vcov = jac @ cov @ jac.T
     sd = np.sqrt(np.maximum(np.diag(vcov), 0.0))
     a, b, gamma, direction = values
-    notes.append(DRIFT_NOTE)
     return Lattice(
         a=float(a),
         b=float(b),
@@ -251,11 +399,304 @@ def fourier_lattice(resid, px, slope, p, notes):
         sigma_b=float(sd[1]),
         sigma_gamma=float(sd[2]),
         direction=float(direction),
-        peaks=int(ok.sum()),
+        peaks=int(p_count),
+        terraces=int(terraces),
     )
 
 
-def _is_streak(power, rows, cols, cx, cy, ratio):
+def fourier_lattice(
+    resid: AnyArray, px: tuple[float, float], slope: tuple[float, float], p: ImageParameters, notes: list[str]
+) -> Lattice | None:
+    """The reduced lattice of one levelled image (Å, degrees), or None with the reason appended to ``notes``.
+
+    Parameters
+    ----------
+    resid : (ny, nx) ndarray
+        Levelled heights, Å, zero where nothing is known.
+    px : (float, float)
+        Pixel size along x and y, Å.
+    slope : (float, float)
+        Terrace-plane slopes dz/dx, dz/dy (the lattice is measured in that plane).
+    p : ImageParameters
+    notes : list of str
+        Reasons and remarks are appended.
+
+    Returns
+    -------
+    Lattice or None
+    """
+    peaks = _spectrum_peaks(resid, px, p, notes)
+    if peaks is None:
+        return None
+    fitted = _fit_basis(*peaks, p, notes)
+    if fitted is None:
+        return None
+    gmat, cov, count = fitted
+    notes.append(DRIFT_NOTE)
+    return _lattice_values(_params(gmat), cov, _metric(slope), count, 0)
+
+
+def _metric(slope: tuple[float, float]) -> FloatArray:
+    sl = np.asarray(slope, dtype=np.float64)
+    return np.eye(2) + np.outer(sl, sl)  # image (x, y) lifted onto the terrace plane
+
+
+def _terrace_regions(
+    fit: TerraceFit, shape: tuple[int, ...], p: ImageParameters, min_side: int
+) -> list[tuple[int, tuple[slice, slice]]]:
+    """Bounding boxes (full-resolution slices) of the largest terraces whose lattices are measured separately.
+
+    Terrace areas and boxes come from the segmentation grid (binned by ``fit.bin``).
+    """
+    near = fit.near_b
+    f = fit.bin
+    counts = np.bincount(near.ravel(), minlength=fit.n + 1)[1:]
+    order = np.argsort(counts)[::-1]
+    if counts.size == 0 or counts[order[0]] == 0:
+        return []
+    boxes = ndimage.find_objects(near, max_label=fit.n)
+    regions = []
+    for k in order[: p.lattice_terraces]:
+        if counts[k] < 0.2 * counts[order[0]] or boxes[k] is None:
+            break
+        rb, cb = boxes[k]
+        rows = slice(rb.start * f, min(rb.stop * f, shape[0]) if rb.stop < near.shape[0] else shape[0])
+        cols = slice(cb.start * f, min(cb.stop * f, shape[1]) if cb.stop < near.shape[1] else shape[1])
+        if rows.stop - rows.start < min_side or cols.stop - cols.start < min_side:
+            continue
+        regions.append((int(k + 1), (rows, cols)))
+    return regions
+
+
+def _taper(mask: BoolArray, sigma_px: float = 3.0) -> Any:
+    """Weights that fall smoothly from 1 inside ``mask`` to 0 at its edge (over about 2 sigma_px).
+
+    The edges of a terrace mask would otherwise transform into bright
+    streaks through the origin that hide or mimic lattice spots.
+    """
+    # a box mean (cheaper than a Gaussian on large crops) gives a linear ramp over about 2 sigma_px
+    w = ndimage.uniform_filter(mask.astype(np.float32), 2 * int(round(sigma_px)) + 1, mode="constant")
+    w *= 2.0
+    w -= 1.0
+    np.clip(w, 0.0, 1.0, out=w)
+    w *= mask
+    return w
+
+
+def _align(gmat: FloatArray, cov: FloatArray, ref: FloatArray) -> tuple[FloatArray, FloatArray] | None:
+    """Express a reciprocal basis in the integer frame of ``ref`` (the same lattice); None if it is not."""
+    t = gmat @ np.linalg.inv(ref)
+    ti = np.rint(t)
+    if np.max(np.abs(t - ti)) > 0.2 or abs(round(np.linalg.det(ti))) != 1:
+        return None
+    inv = np.linalg.inv(ti)
+    new = inv @ gmat
+    big = np.zeros((4, 4))
+    big[:2, :2] = inv
+    big[2:, 2:] = inv
+    return new, big @ cov @ big.T
+
+
+def measure_lattice(
+    flat: AnyArray,
+    keep: BoolArray,
+    fit: TerraceFit,
+    px: tuple[float, float],
+    slope: tuple[float, float],
+    p: ImageParameters,
+    notes: list[str],
+) -> tuple[Lattice | None, DriftCorrection | None]:
+    """The lattice measured on each of the largest terraces and combined; optionally drift-corrected.
+
+    Parameters
+    ----------
+    flat : (ny, nx) ndarray
+        Terrace-levelled image (:func:`termination.imaging.terraces.levelled_image`), Å.
+    keep : (ny, nx) bool ndarray
+        Pixels of ``flat`` that carry data.
+    fit : TerraceFit
+    px : (float, float)
+        Pixel size, Å.
+    slope : (float, float)
+        Terrace-plane slopes.
+    p : ImageParameters
+    notes : list of str
+
+    Returns
+    -------
+    (Lattice or None, DriftCorrection or None)
+
+    Notes
+    -----
+    Across a step the atomic lattice of one terrace is shifted laterally
+    against the next, so a transform over several terraces sums spots of
+    different phase, which distorts and shifts them. Each of the
+    ``lattice_terraces`` largest terraces (at least a fifth of the largest
+    one) is therefore transformed on its own bounding box, its pixels alone
+    (the rest zero), and its reciprocal basis fitted as in
+    :func:`fourier_lattice`. The bases are brought to one integer frame and
+    combined as the covariance-weighted mean of their parameters
+    :math:`\\bar p = (\\sum_k C_k^{-1})^{-1} \\sum_k C_k^{-1} p_k`; when they
+    scatter more than their covariances allow (:math:`\\chi^2/\\nu > 1`,
+    :math:`\\nu = 4(K-1)`) the covariance of the mean is scaled by
+    :math:`\\chi^2/\\nu`, so that sigma covers the spread between
+    terraces. Without a terrace large enough, the whole image is used and
+    the notes say so.
+
+    *Drift correction* (only with ``drift_lattice``): the real-space vectors
+    :math:`A` measured in image coordinates are mapped by
+    :math:`C = [[1, s], [0, 1 + e]]` (the surface point of pixel (x, y) is
+    :math:`(x + s y, (1 + e) y)`), and (s, e) are solved so that the reduced
+    lattice of :math:`A C^T` has the stated shape: a = b and
+    :math:`\\gamma = 90°` (square), :math:`\\gamma = 90°` with e = 0
+    (rectangular), a = b and :math:`\\gamma = 120°` (hexagonal). The
+    uncertainties are propagated through the solution.
+    """
+    regions = _terrace_regions(fit, flat.shape, p, min_side=32)
+    results = []
+    for k, (rows, cols) in regions:
+        on = keep[rows, cols] & (fit.near(flat.shape, rows)[:, cols] == k)
+        sub = np.where(on, flat[rows, cols], 0.0).astype(np.float32)
+        if on.any():
+            sub[on] -= float(np.mean(sub[on], dtype=np.float64))
+        sub *= _taper(on)
+        trial: list[str] = []
+        peaks = _spectrum_peaks(sub, px, p, trial)
+        del sub, on
+        fitted = _fit_basis(*peaks, p, trial) if peaks is not None else None
+        if fitted is not None:
+            results.append(fitted)
+    if results and len(results) < len(regions):
+        missed = len(regions) - len(results)
+        notes.append(f"no lattice found on {missed} of the {len(regions)} largest terraces on their own")
+    terraces = len(results)
+    if results:
+        ref = max(results, key=lambda r: r[2])[0]
+        aligned = []
+        for gmat, cov, count in results:
+            al = _align(gmat, cov, ref)
+            if al is not None:
+                aligned.append((*al, count))
+        skipped = len(results) - len(aligned)
+        if skipped:
+            notes.append(
+                f"{skipped} terrace lattice{'s' if skipped > 1 else ''} not commensurate with the others ignored"
+            )
+        weights = [np.linalg.pinv(c) for _, c, _ in aligned]
+        total = np.linalg.pinv(sum(weights))
+        mean = total @ sum(w @ _params(g) for w, (g, _, _) in zip(weights, aligned))
+        if len(aligned) > 1:
+            chi2 = sum(float((_params(g) - mean) @ w @ (_params(g) - mean)) for w, (g, _, _) in zip(weights, aligned))
+            total = total * max(1.0, chi2 / (4 * (len(aligned) - 1)))
+        params, cov, count, terraces = mean, total, sum(c for _, _, c in aligned), len(aligned)
+        notes.append(
+            f"lattice measured on {terraces} terrace{'s' if terraces > 1 else ''} separately and combined"
+            + ("; sigma covers the spread between them" if terraces > 1 else "")
+        )
+    else:
+        # no terrace large enough, or none shows a lattice on its own: the whole image
+        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes)
+        fitted = _fit_basis(*peaks, p, notes) if peaks is not None else None
+        if fitted is None:
+            return None, None
+        if regions:
+            notes.append(
+                "lattice from the whole image: no single terrace shows it; lateral shifts between terraces may bias it"
+            )
+        gmat, cov, count = fitted
+        params, terraces = _params(gmat), 0
+    metric = _metric(slope)
+    drift = None
+    if p.drift_lattice is not None:
+        solved = _solve_drift(params, metric, p.drift_lattice)
+        if solved is None:
+            notes.append(
+                f"drift correction for a {p.drift_lattice} lattice failed: the measured lattice is too far "
+                "from that shape; lattice reported uncorrected"
+            )
+        else:
+            drift = _drift_record(params, cov, metric, p.drift_lattice, solved)
+            notes.append(
+                f"drift corrected for a {p.drift_lattice} lattice: shear {drift.shear:+.4f} ± {drift.sigma_shear:.4f}, "
+                f"slow-scan stretch {drift.y_scale:+.4f} ± {drift.sigma_y_scale:.4f}; gamma is then fixed by "
+                "the stated lattice type, not measured"
+            )
+    if drift is None:
+        notes.append(DRIFT_NOTE)
+    lattice = _lattice_values(params, cov, metric, count, terraces, None if drift is None else drift)
+    return lattice, drift
+
+
+def _corrected_params(params: FloatArray, drift_se: Sequence[float] | FloatArray) -> FloatArray:
+    """Reciprocal parameters after the drift map C = [[1, s], [0, 1 + e]]: G' = G C^-1."""
+    s, e = drift_se
+    gmat = np.array([[params[0], params[2]], [params[1], params[3]]])
+    c = np.array([[1.0, s], [0.0, 1.0 + e]])
+    return _params(gmat @ np.linalg.inv(c))
+
+
+def _shape_residuals(params: FloatArray, metric: FloatArray, kind: str, transform: FloatArray) -> FloatArray:
+    values, _ = _real_lattice(params, transform, metric)
+    a, b, gamma = values[:3]
+    mean = 0.5 * (a + b)
+    if kind == "square":
+        return np.array([(a - b) / mean, math.cos(math.radians(gamma))])
+    if kind == "hexagonal":
+        return np.array([(a - b) / mean, math.cos(math.radians(gamma)) + 0.5])
+    return np.array([math.cos(math.radians(gamma))])
+
+
+def _solve_drift(
+    params: FloatArray, metric: FloatArray, kind: str, transform: FloatArray | None = None
+) -> tuple[tuple[float, float], FloatArray] | None:
+    """(s, e) that give the measured lattice the shape of ``kind``; None if no solution near zero drift."""
+    from scipy.optimize import least_squares
+
+    if transform is None:
+        transform = _real_lattice(params, None, metric)[1]
+    if kind == "rectangular":
+
+        def fun(v: FloatArray) -> FloatArray:
+            return _shape_residuals(_corrected_params(params, (v[0], 0.0)), metric, kind, transform)
+
+        sol = least_squares(fun, [0.0], xtol=1e-14, ftol=1e-14, gtol=1e-14)
+        se = (float(sol.x[0]), 0.0)
+    else:
+
+        def fun(v: FloatArray) -> FloatArray:
+            return _shape_residuals(_corrected_params(params, v), metric, kind, transform)
+
+        sol = least_squares(fun, [0.0, 0.0], xtol=1e-14, ftol=1e-14, gtol=1e-14)
+        se = (float(sol.x[0]), float(sol.x[1]))
+    if not sol.success or np.max(np.abs(sol.fun)) > 1e-6 or max(abs(se[0]), abs(se[1])) > 0.5:
+        return None
+    return se, transform
+
+
+def _drift_record(
+    params: FloatArray,
+    cov: FloatArray,
+    metric: FloatArray,
+    kind: str,
+    solved: tuple[tuple[float, float], FloatArray],
+) -> DriftCorrection:
+    (s, e), transform = solved
+    jac = np.zeros((2, 4))
+    for i in range(4):
+        step = 1e-6 * np.max(np.abs(params))
+        dp = np.zeros(4)
+        dp[i] = step
+        plus = _solve_drift(params + dp, metric, kind, transform)
+        minus = _solve_drift(params - dp, metric, kind, transform)
+        if plus is None or minus is None:
+            continue
+        jac[:, i] = (np.array(plus[0]) - np.array(minus[0])) / (2 * step)
+    c = jac @ cov @ jac.T
+    sd = np.sqrt(np.maximum(np.diag(c), 0.0))
+    return DriftCorrection(lattice_type=kind, shear=s, sigma_shear=float(sd[0]), y_scale=e, sigma_y_scale=float(sd[1]))
+
+
+def _is_streak(power: AnyArray, rows: IntArray, cols: IntArray, cx: int, cy: int, ratio: float) -> Any:
     """True for maxima that lie on a line through the origin rather than on a spot.
 
     Notes
@@ -282,7 +723,7 @@ def _is_streak(power, rows, cols, cx, cy, ratio):
     return (radial > ratio * power[rows, cols]) & (radial > 4.0 * tangential)
 
 
-def _index_peaks(g, tol):
+def _index_peaks(g: FloatArray, tol: float) -> tuple[FloatArray | None, FloatArray | None]:
     """Reciprocal basis from the strongest peaks, and the indices of all peaks.
 
     ``g`` (m, 2) is sorted by decreasing power. The basis is the strongest
@@ -306,23 +747,32 @@ def _index_peaks(g, tol):
     return basis, g @ np.linalg.inv(basis)
 
 
-def _reduce(basis, metric=None):
+def _reduce(basis: FloatArray, metric: FloatArray | None = None) -> FloatArray:
     """Gauss-reduced 2D basis (rows) under ``metric``."""
     return np.array(gauss_reduce(basis[0], basis[1], metric))
 
 
-def _real_lattice(params, transform, metric):
+def _real_lattice(
+    params: FloatArray, transform: FloatArray | None, metric: FloatArray, drift: DriftCorrection | None = None
+) -> tuple[FloatArray, FloatArray]:
     """(a, b, gamma, direction) of the reduced real-space lattice from (g1x, g2x, g1y, g2y).
 
     Lengths and angles use ``metric`` (that of the terrace plane, so the
-    foreshortening of the projected image is undone). ``transform`` fixes
-    the integer reduction so that finite differences are smooth.
+    foreshortening of the projected image is undone); gamma follows the
+    obtuse convention (90° <= gamma <= 120°). ``transform`` fixes the
+    integer reduction so that finite differences are smooth. With ``drift``
+    (a DriftCorrection), the drift is solved for and removed first, so that
+    the uncertainty of the correction is propagated too.
     """
+    if drift is not None:
+        solved = _solve_drift(params, metric, drift.lattice_type)
+        if solved is not None:
+            params = _corrected_params(params, solved[0])
     gmat = np.array([[params[0], params[2]], [params[1], params[3]]])
     real = np.linalg.inv(gmat).T  # rows: real-space vectors with g_i . a_j = delta_ij
     if transform is None:
         red = _reduce(real, metric)
-        if red[0] @ metric @ red[1] < 0:  # make gamma acute
+        if red[0] @ metric @ red[1] > 0:  # make gamma obtuse
             red[1] = -red[1]
         transform = np.rint(red @ np.linalg.inv(real))
     red = transform @ real

@@ -5,10 +5,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, fields
 
-from termination.defaults import MIN_STEP_ANGSTROM
+from termination.defaults import MAX_NAN_FRACTION, MIN_STEP_ANGSTROM
 from termination.errors import ImageError
 
-__all__ = ["ImageParameters"]
+__all__ = ["DRIFT_LATTICES", "ImageParameters"]
+
+#: Lattice types from which a linear drift can be estimated.
+DRIFT_LATTICES = ("square", "rectangular", "hexagonal")
 
 
 @dataclass(frozen=True)
@@ -33,8 +36,9 @@ class ImageParameters:
         Gaussian smoothing (standard deviation, pixels) of the image whose
         histogram gives the terrace levels; it should exceed the corrugation
         period so that the atomic corrugation does not broaden the levels.
-    min_terrace_fraction : float, default 0.01
-        Smallest terrace, as a fraction of the finite pixels.
+    min_terrace_px : int, default 200
+        Smallest terrace, pixels. Smaller pieces (at any level) are left
+        out of the fit, never merged with a terrace at another level.
     min_level_contrast : float, default 0.5
         A histogram peak is a level when the dip to its neighbours is at
         least this fraction of its height (resolved peaks only).
@@ -71,9 +75,39 @@ class ImageParameters:
     max_structure_ratio : float, default 3
         After the terrace fit, the residual smoothed over
         ``structure_smooth_px`` may carry at most this many times the
-        variance that white noise would leave; above it, relief such as steps
-        hidden by noise remains and the terrace tilt and step heights are not
-        reported.
+        variance that white noise would leave ...
+    max_relief_fraction : float, default 0.25
+        ... and at most this fraction of ``min_step_angstrom`` as its rms
+        height; when both are exceeded, relief such as steps hidden by noise
+        remains and the terrace tilt and step heights are not reported. Below
+        either, the smooth relief left is counted in the uncertainties.
+    line_offsets : bool, default True
+        Fit one height offset per scan line (image row).
+    background : bool, default True
+        Fit a smooth background where the residual needs one (see
+        :func:`termination.imaging.terraces.fit_terraces`).
+    background_spacing_px : float, default 8
+        Node spacing of the smooth background surface, pixels: relief on
+        larger scales is background.
+    background_min_relief_angstrom : float, default 0.02
+        A background is fitted only when the smooth relief left without one
+        exceeds this rms height, Å (and ``max_structure_ratio``).
+    background_stiffness : float, default 0.03
+        Weight of the bending penalty of the background surface, relative
+        to the mean number of pixels per node.
+    outlier_sigmas : float, default 4
+        Pixels whose lightly smoothed residual lies further than this many
+        robust standard deviations from the terraces (adsorbates, pits) are
+        left out of the fit.
+    max_nan_fraction : float, default 0.5
+        Largest fraction of missing (NaN) pixels accepted.
+    lattice_terraces : int, default 4
+        The lattice is measured on each of up to this many of the largest
+        terraces and combined.
+    drift_lattice : str or None, default None
+        The 2-D lattice type the surface is known to have (``"square"``,
+        ``"rectangular"``, ``"hexagonal"``); when given, a linear drift of
+        the slow scan is estimated from the measured lattice and removed.
     bin : int, default 1
         Segment on a copy binned by this factor a side (set per image by the
         analysis, about 1024 x 1024 pixels).
@@ -86,7 +120,7 @@ class ImageParameters:
     edge_threshold_sigmas: float = 5.0
     edge_guard_px: int = 2
     level_smooth_px: float = 6.0
-    min_terrace_fraction: float = 0.01
+    min_terrace_px: int = 200
     min_level_contrast: float = 0.5
     max_iterations: int = 8
     slope_tol_deg: float = 1e-3
@@ -101,6 +135,16 @@ class ImageParameters:
     streak_ratio: float = 0.05
     structure_smooth_px: float = 8.0
     max_structure_ratio: float = 3.0
+    max_relief_fraction: float = 0.25
+    line_offsets: bool = True
+    background: bool = True
+    background_spacing_px: float = 8.0
+    background_stiffness: float = 0.03
+    background_min_relief_angstrom: float = 0.02
+    outlier_sigmas: float = 4.0
+    max_nan_fraction: float = MAX_NAN_FRACTION
+    lattice_terraces: int = 4
+    drift_lattice: str | None = None
     bin: int = 1
     workers: int = -1
 
@@ -113,12 +157,17 @@ class ImageParameters:
             "slope_tol_deg",
             "index_tol",
             "structure_smooth_px",
+            "outlier_sigmas",
+            "max_relief_fraction",
+            "background_spacing_px",
+            "background_stiffness",
+            "background_min_relief_angstrom",
         )
         for name in positive:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
                 raise ImageError(f"{name} must be a positive number, got {v!r}")
-        for name in ("min_terrace_fraction", "min_level_contrast", "lattice_false_alarm", "streak_ratio"):
+        for name in ("min_level_contrast", "lattice_false_alarm", "streak_ratio", "max_nan_fraction"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:
                 raise ImageError(f"{name} must lie in (0, 1), got {v!r}")
@@ -129,10 +178,24 @@ class ImageParameters:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < 0:
                 raise ImageError(f"{name} must be a non-negative number, got {v!r}")
-        for name in ("edge_guard_px", "max_iterations", "min_step_length_px", "min_periods", "max_peaks", "bin"):
+        for name in (
+            "edge_guard_px",
+            "max_iterations",
+            "min_step_length_px",
+            "min_periods",
+            "max_peaks",
+            "bin",
+            "min_terrace_px",
+            "lattice_terraces",
+        ):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, int) or v < 1:
                 raise ImageError(f"{name} must be a positive integer, got {v!r}")
+        for name in ("line_offsets", "background"):
+            if not isinstance(getattr(self, name), bool):
+                raise ImageError(f"{name} must be True or False, got {getattr(self, name)!r}")
+        if self.drift_lattice is not None and self.drift_lattice not in DRIFT_LATTICES:
+            raise ImageError(f"drift_lattice must be one of {', '.join(DRIFT_LATTICES)}, got {self.drift_lattice!r}")
         if self.index_tol >= 0.5:
             raise ImageError(f"index_tol must be below 0.5, got {self.index_tol!r}")
 

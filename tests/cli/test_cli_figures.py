@@ -94,3 +94,13 @@ def test_image_plot_and_report(tmp_path):
     assert sorted(p.name for p in (tmp_path / "figs").iterdir()) == ["image.png", "spectrum.png", "steps.png"]
     assert "<svg" in (tmp_path / "scan.html").read_text(encoding="utf-8")
     _fails(base + ["--report", str(scan), "--force"], "is an input file")
+
+
+def test_report_shows_the_command_as_typed(tmp_path):
+    report = tmp_path / "typed.html"
+    args = ["match", "--demo", "--top", "3", "--report", str(report)]
+    with pytest.raises(SystemExit) as exit_info:
+        cli.main(args)
+    assert exit_info.value.code == 0
+    page = report.read_text(encoding="utf-8")
+    assert f"<pre>termination match --demo --top 3 --report {report}</pre>" in page

@@ -63,15 +63,16 @@ def test_json_has_the_documented_fields(scan):
     r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--json")
     assert r.exit_code == 0, r.output
     data = json.loads(r.stdout)["analysis"]
-    assert {"tilt", "lattice", "steps", "terraces"} <= set(data)
-    assert {"macroscopic", "terrace", "azimuth"} <= set(data["tilt"])
-    assert {"a", "b", "gamma", "sigma_a", "sigma_b"} <= set(data["lattice"])
-    assert abs(data["tilt"]["terrace"] - TILT) <= 0.3
-    assert abs(data["lattice"]["a"] - A) <= 0.02 * A
-    assert abs(data["lattice"]["gamma"] - 90.0) <= 1.0
+    assert {"tilt", "lattice", "steps", "terraces", "nan_fraction", "drift", "notes"} <= set(data)
+    assert {"macroscopic_deg", "terrace_deg", "azimuth_deg", "terrace_sigma_deg"} <= set(data["tilt"])
+    assert {"a_angstrom", "b_angstrom", "gamma_deg", "sigma_a_angstrom", "sigma_b_angstrom"} <= set(data["lattice"])
+    assert abs(data["tilt"]["terrace_deg"] - TILT) <= 0.3
+    assert abs(data["lattice"]["a_angstrom"] - A) <= 0.02 * A
+    assert abs(data["lattice"]["gamma_deg"] - 90.0) <= 1.0
     assert data["terraces"] == 4
-    assert [set(s) for s in data["steps"]] == [{"height", "sigma"}] * 3
-    assert all(abs(s["height"] - STEP) <= 0.05 * STEP for s in data["steps"])
+    assert [set(s) for s in data["steps"]] == [{"height_angstrom", "sigma_angstrom"}] * 3
+    assert all(abs(s["height_angstrom"] - STEP) <= 0.05 * STEP for s in data["steps"])
+    assert data["drift"] is None
 
 
 def test_out_writes_a_measurement_file_that_reads_back(scan, tmp_path):
@@ -123,7 +124,7 @@ def test_sidecar_calibration_is_used(scan, tmp_path):
     (tmp_path / "side.toml").write_text('pixel_size = "0.05nm"\nz_unit = "nm"\n', encoding="utf-8")
     r = invoke("image", local, "--json")
     assert r.exit_code == 0, r.output
-    assert abs(json.loads(r.stdout)["analysis"]["lattice"]["a"] - A) <= 0.02 * A
+    assert abs(json.loads(r.stdout)["analysis"]["lattice"]["a_angstrom"] - A) <= 0.02 * A
 
 
 def test_bad_inputs_give_one_line_and_exit_code_2(scan, tmp_path):
@@ -174,3 +175,85 @@ def test_bad_mount_is_an_error_even_without_out(scan):
     assert r.exit_code == 2, r.output
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and "0 0 0" in lines[0], lines
+
+
+def test_never_an_empty_step_list_or_measurement_file(tmp_path):
+    # one terrace: no step heights, so --steps-out is refused (exit 2, the reason) and nothing is written
+    flat = tmp_path / "flat.npy"
+    z = synthetic_heightmap((128, 128), 0.5, tilt_deg=1.0, lattice=(A, A, 90.0, 0.0), noise_angstrom=0.05, seed=2)
+    np.save(flat, z)
+    steps = tmp_path / "steps.txt"
+    out = tmp_path / "m.toml"
+    r = invoke("image", flat, "--pixel-size", "0.5A", "--z-unit", "A", "--out", out, "--steps-out", steps)
+    assert r.exit_code == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "no step heights" in lines[0] and "not written" in lines[0], lines
+    assert not steps.exists() and not out.exists()
+    # the measurement file alone is written, and says what was not determined
+    r = invoke("image", flat, "--pixel-size", "0.5A", "--z-unit", "A", "--out", out)
+    assert r.exit_code == 0, r.output
+    text = out.read_text(encoding="utf-8")
+    assert "# not determined: step heights" in text and read_measurement(out).steps == ()
+
+
+def test_a_measurement_file_with_nothing_in_it_is_not_written(scan, tmp_path, monkeypatch):
+    import dataclasses
+
+    from termination.imaging import analysis as module
+
+    real = module.analyse_heightmap
+
+    def nothing_found(*args, **kwargs):
+        # an analysis that determined neither the terrace tilt, nor a lattice, nor a step
+        r = real(*args, **kwargs)
+        tilt = dataclasses.replace(r.tilt, terrace=None, terrace_azimuth=None, terrace_sigma=None)
+        return dataclasses.replace(r, tilt=tilt, lattice=None, steps=(), notes=("no lattice: test",))
+
+    monkeypatch.setattr(module, "analyse_heightmap", nothing_found)
+    out = tmp_path / "m.toml"
+    r = invoke("image", scan, "--pixel-size", "0.05nm", "--z-unit", "nm", "--out", out)
+    assert r.exit_code == 2 and "nothing measured" in r.stderr and not out.exists(), r.output
+
+
+def test_channel_and_calibration_come_from_an_instrument_file(tmp_path):
+    from tests.imaging.test_instruments import write_sxm
+
+    z = synthetic_heightmap(
+        (128, 160), 0.5, tilt_deg=2.0, step_heights=[2.0], lattice=(A, A, 90.0, 10.0), noise_angstrom=0.05, seed=3
+    )
+    path = write_sxm(
+        tmp_path / "scan.sxm",
+        {"Z": ("m", z * 1e-10, z[:, ::-1] * 0 + z * 1e-10)},
+        nx=160,
+        ny=128,
+        range_m=(8e-9, 6.4e-9),
+    )
+    r = invoke("image", path, "--channel", "Z:backward", "--json")
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    assert data["source"]["channel"] == "Z" and data["source"]["direction"] == "backward"
+    assert data["source"]["calibration"] == "file" and data["source"]["pixel_size_x_angstrom"] == pytest.approx(0.5)
+    assert abs(data["analysis"]["lattice"]["a_angstrom"] - A) <= 0.02 * A
+    r = invoke("image", path, "--channel", "Current")
+    assert r.exit_code == 2 and "no channel 'Current'" in r.stderr
+
+
+def test_drift_lattice_option(tmp_path):
+    z = synthetic_heightmap(
+        (256, 256),
+        0.5,
+        tilt_deg=2.0,
+        step_heights=[2.0],
+        lattice=(3.0, 3.0, 60.0, 5.0),
+        noise_angstrom=0.05,
+        drift=(0.03, 0.02),
+        seed=1,
+    )
+    path = tmp_path / "drift.npy"
+    np.save(path, z)
+    r = invoke("image", path, "--pixel-size", "0.5A", "--z-unit", "A", "--drift-lattice", "hexagonal", "--json")
+    assert r.exit_code == 0, r.output
+    drift = json.loads(r.stdout)["analysis"]["drift"]
+    assert drift["lattice_type"] == "hexagonal" and abs(drift["shear"] - 0.03) < 0.01
+    r = invoke("image", path, "--pixel-size", "0.5A", "--z-unit", "A", "--drift-lattice", "cubic")
+    assert r.exit_code == 2 and "drift_lattice" in r.stderr

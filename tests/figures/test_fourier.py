@@ -73,6 +73,25 @@ def test_turned_onto_the_measured_lattice_direction(proto):
     assert one(fig, "measured power") is not None
 
 
+@pytest.mark.parametrize("direction, seed", [(25.0, 4), (12.0, 7), (37.0, 1)])
+def test_without_a_direction_the_prediction_is_turned_onto_the_spectrum(proto, direction, seed):
+    # the generator's lattice direction is the known answer (termination.testing.synthetic_heightmap)
+    c = proto("half-heusler:Ti,Ni,Sn")
+    ft = face_terminations(c, (0, 0, 1))
+    p = termination_corrugation(ft, "Ni")
+    z = synthetic_heightmap(
+        (192, 192), 0.25, tilt_deg=0.5, step_heights=[2.96], lattice=(4.19, 4.19, 90.0, direction), seed=seed
+    )
+    fig = fourier_pattern(p, ft.atoms.mesh_inplane, measured=MeasuredMap(z, (0.25, 0.25)))
+    drawn = np.asarray(one(fig, "integer-order spots").get_offsets())
+    plain = spot_positions(p, ft.atoms.mesh_inplane)
+    turn = math.degrees(math.atan2(drawn[0, 1], drawn[0, 0]) - math.atan2(plain[0, 1], plain[0, 0]))
+    a = apparent_vectors(p.spots, ft.atoms.mesh_inplane)[0]
+    expected = direction - math.degrees(math.atan2(a[1], a[0]))
+    off = (turn - expected + 45.0) % 90.0 - 45.0  # a square pattern repeats every 90°
+    assert abs(off) < 2.5  # the spectrum's pixels are 1/48 Å^-1 at |G| = 0.24 Å^-1: about 5° wide
+
+
 def test_power_spectrum_peaks_at_the_generated_lattice():
     # a square lattice of 4 Å generated at 0°: first-order peaks at |k| = 1/4 Å^-1 along x and y
     # (the generator's known answer, termination.testing.synthetic_heightmap)

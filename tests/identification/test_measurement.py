@@ -345,3 +345,19 @@ def test_deeply_nested_toml_is_a_one_line_error(tmp_path):
     f.write_text("x = " + "[" * 5000 + "]" * 5000 + "\n", encoding="utf-8")
     with pytest.raises(MeasurementError, match="nested.toml"):
         read_measurement(f)
+
+
+def test_cells_depth_and_site_weights_round_trip(tmp_path):
+    # The options of match that shape the candidates travel in the measurement file too.
+    m = Measurement(mount=(1, 1, 0), cells=("2x1", "c(2x2)"), depth=4.0, site_weights={"Ti5": 1.0, "Ti6c": 0.2})
+    assert m.site_weights == {"Ti5c": 1.0, "Ti6c": 0.2}  # one spelling of a site
+    path = tmp_path / "m.toml"
+    write_measurement(path, m)
+    back = read_measurement(path)
+    assert back == m
+    with pytest.raises(MeasurementError, match="depth"):
+        Measurement(depth=-1.0)
+    bad = tmp_path / "bad.toml"
+    bad.write_text("cells = 2\n", encoding="utf-8")
+    with pytest.raises(MeasurementError, match="cells"):
+        read_measurement(bad)

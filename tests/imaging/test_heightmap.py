@@ -32,7 +32,7 @@ TILT_DEG = 0.3
 
 
 def reduced_lattice(a, b, gamma_deg):
-    """Two shortest vectors of a 2-D lattice and their acute angle (Gauss reduction)."""
+    """Two shortest vectors of a 2-D lattice and their angle in the obtuse convention, 90-120° (Gauss reduction)."""
     u = np.array([a, 0.0])
     v = b * np.array([math.cos(math.radians(gamma_deg)), math.sin(math.radians(gamma_deg))])
     while True:
@@ -43,7 +43,7 @@ def reduced_lattice(a, b, gamma_deg):
             break
         v = v - mu * u
     la, lb = np.linalg.norm(u), np.linalg.norm(v)
-    return la, lb, math.degrees(math.acos(abs(float(u @ v)) / (la * lb)))
+    return la, lb, math.degrees(math.acos(-abs(float(u @ v)) / (la * lb)))
 
 
 def assert_lattice(lat, a, b, gamma):
@@ -55,8 +55,9 @@ def assert_lattice(lat, a, b, gamma):
     assert 0 < lat.sigma_a < 0.05 * ra and 0 < lat.sigma_b < 0.05 * rb
 
 
-def assert_steps(steps, n, height):
-    assert len(steps) == n
+def assert_steps(steps, n, height, at_least=False):
+    # a meandering edge may cut a terrace in two: one step per pair of adjacent terraces
+    assert len(steps) >= n if at_least else len(steps) == n
     for s in steps:
         assert abs(s.height - height) <= STEP_REL * height
         assert 0 < s.sigma < STEP_REL * height
@@ -362,8 +363,10 @@ def test_hexagonal_lattice_on_a_strongly_tilted_terrace():
     assert abs(r.tilt.terrace - 20.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 320.0) <= 1.0
     assert_lattice(r.lattice, 3.0, 3.0, 60.0)
-    assert r.lattice.peaks == 3  # first shell of a hexagonal lattice: three spots per half plane (textbook)
-    assert_steps(r.steps, 3, 2.0)
+    # first shell of a hexagonal lattice: three spots per half plane (textbook), on each terrace measured
+    assert r.lattice.peaks == 3 * max(r.lattice.terraces, 1)
+    # up, down, up: every edge joins the same two levels, so they make one step height, measured three times
+    assert_steps(r.steps, 1, 2.0)
 
 
 def test_oblique_lattice_with_non_square_pixels():
@@ -524,13 +527,18 @@ def test_results_do_not_depend_on_height_offset_or_a_quarter_turn():
     r1 = analyse_heightmap(z + 123.0, 0.5)
     assert math.isclose(r0.tilt.terrace, r1.tilt.terrace, abs_tol=1e-9)
     assert [s.height for s in r0.steps] == pytest.approx([s.height for s in r1.steps], abs=1e-9)
-    # rot90 turns the image by 90°; x and y axes swap, so the azimuth moves by ±90°
-    r2 = analyse_heightmap(np.rot90(z), 0.5)
+    # rot90 turns the image by 90°; x and y axes swap, so the azimuth moves by ±90°. The scan lines
+    # do not turn with it (rows stay scan lines), so only without line offsets is the model the same.
+    r0 = analyse_heightmap(z, 0.5, line_offsets=False)
+    r2 = analyse_heightmap(np.rot90(z), 0.5, line_offsets=False)
     assert math.isclose(r0.tilt.terrace, r2.tilt.terrace, abs_tol=1e-6)
     assert min(angle_diff(r2.tilt.azimuth, r0.tilt.azimuth + d) for d in (90, -90)) < 1e-6
     assert r2.lattice.a == pytest.approx(r0.lattice.a, rel=1e-3)
     assert r2.lattice.gamma == pytest.approx(r0.lattice.gamma, abs=0.05)
     assert sorted(s.height for s in r2.steps) == pytest.approx(sorted(s.height for s in r0.steps), abs=1e-3)
+    # with line offsets fitted along the rows, the turned image agrees within the uncertainty
+    r3 = analyse_heightmap(np.rot90(z), 0.5)
+    assert abs(r3.tilt.terrace - r1.tilt.terrace) <= 3 * math.hypot(r1.tilt.terrace_sigma, r3.tilt.terrace_sigma)
 
 
 def test_analysis_is_deterministic():
@@ -597,3 +605,15 @@ def test_measurement_leaves_out_what_was_not_found():
     m = to_measurement(analyse_heightmap(z, 0.5))
     assert m.spacings == () and m.row_angle is None and m.steps == ()
     assert m.tilt is not None
+
+
+def test_measurement_row_angle_is_the_obtuse_gamma_and_left_out_when_drift_fixed_it():
+    # hexagonal 3.0 Å: gamma = 120° in the obtuse convention (surface crystallography, common practice)
+    z = synthetic_heightmap(
+        (256, 256), 0.5, tilt_deg=2.0, step_heights=[2.0], lattice=(3.0, 3.0, 60.0, 5.0), noise_angstrom=0.05, seed=3
+    )
+    m = to_measurement(analyse_heightmap(z, 0.5))
+    assert 90.0 <= m.row_angle.value <= 120.0 and abs(m.row_angle.value - 120.0) < 1.0
+    corrected = analyse_heightmap(z, 0.5, drift_lattice="hexagonal")
+    m = to_measurement(corrected)
+    assert m.row_angle is None and len(m.spacings) == 2
