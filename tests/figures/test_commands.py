@@ -115,3 +115,23 @@ def test_corrugation_figures_of_a_cell_given_by_the_user(proto):
     assert "topograph_T1_2x2" not in names  # a cell without atoms has the 1x1 topograph
     for plan in plans:
         assert plan.make().axes
+
+
+def test_match_figures_with_a_measured_map(tmp_path, demo_match):
+    import numpy as np
+    from figure_data import one
+
+    from termination.figures.commands import read_measured
+    from termination.testing import synthetic_heightmap
+
+    z = synthetic_heightmap(
+        (128, 128), 0.25, tilt_deg=1.0, step_heights=[2.96], lattice=(4.19, 4.19, 90.0, 8.0), seed=5
+    )
+    np.save(tmp_path / "scan.npy", z)
+    measured = read_measured(tmp_path / "scan.npy", "0.25A", "A")
+    assert measured.map.pixel_size == (0.25, 0.25) and measured.map.heights == pytest.approx(z)
+    crystal, report = demo_match
+    plans = {p.name: p for p in match_figures(report, crystal, measured=measured)}
+    assert "beside the measured terrace" in plans["topograph_best"].caption
+    assert one(plans["topograph_best"].make(), "measured topograph") is not None
+    assert one(plans["fourier_best"].make(), "measured power") is not None
