@@ -20,8 +20,10 @@ import contextvars
 import dataclasses
 import functools
 import json
+import re
 import sys
 from collections.abc import Callable
+from dataclasses import dataclass
 from typing import Annotated, Any, TypeVar
 
 import typer
@@ -61,12 +63,59 @@ app = typer.Typer(
 )
 
 
+#: Options that take a face: three integers H K L, or four H K I L (Miller-Bravais).
+FACE_OPTIONS = ("--plane", "--mount")
+_INTEGER = re.compile(r"[+-]?\d+")
+_INTEGERS = re.compile(r"\s*[+-]?\d+(\s+[+-]?\d+)+\s*")
+
+
+def _join_face_values(args: list[str]) -> list[str]:
+    """The command line with the three or four integers after each face option joined into one value.
+
+    A face option takes a variable number of values, which the option parser
+    cannot: ``--mount 1 0 -1 0`` becomes ``--mount "1 0 -1 0"`` (the quoted
+    form is accepted as given).
+    """
+    out: list[str] = []
+    i = 0
+    while i < len(args):
+        token = args[i]
+        out.append(token)
+        i += 1
+        if token in FACE_OPTIONS:
+            if i < len(args) and _INTEGERS.fullmatch(args[i]):  # given as one quoted value, '1 0 -1 0'
+                out.append(args[i])
+                i += 1
+                continue
+            values: list[str] = []
+            while i < len(args) and len(values) < 4 and _INTEGER.fullmatch(args[i]):
+                values.append(args[i])
+                i += 1
+            out.append(" ".join(values))
+    return out
+
+
 class _Command(typer.core.TyperCommand):
-    """Usage lines write a required argument as STRUCTURE, not {STRUCTURE}."""
+    """Usage lines write a required argument as STRUCTURE, not {STRUCTURE}; faces take 3 or 4 values.
+
+    A command with the ``--three-index`` option (:data:`ThreeIndex`) runs
+    within :func:`termination.surface.miller.three_index_notation` when it is
+    given: faces and directions of hexagonal and trigonal lattices are then
+    written (h k l) and [u v w] instead of (h k i l) and [u v t w].
+    """
 
     def collect_usage_pieces(self, ctx: Any) -> list[str]:
         pieces = super().collect_usage_pieces(ctx)
         return [p[1:-1] if p.startswith("{") and p.endswith("}") else p for p in pieces]
+
+    def parse_args(self, ctx: Any, args: list[str]) -> list[str]:
+        return list(super().parse_args(ctx, _join_face_values(list(args))))
+
+    def invoke(self, ctx: Any) -> Any:
+        from termination.surface.miller import three_index_notation
+
+        with three_index_notation(bool(ctx.params.get("three_index", False))):
+            return super().invoke(ctx)
 
 
 command = functools.partial(app.command, cls=_Command)
@@ -86,19 +135,81 @@ Structure = Annotated[
         show_default=False,
     ),
 ]
-LatticeA = Annotated[float | None, typer.Option("--a", metavar="Å", help="Lattice constant of a prototype, Å.")]
-FreeX = Annotated[float | None, typer.Option("--x", metavar="X", help="Free positional parameter of a prototype.")]
+LatticeA = Annotated[float | None, typer.Option("--a", metavar="Å", help="Lattice constant a of a prototype, Å.")]
+LatticeC = Annotated[
+    float | None,
+    typer.Option("--c", metavar="Å", help="Lattice constant c of a tetragonal or hexagonal prototype, Å."),
+]
+FreeX = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--x",
+        metavar="X",
+        help="Free positional parameter of a prototype: X, or NAME=X where it has several (repeatable).",
+        show_default=False,
+    ),
+]
 Symprec = Annotated[float, typer.Option("--symprec", metavar="Å", help="Symmetry tolerance, Å.")]
 Json = Annotated[bool, typer.Option("--json", help="Print the result as JSON (schema in the README).")]
+# Read by _Command.invoke, which writes faces with three indices within the command; the
+# commands themselves ignore the value.
+ThreeIndex = Annotated[
+    bool,
+    typer.Option(
+        "--three-index",
+        help="Write faces of hexagonal and trigonal lattices (h k l) and directions [u v w], not (h k i l) and "
+        "[u v t w] (JSON has both).",
+    ),
+]
 Wide = Annotated[bool, typer.Option("--wide", help="Show the less-used columns too.")]
 MaxIndex = Annotated[int, typer.Option("--max-index", metavar="N", help="Largest |h|, |k|, |l| (1 to 12).")]
+
+
+@dataclass(frozen=True)
+class FaceArgument:
+    """A face as given on the command line: three Miller indices, or four Miller-Bravais ones (i checked)."""
+
+    values: tuple[int, ...]
+
+
+def _face_argument(text: Any) -> FaceArgument:
+    """Parse '1 1 0' or '1 0 -1 0' (the values of a face option, joined)."""
+    from termination.errors import PlaneError
+    from termination.surface.miller import from_four_index
+
+    if isinstance(text, FaceArgument):
+        return text
+    parts = str(text).split()
+    if len(parts) not in (3, 4) or not all(_INTEGER.fullmatch(v) for v in parts):
+        raise typer.BadParameter(f"give three integers H K L, or four H K I L, got {str(text) or 'none'!r}")
+    values = tuple(int(v) for v in parts)
+    if len(values) == 4:
+        try:
+            from_four_index(values, "face")
+        except PlaneError as exc:
+            raise typer.BadParameter(str(exc)) from None
+    return FaceArgument(values)
+
+
 Plane = Annotated[
-    tuple[int, int, int] | None,
-    typer.Option("--plane", metavar="H K L", help="The face, three integers.", show_default=False),
+    FaceArgument | None,
+    typer.Option(
+        "--plane",
+        metavar="H K [I] L",
+        parser=_face_argument,
+        help="The face: three integers, or four (Miller-Bravais) for hexagonal and trigonal lattices.",
+        show_default=False,
+    ),
 ]
 Mount = Annotated[
-    tuple[int, int, int] | None,
-    typer.Option("--mount", metavar="H K L", help="Face the crystal was mounted on.", show_default=False),
+    FaceArgument | None,
+    typer.Option(
+        "--mount",
+        metavar="H K [I] L",
+        parser=_face_argument,
+        help="Face the crystal was mounted on: three integers, or four for hexagonal and trigonal lattices.",
+        show_default=False,
+    ),
 ]
 LayerTol = Annotated[
     float, typer.Option("--layer-tol", metavar="Å", help="Atoms within this height form one layer, Å.")
@@ -265,16 +376,21 @@ def render(command: str, record: Any, json_out: bool, wide: bool = False) -> Non
         Console(highlight=False, emoji=False, width=width).print(table)
 
 
-def _triple(values: tuple[int, int, int] | None) -> tuple[int, int, int] | None:
-    return None if values is None else (int(values[0]), int(values[1]), int(values[2]))
+def _face(face: FaceArgument | None, crystal: Any, option: str) -> tuple[int, int, int] | None:
+    """A face option as (h k l) of the crystal's conventional cell; four indices only for hexagonal axes."""
+    from termination.surface.faces import face_index
+
+    return None if face is None else face_index(crystal, face.values, option)
 
 
-def _require_plane(plane: tuple[int, int, int] | None) -> tuple[int, int, int]:
+def _require_plane(plane: FaceArgument | None, crystal: Any) -> tuple[int, int, int]:
     from termination.errors import PlaneError
 
     if plane is None:
-        raise PlaneError("--plane H K L is required")
-    return (int(plane[0]), int(plane[1]), int(plane[2]))
+        raise PlaneError("--plane H K L (or H K I L) is required")
+    found = _face(plane, crystal, "--plane")
+    assert found is not None
+    return found
 
 
 def _inputs(structure: str | None) -> tuple[str, ...]:
@@ -284,10 +400,40 @@ def _inputs(structure: str | None) -> tuple[str, ...]:
     return (structure,) if structure is not None and os.path.exists(structure) else ()
 
 
-def _load(structure: str, a: float | None, x: float | None, symprec: float) -> Any:
+def _free_parameters(items: list[str] | None) -> tuple[float | None, dict[str, float]]:
+    """--x values: one bare number, or NAME=VALUE pairs."""
+    from termination.errors import StructureError
+
+    bare: float | None = None
+    named: dict[str, float] = {}
+    for item in items or ():
+        name, sep, value = item.partition("=")
+        if not sep:
+            if bare is not None or len(items or ()) > 1:
+                raise StructureError(f"--x {item!r}: with several free parameters write NAME=VALUE for each")
+            bare = _number(item, "--x")
+        else:
+            if not name.strip():
+                raise StructureError(f"--x {item!r}: the parameter name is missing (NAME=VALUE)")
+            named[name.strip()] = _number(value, f"--x {name.strip()}")
+    return bare, named
+
+
+def _number(text: str, option: str) -> float:
+    from termination.errors import StructureError
+    from termination.quantities import parse_number
+
+    try:
+        return parse_number(text)
+    except ValueError as exc:
+        raise StructureError(f"{option}: {exc}") from None
+
+
+def _load(structure: str, a: float | None, x: list[str] | None, symprec: float, c: float | None = None) -> Any:
     from termination.structures import load_structure
 
-    return load_structure(structure, a=a, x=x, symprec=symprec)
+    bare, named = _free_parameters(x)
+    return load_structure(structure, a=a, x=bare, symprec=symprec, c=c, parameters=named or None)
 
 
 def _charges(items: list[str] | None) -> dict[str, float] | None:
@@ -441,6 +587,7 @@ def planes(
         ),
     ] = None,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     plot: Plot = None,
@@ -448,14 +595,19 @@ def planes(
     force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Symmetry-distinct faces: spacing d, tilt to the mount face, mesh, terminations, polarity."""
     from termination.reports import planes_report
 
     outputs = _Outputs("planes", locals(), plot, plot_format, force, inputs=_inputs(structure))
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
     report = planes_report(
-        crystal, max_index=max_index, mount=_triple(mount), charges=_charges(charge), tilt_window=tilt_window
+        crystal,
+        max_index=max_index,
+        mount=_face(mount, crystal, "--mount"),
+        charges=_charges(charge),
+        tilt_window=tilt_window,
     )
     if outputs.wanted:
         from termination.figures.commands import planes_figures
@@ -477,6 +629,7 @@ def terminations(
         int, typer.Option("--max-multiple", metavar="N", help="Steps listed up to N extra periods d (0 to 50).")
     ] = MAX_MULTIPLE,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     plot: Plot = None,
@@ -484,14 +637,15 @@ def terminations(
     force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Atomic layers, terminations and allowed step heights of one face."""
     from termination.reports import terminations_report
 
     outputs = _Outputs("terminations", locals(), plot, plot_format, force, inputs=_inputs(structure))
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio, max_multiple)
-    report = terminations_report(crystal, _require_plane(plane), **rules)
+    report = terminations_report(crystal, _require_plane(plane, crystal), **rules)
     if outputs.wanted:
         from termination.figures.commands import terminations_figures
 
@@ -520,6 +674,7 @@ def polarity(
     bond_cutoff: BondCutoff = None,
     unit_ratio: UnitRatio = UNIT_RATIO,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     plot: Plot = None,
@@ -527,16 +682,17 @@ def polarity(
     force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Layer charges, dipole, Tasker type, compensation and reconstruction cells per termination."""
     from termination.reports import polarity_report
 
     outputs = _Outputs("polarity", locals(), plot, plot_format, force, inputs=_inputs(structure))
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     report = polarity_report(
         crystal,
-        plane=_triple(plane),
+        plane=_face(plane, crystal, "--plane"),
         max_index=max_index,
         charges=_charges(charge),
         max_cell=max_cell,
@@ -578,6 +734,7 @@ def corrugation(
     cell: Cell = None,
     site_weight: SiteWeight = None,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     plot: Plot = None,
@@ -585,6 +742,7 @@ def corrugation(
     force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Fourier spots, apparent lattice, maxima and rows a topograph of each termination should show."""
     from termination.algebra.lattice2d import check_cells
@@ -603,10 +761,10 @@ def corrugation(
         max_depth_angstrom=depth,
         threshold=threshold,
     )
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
     report = corrugation_report(
         crystal,
-        _require_plane(plane),
+        _require_plane(plane, crystal),
         termination,
         visibility=visibility,
         reconstructions=reconstructions,
@@ -727,6 +885,7 @@ def match(
     cell: Cell = None,
     top: Annotated[int, typer.Option("--top", metavar="N", help="Show this many candidates.")] = 10,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     plot: Plot = None,
@@ -735,6 +894,7 @@ def match(
     force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
     typed = dict(locals())  # the arguments as parsed, before --demo fills in its own
@@ -762,7 +922,7 @@ def match(
             raise MeasurementError(f"no step heights in {steps}")
         heights += from_file
     given = Measurement(
-        mount=_triple(mount),
+        mount=None if mount is None else mount.values,
         max_index=max_index,
         tilt=None if tilt is None else parse_value(tilt),
         row_angle=None if row_angle is None else parse_value(row_angle),
@@ -799,7 +959,7 @@ def match(
     merged = merge(base, given)
     cells = check_cells(merged.cells)
     visibility = measurement_visibility(merged)
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
     report = run_match(
@@ -938,6 +1098,7 @@ def image(
     report_file: Report = None,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """Tilt, lattice and step heights of a topograph (height map)."""
     from termination.reports import image_report
@@ -951,7 +1112,7 @@ def image(
             pixel_size=pixel_size,
             z_unit=z_unit,
             channel=channel,
-            mount=_triple(mount),
+            mount=None if mount is None else mount.values,
             out=out,
             steps_out=steps_out,
             force=force,
@@ -1195,10 +1356,12 @@ def slab(
     bond_cutoff: BondCutoff = None,
     unit_ratio: UnitRatio = UNIT_RATIO,
     a: LatticeA = None,
+    c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
     json_out: Json = False,
     wide: Wide = False,
+    three_index: ThreeIndex = False,
 ) -> None:
     """A slab of one termination (and reconstruction cell) for a calculation, normal along z."""
     import os
@@ -1208,8 +1371,8 @@ def slab(
 
     if termination is None:
         raise StructureError("--termination LABEL is required (see `termination terminations`)")
-    hkl = _require_plane(plane)
-    crystal = _load(structure, a, x, symprec)
+    crystal = _load(structure, a, x, symprec, c)
+    hkl = _require_plane(plane, crystal)
     report = slab_report(
         crystal,
         hkl,

@@ -5,14 +5,24 @@ is installed as :mod:`termination.structures`.
 """
 
 from .loading import bundled, load_structure, read_structure_file
-from .prototypes import KNOWN_LATTICE_CONSTANTS, PROTOTYPES, Prototype, build_prototype, parse_spec
+from .prototypes import (
+    KNOWN_LATTICE_CONSTANTS,
+    PROTOTYPES,
+    TABULATED,
+    Prototype,
+    build_prototype,
+    find_prototype,
+    parse_spec,
+)
 
 __all__ = [
     "KNOWN_LATTICE_CONSTANTS",
     "PROTOTYPES",
+    "TABULATED",
     "Prototype",
     "build_prototype",
     "bundled",
+    "find_prototype",
     "load_structure",
     "parse_spec",
     "read_structure_file",

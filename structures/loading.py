@@ -1,9 +1,9 @@
-"""Read bulk structures from files (CIF and what ASE reads) or prototype specs."""
+"""Read bulk structures from files (CIF, POSCAR, extended XYZ and what ASE reads) or prototype specs."""
 
 from __future__ import annotations
 
 import os
-import warnings
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -12,8 +12,12 @@ from termination.arrays import FloatArray
 from termination.bulk.crystal import Crystal, build_crystal
 from termination.defaults import SYMPREC_ANGSTROM
 from termination.errors import StructureError
+from termination.inputs import MAX_TEXT_BYTES, read_input_bytes
 
-from .prototypes import PROTOTYPES, build_prototype
+from .cif import check_declared_symmetry, read_cif
+from .extxyz import read_extxyz
+from .poscar import is_poscar_name, read_poscar
+from .prototypes import build_prototype, find_prototype
 
 __all__ = ["bundled", "load_structure", "read_structure_file"]
 
@@ -32,57 +36,45 @@ def bundled(name: str) -> str:
 def read_structure_file(path: str | os.PathLike[str], symprec: float = SYMPREC_ANGSTROM) -> Crystal:
     """Crystal from a structure file.
 
-    CIF files are read with pymatgen (oxidation states, when the CIF gives
-    them, become the crystal's charges); every other format with ``ase.io``.
-    Partial occupancy is rejected.  The file is only read, never written.
+    CIF files are read with pymatgen and checked field by field
+    (:mod:`termination.structures.cif`; oxidation states, when the CIF
+    gives them, become the crystal's charges); POSCAR/CONTCAR files and
+    extended XYZ files by the readers of this package
+    (:mod:`termination.structures.poscar`, :mod:`termination.structures.extxyz`),
+    which import neither ASE nor scipy; every other format with ``ase.io``.
+    Only a regular file of at most ``MAX_TEXT_BYTES`` is read (a FIFO or a
+    device would block), and it is never written.  Partial occupancy is
+    rejected.
     """
     name = os.fspath(path)
-    if not os.path.isfile(name):
+    if not os.path.exists(name):
         raise StructureError(f"no such structure file: {name}")
     base = os.path.basename(name)
-    if name.lower().endswith((".cif", ".mcif")):
-        lattice, positions, species, charges = _read_cif(name)
+    lower = base.lower()
+    charges: FloatArray | None = None
+    declared: int | None = None
+    if lower.endswith((".cif", ".mcif")):
+        lattice, positions, species, charges, declared = read_cif(_text(name), base)
+    elif is_poscar_name(base):
+        lattice, positions, species = read_poscar(_text(name), base)
+    elif lower.endswith((".xyz", ".extxyz")):
+        lattice, positions, species = read_extxyz(_text(name), base)
     else:
+        read_input_bytes(name, what="structure file", error=StructureError, max_bytes=MAX_TEXT_BYTES)
         lattice, positions, species, charges = _read_with_ase(name)
-    return build_crystal(lattice, positions, species, charges, name=None, symprec=symprec, origin=base)
+    crystal = build_crystal(lattice, positions, species, charges, name=None, symprec=symprec, origin=base)
+    check_declared_symmetry(crystal, declared, base)
+    return crystal
 
 
-def _read_cif(path: str) -> _Cell:
-    """Lattice, positions, species and oxidation states (if given) of a CIF's first structure, via pymatgen."""
-    base = os.path.basename(path)
+def _text(path: str) -> str:
+    """The text of a structure file: a regular file of at most MAX_TEXT_BYTES, UTF-8 (Latin-1 tolerated)."""
+    data = read_input_bytes(path, what="structure file", error=StructureError, max_bytes=MAX_TEXT_BYTES)
     try:
-        from pymatgen.io.cif import CifParser
-
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            parser = CifParser(path, occupancy_tolerance=1.0)
-            structures = parser.parse_structures(primitive=False)
-    except Exception as exc:  # pymatgen raises many types for malformed files
-        raise StructureError(
-            f"cannot read CIF {base}: {str(exc).splitlines()[0] if str(exc) else type(exc).__name__}"
-        ) from None
-    if not structures:
-        raise StructureError(f"cannot read CIF {base}: no structure found")
-    s = structures[0]
-    if not s.is_ordered:
-        site = next(site for site in s if not site.is_ordered)
-        raise StructureError(
-            f"{base}: partial occupancy ({site.species_string} at {np.round(site.frac_coords, 4).tolist()}) "
-            "is not supported; give an ordered structure"
-        )
-    species: list[str] = []
-    charges: list[float | None] = []
-    for site in s:
-        sp = site.specie
-        species.append(str(sp.symbol))
-        charges.append(getattr(sp, "oxi_state", None))
-    has_charges = all(q is not None for q in charges) and any(q for q in charges)
-    return (
-        np.asarray(s.lattice.matrix, dtype=np.float64),
-        np.asarray(s.frac_coords, dtype=np.float64),
-        species,
-        (np.array(charges, dtype=float) if has_charges else None),
-    )
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        # Older CIFs carry Latin-1 author names; the numbers and symbols are ASCII either way.
+        return data.decode("latin-1")
 
 
 def _read_with_ase(path: str) -> _Cell:
@@ -108,7 +100,13 @@ def _read_with_ase(path: str) -> _Cell:
 
 
 def load_structure(
-    spec: str | os.PathLike[str], a: float | None = None, x: float | None = None, symprec: float = SYMPREC_ANGSTROM
+    spec: str | os.PathLike[str],
+    a: float | None = None,
+    x: float | None = None,
+    symprec: float = SYMPREC_ANGSTROM,
+    *,
+    c: float | None = None,
+    parameters: Mapping[str, float] | None = None,
 ) -> Crystal:
     """Crystal from a file path or a prototype spec ``NAME:EL1,EL2,...``.
 
@@ -116,19 +114,20 @@ def load_structure(
     ----------
     spec : str
         Existing file, or prototype spec (``termination structures`` lists them).
-    a : float, optional
-        Lattice constant (Å) for prototypes.
+    a, c : float, optional
+        Lattice constants (Å) for prototypes.
     x : float, optional
         Free positional parameter for prototypes that have one.
     symprec : float
         Symmetry tolerance, Å.
+    parameters : mapping, optional
+        Free positional parameters of a prototype by name.
     """
     text = os.fspath(spec) if isinstance(spec, os.PathLike) else str(spec)
     if os.path.exists(text):
-        if a is not None or x is not None:
-            raise StructureError("--a and --x apply to prototypes only, not to a structure file")
+        if a is not None or c is not None or x is not None or parameters:
+            raise StructureError("--a, --c and --x apply to prototypes only, not to a structure file")
         return read_structure_file(text, symprec=symprec)
-    name = text.partition(":")[0].strip().lower()
-    if ":" in text or name in PROTOTYPES:
-        return build_prototype(text, a=a, x=x, symprec=symprec)
+    if ":" in text or find_prototype(text.partition(":")[0]) is not None:
+        return build_prototype(text, a=a, x=x, symprec=symprec, c=c, parameters=parameters)
     raise StructureError(f"{text!r} is neither a structure file nor a prototype spec such as rocksalt:Na,Cl")

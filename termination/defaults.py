@@ -17,6 +17,10 @@ SYMPREC_ANGSTROM = 1e-3
 MIN_DISTANCE_ANGSTROM = 0.5
 #: Lattice vectors longer than this are rejected as impossible for a crystal, Å.
 MAX_LENGTH_ANGSTROM = 1000.0
+#: Largest number of atoms of an input cell, and of its conventional standard cell.
+MAX_ATOMS = 5000
+#: Largest number of atom pairs a neighbour search may return (about 70 bytes each).
+MAX_NEIGHBOUR_PAIRS = 5_000_000
 
 # --------------------------------------------------------------------------- faces
 
@@ -29,7 +33,8 @@ MAX_INDEX_LIMIT = 12
 
 #: Pairs closer than this factor times the sum of covalent radii are bonded.
 BOND_FACTOR = 1.15
-#: First-shell width relative to each atom's nearest-neighbour distance.
+#: First-shell window relative to each atom's nearest-neighbour distance: the shell
+#: ends at the largest gap in the sorted neighbour distances within it.
 SHELL_FACTOR = 1.2
 #: Atoms whose heights along the face normal differ by less than this form one layer, Å.
 LAYER_TOL_ANGSTROM = 0.1

@@ -37,9 +37,9 @@ from termination.surface.corrugation import (
     termination_corrugation,
 )
 from termination.surface.domains import face_point_group
-from termination.surface.faces import Mesh, distinct_faces, face_geometry
+from termination.surface.faces import Mesh, distinct_faces, face_geometry, face_index
 from termination.surface.faces import tilt_window as window_variants
-from termination.surface.miller import check_hkl, hkl_text
+from termination.surface.miller import hkl_text
 from termination.surface.polarity import (
     FacePolarity,
     TaskerType,
@@ -96,16 +96,25 @@ __all__ = [
 
 @dataclass(frozen=True)
 class PrototypeRow:
-    """One built-in prototype: its spec name, the roles of its elements, space group and sites."""
+    """One built-in prototype: its spec name, the roles of its elements, crystal system, space group and sites.
+
+    ``lattice_constants`` names the lengths it takes ('a' or 'a, c');
+    ``parameters`` are its free positional parameters (fractional) with their
+    generic defaults; ``tabulated`` lists the compounds whose lattice
+    constants and free parameters are built in.
+    """
 
     name: str
     elements: tuple[str, ...]
+    crystal_system: str
     spacegroup: str
     spacegroup_number: int
     sites: str
-    free_parameter_x: float | None
+    lattice_constants: str
+    parameters: dict[str, float]
     example: str
     description: str
+    tabulated: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -119,19 +128,22 @@ class StructuresReport(Tabular):
 
 def structures_report() -> StructuresReport:
     """The built-in prototypes (:data:`termination.structures.PROTOTYPES`)."""
-    from termination.structures import PROTOTYPES
+    from termination.structures import PROTOTYPES, TABULATED
 
     return StructuresReport(
         tuple(
             PrototypeRow(
                 name=p.name,
                 elements=tuple(p.roles),
+                crystal_system=p.crystal_system,
                 spacegroup=p.spacegroup,
                 spacegroup_number=p.number,
                 sites=p.wyckoff,
-                free_parameter_x=p.default_x,
+                lattice_constants="a" if p.lattice == "cubic" else "a, c",
+                parameters={q.name: q.default for q in p.parameters},
                 example=p.example,
                 description=p.description,
+                tabulated=tuple(",".join(els) for (name, els) in TABULATED if name == p.name),
             )
             for p in PROTOTYPES.values()
         )
@@ -240,7 +252,7 @@ def planes_report(
                 polar=None if assignment is None else face_is_polar(ft),
             )
         )
-    m = None if mount is None else check_hkl(mount, "mount")
+    m = None if mount is None else face_index(crystal, mount, "mount")
     window: tuple[WindowRow, ...] = ()
     bounds = None
     if tilt_window is not None:
@@ -294,6 +306,7 @@ class TerminationEntry:
     weighted_bonds_per_nm2: float = 0.0
     equivalent_to: str | None = None
     relation: str | None = None
+    van_der_waals: bool = False
     apparent_lattice: ApparentLattice | None = None
     lattice_type: str = ""
 
@@ -310,6 +323,7 @@ class TerminationEntry:
             weighted_bonds_per_nm2=t.weighted_bonds_per_nm2,
             equivalent_to=t.equivalent_to,
             relation=t.relation,
+            van_der_waals=t.van_der_waals,
             apparent_lattice=lattice,
             lattice_type=lattice_type(lattice),
         )
@@ -409,7 +423,7 @@ def polarity_report(
     charged, assignment = with_formal_charges(crystal, charges, use_pymatgen=use_pymatgen, required=True)
     assert assignment is not None  # required=True raises instead
     if plane is not None:
-        faces = (face_geometry(charged, check_hkl(plane)),)
+        faces = (face_geometry(charged, face_index(charged, plane)),)
     else:
         faces = distinct_faces(charged, max_index=MAX_INDEX if max_index is None else max_index)
     rows = []
@@ -1091,7 +1105,7 @@ def slab_report(
     wants_cell = cell is not None or pattern is not None
     max_cell = check_max_cell(max_cell)
     charged, assignment = with_formal_charges(crystal, charges, use_pymatgen=wants_cell, required=wants_cell)
-    ft = face_terminations(charged, check_hkl(hkl), **dict(termination_options or {}))
+    ft = face_terminations(charged, face_index(charged, hkl), **dict(termination_options or {}))
     t = ft.termination(termination)
     notes = []
     rec = None

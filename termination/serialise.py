@@ -11,7 +11,10 @@ Conventions shared by every command:
 - a field's key is its name with the suffix of its unit (``d_angstrom``,
   ``tilt_deg``; :mod:`termination.units`);
 - a face is ``hkl`` ([h, k, l]), a list of faces ``faces``, a termination an
-  object with ``id`` and ``label``;
+  object with ``id`` and ``label``; in a crystal with hexagonal axes (hexagonal
+  and trigonal) every face key is followed by its Miller-Bravais form
+  (``hkil``: [h, k, i, l]; ``mount_hkil``, ``tilt_variant_hkil``) and every
+  direction key by its four-index form (``tilt_axis_uvtw``);
 - the angle gamma of a 2D lattice is the obtuse one, 90° to 120°;
 - floats are written as computed; infinite or undefined values are null.
 """
@@ -33,13 +36,37 @@ import numpy as np
 
 from termination.units import SUFFIXES, json_key
 
-__all__ = ["SCHEMA_VERSION", "json_document", "json_schema", "shipped_schema", "to_jsonable", "write_schemas"]
+__all__ = [
+    "DIRECTION_KEYS",
+    "FACE_KEYS",
+    "SCHEMA_VERSION",
+    "json_document",
+    "json_schema",
+    "shipped_schema",
+    "to_jsonable",
+    "write_schemas",
+]
+
+#: Fields that hold a face (h k l), and the key of its Miller-Bravais form (h k i l) added in hexagonal axes.
+FACE_KEYS = {"hkl": "hkil", "mount": "mount_hkil", "tilt_variant": "tilt_variant_hkil"}
+#: Fields that hold a direction [u v w], and the key of its four-index form [u v t w].
+DIRECTION_KEYS = {"tilt_axis": "tilt_axis_uvtw"}
+
+
+def _four_index(name: str, value: Any) -> Any:
+    """The four-index form of a face or direction field's value (None when it holds none)."""
+    from termination.surface.miller import to_four_index, uvtw
+
+    if value is None or len(value) != 3:
+        return None
+    return list(to_four_index(value) if name in FACE_KEYS else uvtw(value))
+
 
 #: Version of the JSON output of every command; the major number changes when a key changes meaning.
 SCHEMA_VERSION = "2.0"
 
 
-def to_jsonable(obj: Any) -> Any:
+def to_jsonable(obj: Any, hexagonal: bool = False) -> Any:
     """Plain JSON-ready form of a result: dataclasses become dicts, arrays lists.
 
     A field's JSON key is its name with the suffix of its unit
@@ -47,7 +74,9 @@ def to_jsonable(obj: Any) -> Any:
     name is not a valid identifier (``from``).  Fields declared with
     ``repr=False`` are internal and left out; a tuple of pairs marked
     ``metadata["mapping"]`` becomes an object.  Non-finite floats become
-    None, so the output is strict JSON.
+    None, so the output is strict JSON.  With ``hexagonal`` (a crystal with
+    hexagonal axes), each face and direction field (:data:`FACE_KEYS`,
+    :data:`DIRECTION_KEYS`) is followed by its four-index form.
     """
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         out = {}
@@ -57,14 +86,16 @@ def to_jsonable(obj: Any) -> Any:
             value = getattr(obj, f.name)
             if f.metadata.get("mapping") and value is not None:
                 value = dict(value)
-            out[json_key(f.name, f.metadata)] = to_jsonable(value)
+            out[json_key(f.name, f.metadata)] = to_jsonable(value, hexagonal)
+            if hexagonal and f.name in FACE_KEYS | DIRECTION_KEYS:
+                out[(FACE_KEYS | DIRECTION_KEYS)[f.name]] = _four_index(f.name, value)
         return out
     if isinstance(obj, Mapping):
-        return {str(k): to_jsonable(v) for k, v in obj.items()}
+        return {str(k): to_jsonable(v, hexagonal) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [to_jsonable(v) for v in obj]
+        return [to_jsonable(v, hexagonal) for v in obj]
     if isinstance(obj, np.ndarray):
-        return to_jsonable(obj.tolist())
+        return to_jsonable(obj.tolist(), hexagonal)
     if isinstance(obj, (bool, np.bool_)):
         return bool(obj)
     if isinstance(obj, np.integer):
@@ -76,8 +107,12 @@ def to_jsonable(obj: Any) -> Any:
 
 
 def json_document(command: str, record: Any) -> dict[str, Any]:
-    """The ``--json`` output of ``command``: schema version, command name, then the record's fields."""
-    return {"schema_version": SCHEMA_VERSION, "command": command, **to_jsonable(record)}
+    """The ``--json`` output of ``command``: schema version, command name, then the record's fields.
+
+    Faces get their Miller-Bravais form too when the record's structure has hexagonal axes.
+    """
+    hexagonal = bool(getattr(getattr(record, "structure", None), "hexagonal_axes", False))
+    return {"schema_version": SCHEMA_VERSION, "command": command, **to_jsonable(record, hexagonal)}
 
 
 # --------------------------------------------------------------------------- schemas
@@ -127,6 +162,7 @@ def _schema_of(tp: Any, defs: dict[str, Any], ns: dict[str, Any]) -> dict[str, A
 def _dataclass_schema(cls: type, defs: dict[str, Any], ns: dict[str, Any]) -> dict[str, Any]:
     hints = typing.get_type_hints(cls, {**ns, **vars(sys.modules[cls.__module__])})
     properties: dict[str, Any] = {}
+    optional: list[str] = []
     for f in dataclasses.fields(cls):
         if not f.repr:
             continue
@@ -139,8 +175,16 @@ def _dataclass_schema(cls: type, defs: dict[str, Any], ns: dict[str, Any]) -> di
         if isinstance(unit, str):
             schema = {**schema, "description": SUFFIXES[unit][1]}
         properties[json_key(f.name, f.metadata)] = schema
+        if f.name in FACE_KEYS | DIRECTION_KEYS:
+            optional.append((FACE_KEYS | DIRECTION_KEYS)[f.name])
+            four = {"type": "array", "items": {"type": "integer"}, "minItems": 4, "maxItems": 4}
+            properties[optional[-1]] = {
+                "anyOf": [four, {"type": "null"}],
+                "description": "four-index (Miller-Bravais) form, present in hexagonal axes",
+            }
     doc = (cls.__doc__ or "").strip().splitlines()
-    out: dict[str, Any] = {"type": "object", "properties": properties, "required": list(properties)}
+    required = [k for k in properties if k not in optional]
+    out: dict[str, Any] = {"type": "object", "properties": properties, "required": required}
     if doc:
         out["description"] = doc[0]
     out["additionalProperties"] = False

@@ -16,7 +16,7 @@ from typing import Any, Literal
 
 from termination.bulk.elements import composition_label
 from termination.bulk.summary import StructureSummary
-from termination.surface.miller import hkl_text, uvw_text
+from termination.surface.miller import direction_text, face_text
 
 __all__ = [
     "HYPOTHESIS_NOTE",
@@ -129,6 +129,11 @@ def _matrix(m: Sequence[Sequence[int]]) -> str:
     return f"({m[0][0]} {m[0][1]} / {m[1][0]} {m[1][1]})"
 
 
+def _face(r: Any, hkl: Sequence[int]) -> str:
+    """A face of the report's crystal as practitioners write it: (h k i l) in hexagonal axes, else (h k l)."""
+    return face_text(hkl, r.structure.hexagonal_axes)
+
+
 def _structure(s: StructureSummary) -> list[Block]:
     out: list[Block] = [
         Text(
@@ -141,6 +146,10 @@ def _structure(s: StructureSummary) -> list[Block]:
     ]
     if s.note:
         out.append(Text(f"Note: {s.note}", "dim"))
+    if s.absolute_structure:
+        out.append(Text(f"Note: {s.absolute_structure}.", "dim"))
+    if s.hexagonal_axes:
+        out.append(Text("Hexagonal axes: faces (h k i l), directions [u v t w]; --three-index: (h k l).", "dim"))
     return out
 
 
@@ -154,21 +163,35 @@ def _caution(s: StructureSummary) -> list[Block]:
 def _structures(r: Any, wide: bool) -> list[Block]:
     cols: list[str | tuple[str, str]] = [
         ("name", "left"),
-        ("elements", "left"),
+        ("system", "left"),
         ("space group", "left"),
         ("example", "left"),
     ]
     if wide:
-        cols += [("Wyckoff sites", "left"), "x"]
+        cols += [("elements", "left"), ("Wyckoff sites", "left"), ("free parameters", "left"), ("tabulated", "left")]
     rows = []
     for p in r.prototypes:
-        row = [p.name, ",".join(p.elements), f"{p.spacegroup} ({p.spacegroup_number})", p.example]
+        row = [p.name, p.crystal_system, f"{p.spacegroup} ({p.spacegroup_number})", p.example]
         if wide:
-            row += [p.sites, "" if p.free_parameter_x is None else f"{p.free_parameter_x:g}"]
+            row += [
+                ",".join(p.elements),
+                p.sites,
+                " ".join(f"{k}={v:g}" for k, v in p.parameters.items()) or "—",
+                " ".join(p.tabulated) or "—",
+            ]
         rows.append(row)
-    out: list[Block] = [_table("Built-in prototypes: NAME:EL1,EL2,... [--a Å] [--x X]", cols, rows)]
+    out: list[Block] = [_table("Built-in prototypes: NAME:EL1,EL2,... [--a Å] [--c Å] [--x X]", cols, rows)]
+    out.append(
+        Text(
+            "Tabulated compounds need no --a or --c (room-temperature values with their sources); "
+            "--x NAME=VALUE sets a free parameter.",
+            "dim",
+        )
+    )
     if not wide:
-        out.append(Text("--wide adds the Wyckoff sites and free parameters; --json everything.", "dim"))
+        out.append(
+            Text("--wide adds the Wyckoff sites, free parameters and tabulated compounds; --json everything.", "dim")
+        )
     return out
 
 
@@ -191,11 +214,14 @@ def _planes(r: Any, wide: bool) -> list[Block]:
         return out + _window(r, wide)
     rows = []
     for f in r.faces:
-        row = [hkl_text(f.hkl)]
+        row = [_face(r, f.hkl)]
         if mount:
             row += [f"{f.tilt:.2f}"]
             if wide:
-                row += [hkl_text(f.tilt_variant), "—" if f.tilt_axis is None else uvw_text(f.tilt_axis)]
+                row += [
+                    _face(r, f.tilt_variant),
+                    "—" if f.tilt_axis is None else direction_text(f.tilt_axis, r.structure.hexagonal_axes),
+                ]
         row += [f"{f.d:.4f}"]
         if wide:
             row += [str(f.multiplicity)]
@@ -211,7 +237,7 @@ def _planes(r: Any, wide: bool) -> list[Block]:
         rows.append(row)
     title = f"Faces up to index {r.max_index}"
     if mount:
-        title += f", tilt to the mount {hkl_text(r.mount)}"
+        title += f", tilt to the mount {_face(r, r.mount)}"
     out.append(_table(title, cols, rows))
     out.append(
         Text("terms: terminations; step: smallest step height; polar: every termination Tasker type III.", "dim")
@@ -235,13 +261,13 @@ def _terminations(r: Any, wide: bool) -> list[Block]:
     m = r.mesh
     out.append(
         Text(
-            f"Face {hkl_text(r.hkl)}: d = {r.d:.4f} Å, mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°, "
+            f"Face {_face(r, r.hkl)}: d = {r.d:.4f} Å, mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°, "
             f"{m.area:.3f} Å² per surface cell"
         )
     )
     out.append(
         _table(
-            f"Layers of one period (tolerance {r.layer_tol_angstrom:g} Å)",
+            f"Layers of one period, depth below the top layer of T1 (tolerance {r.layer_tol_angstrom:g} Å)",
             ["layer", "depth (Å)", ("atoms per cell", "left")],
             [[str(i), f"{la.depth:.4f}", composition_label(la.composition)] for i, la in enumerate(r.layers)],
         )
@@ -259,6 +285,15 @@ def _terminations(r: Any, wide: bool) -> list[Block]:
         row += [eq, lattice_text(t.apparent_lattice)]
         rows.append(row)
     out.append(_table("Terminations (top layer or unit), cheapest cut first", cols, rows))
+    vdw = [f"{t.id} ({t.label})" for t in r.terminations if t.van_der_waals]
+    if vdw:
+        out.append(
+            Text(
+                f"Van der Waals layer{'s' if len(vdw) > 1 else ''}: {', '.join(vdw)}: no bond crosses the cuts "
+                "above and below, the cleavage plane of this layered crystal.",
+                "bold",
+            )
+        )
     out.append(
         Text(
             "Apparent lattice: what a topograph shows in the default corrugation model (all species alike, "
@@ -323,11 +358,11 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
                 (cells or "—") if t.tasker_type == "III" else "—",
             ]
             rows.append(row)
-        title = f"{hkl_text(f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, {'polar' if f.polar else 'not polar'}"
+        title = f"{_face(r, f.hkl)}: d = {f.d:.4f} Å, {f.area:.3f} Å² per cell, {'polar' if f.polar else 'not polar'}"
         out.append(_table(title, cols, rows))
         for t in f.terminations:
             if t.note:
-                out.append(Text(f"{hkl_text(f.hkl)} {t.id} {t.label}: {t.note}", "dim"))
+                out.append(Text(f"{_face(r, f.hkl)} {t.id} {t.label}: {t.note}", "dim"))
         for t in f.terminations:
             if not t.reconstructions:
                 continue
@@ -340,7 +375,7 @@ def _polarity(r: Any, wide: bool) -> list[Block]:
             rcols: list[str | tuple[str, str]] = [("cell", "left"), "matrix", ("changed", "left"), "domains"]
             rcols += ["patterns", "eV/cell"] + ([] if exact else ["residual (e)"])
             what = "cells that" if exact else "nearest cells to"
-            out.append(_table(f"{hkl_text(f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", rcols, rrows))
+            out.append(_table(f"{_face(r, f.hkl)} {t.id} {t.label}: {what} {compensation_text(t)}", rcols, rrows))
             if len(t.reconstructions) > shown:
                 out.append(
                     Text(f"{len(t.reconstructions) - shown} more cells up to index {r.max_cell} in --json.", "dim")
@@ -379,7 +414,7 @@ def _corrugation(r: Any, wide: bool) -> list[Block]:
     sites = ", ".join(f"{key}={w:g}" for key, w in v.site_weights)
     if sites:
         weights = f"{weights}, {sites}" if weights else sites
-    out.append(Text(f"Face {hkl_text(r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
+    out.append(Text(f"Face {_face(r, r.hkl)}: mesh {m.a:.4f} × {m.b:.4f} Å, γ = {m.gamma:.2f}°."))
     out.append(
         Text(
             f"Imaging {seen}{'; weights ' + weights if weights else ''}; λ = {v.decay_length_angstrom:g} Å; "
@@ -498,13 +533,13 @@ def _match(r: Any, wide: bool) -> list[Block]:
     e = r.measurement
     parts = []
     if r.mount:
-        parts.append(f"mount {hkl_text(r.mount)}")
+        parts.append(f"mount {_face(r, r.mount)}")
     if e.tilt:
-        parts.append(f"tilt {e.tilt.value:g}±{e.tilt.sigma:g}°")
+        parts.append(f"tilt {e.tilt.value:g}±{e.tilt.sigma:.2g}°")
     if e.spacings:
-        parts.append("spacings " + ", ".join(f"{v.value:g}±{v.sigma:g}" for v in e.spacings) + " Å")
+        parts.append("spacings " + ", ".join(f"{v.value:g}±{v.sigma:.2g}" for v in e.spacings) + " Å")
     if e.row_angle:
-        parts.append(f"row angle {e.row_angle.value:g}±{e.row_angle.sigma:g}°")
+        parts.append(f"row angle {e.row_angle.value:g}±{e.row_angle.sigma:.2g}°")
     if e.steps:
         parts.append("steps " + ", ".join(f"{v.value:g}" for v in e.steps) + " Å")
     out.append(Text("Measured: " + "; ".join(parts)))
@@ -525,7 +560,7 @@ def _match(r: Any, wide: bool) -> list[Block]:
         cols = ["#", "face", ("term.", "left"), ("cell", "left"), "p", "tilt", "spacings", "angle", "steps"]
     rows = []
     for c in r.candidates:
-        row = [str(c.rank), hkl_text(c.hkl), c.label, c.cell or "1×1", f"{c.probability:.3f}"]
+        row = [str(c.rank), _face(r, c.hkl), c.label, c.cell or "1×1", f"{c.probability:.3f}"]
         if wide:
             row += [
                 _predicted(c.tilt, 1),
@@ -573,12 +608,12 @@ def _match(r: Any, wide: bool) -> list[Block]:
                 )
         out.append(
             _table(
-                f"Steps of {hkl_text(best.hkl)} {best.label}: the terraces each explains",
+                f"Steps of {_face(r, best.hkl)} {best.label}: the terraces each explains",
                 ["measured (Å)", "allowed (Å)", ("lower → upper", "left"), "+n·d", "residual"],
                 srows,
             )
         )
-    faces = ", ".join(f"{hkl_text(f.hkl)} {f.probability:.2f}" for f in r.faces[:4] if f.probability >= 0.005)
+    faces = ", ".join(f"{_face(r, f.hkl)} {f.probability:.2f}" for f in r.faces[:4] if f.probability >= 0.005)
     out.append(Text(f"Faces, over their terminations: {faces}"))
     fit = r.fit
     if fit.fits:
@@ -664,9 +699,9 @@ def _window(r: Any, wide: bool) -> list[Block]:
     for w in r.window:
         row = [
             f"{w.tilt:.2f}",
-            hkl_text(w.tilt_variant),
-            "—" if w.tilt_axis is None else uvw_text(w.tilt_axis),
-            hkl_text(w.hkl),
+            _face(r, w.tilt_variant),
+            "—" if w.tilt_axis is None else direction_text(w.tilt_axis, r.structure.hexagonal_axes),
+            _face(r, w.hkl),
             f"{w.d:.4f}",
             str(w.cleavage_rank),
             "—" if w.polar is None else ("yes" if w.polar else "no"),
@@ -674,7 +709,7 @@ def _window(r: Any, wide: bool) -> list[Block]:
         if wide:
             row += [f"{w.weighted_bonds_per_nm2:.2f}"]
         rows.append(row)
-    title = f"Faces {lo:g}° to {hi:g}° from the mount {hkl_text(r.mount)}, up to index {r.max_index}, by tilt"
+    title = f"Faces {lo:g}° to {hi:g}° from the mount {_face(r, r.mount)}, up to index {r.max_index}, by tilt"
     out: list[Block] = []
     if rows:
         out.append(_table(title, cols, rows))
@@ -721,8 +756,9 @@ def _screen(r: Any, wide: bool) -> list[Block]:
         rows = []
         for row in members:
             tasker = "/".join(t.tasker_type or "—" for t in row.terminations) if row.polar is not None else "—"
+            hexagonal = row.spacegroup_number is not None and 143 <= row.spacegroup_number <= 194
             line = [
-                hkl_text(row.hkl),
+                face_text(row.hkl, hexagonal),
                 str(row.cleavage_rank),
                 str(row.termination_count),
                 f"{row.smallest_step:.3f}",
@@ -776,7 +812,7 @@ def _slab(r: Any, wide: bool) -> list[Block]:
     cell = "1×1" if r.cell is None else f"{r.cell}, {r.changed} site{'s' if r.changed != 1 else ''} {r.mode}d per side"
     out.append(
         Text(
-            f"Slab of {hkl_text(r.hkl)}: {r.termination.label} ({r.termination.id}) on {sides}, {r.layers} repeat "
+            f"Slab of {_face(r, r.hkl)}: {r.termination.label} ({r.termination.id}) on {sides}, {r.layers} repeat "
             f"unit{'s' if r.layers != 1 else ''}, cell {cell}",
             "bold",
         )

@@ -20,11 +20,13 @@ RUNS = {
     "planes": [
         ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1"],
         ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "1"],
+        ["planes", "hcp:Zn", "--max-index", "1", "--mount", "0", "0", "0", "1"],  # hkil, mount_hkil, ...
         ["planes", "rocksalt:Na,Cl", "--max-index", "2", "--mount", "0", "0", "1", "--tilt-window", "0", "60"],
     ],
     "terminations": [
         ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
         ["terminations", "hexaboride:La,B", "--plane", "0", "0", "1"],
+        ["terminations", "tetradymite:Bi,Se", "--plane", "0", "0", "0", "1"],
     ],
     "polarity": [
         ["polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"],

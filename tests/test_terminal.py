@@ -11,6 +11,8 @@ COMMANDS = [
     ["structures"],
     ["planes", "half-heusler:Ti,Ni,Sn", "--max-index", "3", "--mount", "1", "1", "0"],
     ["planes", "hexaboride:La,B", "--max-index", "3"],
+    ["planes", "wurtzite:Zn,O", "--max-index", "3", "--mount", "1", "0", "-1", "0"],
+    ["terminations", "tetradymite:Bi,Se", "--plane", "0", "0", "0", "1"],
     ["terminations", "diamond:Si", "--plane", "0", "0", "1"],
     ["terminations", "half-heusler:Ti,Ni,Sn", "--plane", "1", "1", "1"],
     ["polarity", "hexaboride:La,B", "--plane", "0", "0", "1"],
@@ -95,7 +97,7 @@ def test_the_width_check_can_fail():
 
 def test_help_shows_metavars_units_and_defaults():
     r = CliRunner().invoke(cli.app, ["planes", "--help"], env={"COLUMNS": "100"})
-    assert "--mount H K L" in r.stdout and "[default: 3]" in r.stdout and "<int" not in r.stdout
+    assert "--mount H K [I] L" in r.stdout and "[default: 3]" in r.stdout and "<int" not in r.stdout
     r = CliRunner().invoke(cli.app, ["corrugation", "-h"], env={"COLUMNS": "100"})
     assert r.exit_code == 0 and "--decay-length Å" in r.stdout and "[default: 0.5]" in r.stdout
     assert "list[str]" not in r.stdout

@@ -5,9 +5,11 @@ Charges come, in this order, from
 1. the user (``{"La": 3, "B": -0.5}``; at most one element may be left out, it
    is then solved for neutrality),
 2. the structure file (CIF oxidation states, :attr:`Crystal.charges`),
-3. a light guess in pure Python (:func:`light_guess`): a small table of common
-   oxidation states solved for neutrality, with a cluster-anion rule for
-   borides and similar compounds,
+3. a light guess in pure Python: homonuclear polyanions found in the bond
+   graph counted by the 8 - N rule (:func:`polyanion_guess`: S2 in pyrite,
+   O2 in peroxides), else a small table of common oxidation states solved for
+   neutrality with anions decided by the anion-forming elements, and a
+   cluster-anion rule for borides and similar compounds (:func:`light_guess`),
 4. pymatgen's oxidation-state guess (``Composition.oxi_state_guesses``),
    imported only when the light guess finds nothing and the caller allows it.
 
@@ -29,9 +31,17 @@ from typing import Literal, overload
 import numpy as np
 
 from termination.arrays import FloatArray, IntArray
+from termination.bulk.bonds import bond_graph
 from termination.bulk.crystal import Crystal
-from termination.bulk.elements import check_symbol, count_species, electronegativity, parse_element_values
-from termination.defaults import NEUTRALITY_TOL_E, RELATIVE_EPS
+from termination.bulk.elements import (
+    check_symbol,
+    count_species,
+    covalent_radius,
+    electronegativity,
+    parse_element_values,
+)
+from termination.bulk.neighbours import neighbour_pairs
+from termination.defaults import BOND_FACTOR, NEUTRALITY_TOL_E, RELATIVE_EPS
 from termination.errors import ChargeError
 from termination.units import E
 
@@ -39,11 +49,13 @@ __all__ = [
     "ANION_FORMERS",
     "COMMON_OXIDATION_STATES",
     "METAL_CAUTION",
+    "POLYANION_VALENCE",
     "ChargeAssignment",
     "assign_charges",
     "is_metallic",
     "light_guess",
     "parse_charge_options",
+    "polyanion_guess",
     "pymatgen_guess",
     "with_formal_charges",
 ]
@@ -167,6 +179,36 @@ def is_metallic(species: Iterable[str]) -> bool:
     return len(elements) > 1 and not (elements & ANION_FORMERS)
 
 
+def _solve(elements: Sequence[str], counts: IntArray, fixed: float = 0.0) -> tuple[int, dict[str, float]] | None:
+    """The most common integer states of ``elements`` (``counts`` atoms each) that cancel ``fixed`` (e).
+
+    Returns (score, states) or None; see :func:`light_guess` for the rules.
+    """
+    chi = np.array([electronegativity(el) for el in elements])
+    may_be_anion = np.array([el in ANION_FORMERS or el in _CLUSTER_FORMERS for el in elements])
+    former = np.array([el in ANION_FORMERS for el in elements])
+    best: tuple[int, IntArray] | None = None
+    for ranks in product(*(range(len(COMMON_OXIDATION_STATES[el])) for el in elements)):
+        states = np.array([COMMON_OXIDATION_STATES[el][r] for el, r in zip(elements, ranks)])
+        if abs(float(counts @ states) + fixed) > RELATIVE_EPS:
+            continue
+        neg, pos = states < 0, states > 0
+        if not pos.any() or not (neg.any() or fixed < 0):
+            continue
+        # Anions are anion formers; among formers, every negative one is more electronegative
+        # than every positive one (S +6 and O -2 in a sulfate; never Pb below Te).
+        if np.any(neg & ~may_be_anion):
+            continue
+        if (neg & former).any() and (pos & former).any() and chi[neg & former].min() <= chi[pos & former].max():
+            continue
+        score = sum(ranks)
+        if best is None or score < best[0]:
+            best = (score, states)
+    if best is None:
+        return None
+    return best[0], {el: int(q) for el, q in zip(elements, best[1])}
+
+
 def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
     """Formal charges from common oxidation states solved for neutrality (pure Python).
 
@@ -188,10 +230,16 @@ def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
     :data:`COMMON_OXIDATION_STATES`, every combination with
 
     - sum_e n_e s_e = 0,
-    - every negative element more electronegative than every positive one,
+    - negative states only on anion formers (:data:`ANION_FORMERS`; B, C, Si
+      and Ge as cluster formers),
+    - among the anion formers, every negative one more electronegative than
+      every positive one,
 
     is scored by the sum of the states' ranks in the table (0 = most common);
-    the lowest score wins, ties go to the earlier combination.  When no
+    the lowest score wins, ties go to the earlier combination.  Deciding
+    anions by the anion formers rather than by a strict electronegativity
+    order gives the tellurides whose metal is more electronegative than Te on
+    Pauling's scale their textbook charges (PbTe: Pb +2, Te -2).  When no
     integer combination exists and the most electronegative element is a
     cluster former (B, C, Si, Ge), it takes the balancing charge
     q = -sum_others n_e s_e / n, the others at their most common state: the
@@ -205,6 +253,8 @@ def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
     {'Sr': 2, 'Ti': 4, 'O': -2}
     >>> light_guess(["La"] + ["B"] * 6)[0]
     {'La': 3, 'B': -0.5}
+    >>> light_guess(["Pb", "Te"])[0]
+    {'Pb': 2, 'Te': -2}
     """
     comp = count_species(species)
     elements = list(comp)
@@ -215,23 +265,10 @@ def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
     if any(el not in COMMON_OXIDATION_STATES for el in elements):
         return None
     counts = np.array([comp[el] for el in elements])
-    chi = np.array([electronegativity(el) for el in elements])
-    best: tuple[int, IntArray] | None = None
-    for ranks in product(*(range(len(COMMON_OXIDATION_STATES[el])) for el in elements)):
-        states = np.array([COMMON_OXIDATION_STATES[el][r] for el, r in zip(elements, ranks)])
-        if counts @ states != 0:
-            continue
-        neg, pos = states < 0, states > 0
-        if not (neg.any() and pos.any()):
-            continue
-        if chi[neg].min() <= chi[pos].max():
-            continue
-        score = sum(ranks)
-        if best is None or score < best[0]:
-            best = (score, states)
-    if best is not None:
-        integral: dict[str, float] = {el: int(q) for el, q in zip(elements, best[1])}
-        return integral, "common oxidation states solved for neutrality"
+    found = _solve(elements, counts)
+    if found is not None:
+        integral: dict[str, float] = dict(found[1])
+        return integral, "common oxidation states solved for neutrality, anions from the anion formers"
     anion = max(elements, key=lambda el: (electronegativity(el), el))
     if anion not in _CLUSTER_FORMERS:
         return None
@@ -244,6 +281,104 @@ def light_guess(species: Iterable[str]) -> tuple[dict[str, float], str] | None:
         return None
     cluster: dict[str, float] = {el: (first[el] if el != anion else q) for el in elements}
     return cluster, f"common oxidation states, {anion} balancing as a cluster anion"
+
+
+#: Valence electrons of the elements that form homonuclear polyanions (main-group count N).
+POLYANION_VALENCE: dict[str, int] = {"O": 6, "S": 6, "Se": 6, "Te": 6, "P": 5, "As": 5, "Sb": 5}
+
+_SUPERSCRIPT = str.maketrans("0123456789+-", "⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻")
+
+
+def polyanion_guess(crystal: Crystal) -> tuple[FloatArray, str] | None:
+    """Formal charges of a crystal with homonuclear polyanions (S2, O2, Se2, P-P, ...) found in its bond graph.
+
+    Parameters
+    ----------
+    crystal : Crystal
+
+    Returns
+    -------
+    ((N,) FloatArray, str) or None
+        Charge per atom and a sentence naming the units and the rule; None
+        when the bond graph (default rule) has no bond between two atoms of
+        one polyanion former (:data:`POLYANION_VALENCE`), or no neutral
+        assignment follows.
+
+    Notes
+    -----
+    An atom of a polyanion former with valence-electron count N and b bonds
+    to atoms of its own element carries -(8 - N - b), the 8 - N rule of
+    Zintl and Klemm (common practice): each S of a pyrite S2 dimer -1 (S2
+    2-), each O of a peroxide -1, each P of a P4 ring of a skutterudite -1.
+    The other atoms take common oxidation states solved for neutrality by the
+    rules of :func:`light_guess`.  B6 clusters and C2 units keep the
+    cluster-anion rule of :func:`light_guess` (their bonds are not single).
+
+    References
+    ----------
+    N. N. Greenwood and A. Earnshaw, Chemistry of the Elements, 2nd ed. (1997)
+    (FeS2: Fe(II) and S2 2-).
+    """
+    species = crystal.species
+    if any(el not in COMMON_OXIDATION_STATES for el in set(species)):
+        return None
+    # Most crystals have no two atoms of a polyanion former within bonding distance: a search
+    # among those atoms alone says so without the whole bond graph.
+    names = np.array(species)
+    close = False
+    for el in set(species) & set(POLYANION_VALENCE):
+        reach = BOND_FACTOR * 2 * covalent_radius(el)
+        close = close or len(neighbour_pairs(crystal.lattice, crystal.positions[names == el], reach)) > 0
+    if not close:
+        return None
+    graph = bond_graph(crystal)
+    src, tgt = graph.source, graph.target
+    same = np.array([species[i] == species[j] and species[i] in POLYANION_VALENCE for i, j in zip(src, tgt)])
+    if not same.any():
+        return None
+    homonuclear = np.bincount(src[same], minlength=crystal.natoms)
+    per_atom = np.zeros(crystal.natoms)
+    in_unit = np.zeros(crystal.natoms, dtype=bool)
+    described: dict[str, set[int]] = {}
+    for i, b in enumerate(homonuclear):
+        if b == 0:
+            continue
+        q = -(8 - POLYANION_VALENCE[species[i]] - int(b))
+        if q >= 0:
+            continue
+        per_atom[i] = q
+        in_unit[i] = True
+        described.setdefault(species[i], set()).add(int(b))
+    if not in_unit.any():
+        return None
+    rest = [s for s, u in zip(species, in_unit) if not u]
+    comp = count_species(rest)
+    elements = list(comp)
+    fixed = float(per_atom[in_unit].sum())
+    if elements:
+        found = _solve(elements, np.array([comp[el] for el in elements]), fixed)
+        if found is None:
+            return None
+        for i, s in enumerate(species):
+            if not in_unit[i]:
+                per_atom[i] = found[1][s]
+    elif abs(fixed) > RELATIVE_EPS:
+        return None
+    units = []
+    for el, bonds in described.items():
+        if bonds == {1}:
+            charge = 2 * (8 - POLYANION_VALENCE[el] - 1)
+            units.append(f"{el}2{(str(charge) + '-').translate(_SUPERSCRIPT)} dimers")
+        else:
+            counts_text = "/".join(str(b) for b in sorted(bonds))
+            units.append(f"{el} with {counts_text} {el}-{el} bonds")
+    how = (
+        "polyanion rule: " + ", ".join(units) + " from the bond graph, each atom -(8 - N - b) for b bonds to its "
+        "own element (8 - N rule)"
+    )
+    if elements:
+        how += "; " + ", ".join(elements) + " from common oxidation states solved for neutrality"
+    return per_atom, how
 
 
 def pymatgen_guess(species: Iterable[str]) -> dict[str, float] | None:
@@ -397,6 +532,10 @@ def assign_charges(
         return ChargeAssignment(
             _by_element(per_atom, species), "file", "oxidation states from the structure file", caution, per_atom
         )
+    units = polyanion_guess(crystal)
+    if units is not None:
+        per_atom = _neutralise(units[0], species, tol, "guessed")
+        return ChargeAssignment(_by_element(per_atom, species), "guess", f"guessed: {units[1]}", caution, per_atom)
     guess = light_guess(species)
     if guess is not None:
         values, how = guess

@@ -17,15 +17,16 @@ from numpy.typing import ArrayLike
 
 from termination.algebra.integer import rationalise, row_basis
 from termination.arrays import FloatArray, IntArray
-from termination.bulk.elements import SYMBOLS, atomic_number, check_symbol, count_species
-from termination.defaults import MAX_LENGTH_ANGSTROM, MIN_DISTANCE_ANGSTROM, RELATIVE_EPS, SYMPREC_ANGSTROM
+from termination.bulk.elements import SYMBOLS, atomic_number, check_symbol, count_species, electronegativity
+from termination.bulk.neighbours import neighbour_pairs
+from termination.defaults import MAX_ATOMS, MAX_LENGTH_ANGSTROM, MIN_DISTANCE_ANGSTROM, RELATIVE_EPS, SYMPREC_ANGSTROM
 from termination.errors import StructureError
 from termination.units import ANGSTROM, E
 
 if TYPE_CHECKING:
     from spglib.spg import SpgCell, SpglibDataset
 
-__all__ = ["Crystal", "build_crystal", "reduced_formula"]
+__all__ = ["Crystal", "build_crystal", "crystal_system", "reduced_formula"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -106,6 +107,20 @@ class Crystal:
         return self.positions @ self.lattice
 
     @property
+    def crystal_system(self) -> str:
+        """Crystal system of the space group: 'triclinic', ..., 'trigonal', 'hexagonal', 'cubic'."""
+        return crystal_system(self.spacegroup_number)
+
+    @property
+    def hexagonal_axes(self) -> bool:
+        """True for trigonal and hexagonal crystals, whose standard cell has hexagonal axes.
+
+        spglib gives rhombohedral crystals in hexagonal axes too (the obverse
+        triple cell), so every such face takes Miller-Bravais indices (h k i l).
+        """
+        return self.crystal_system in ("trigonal", "hexagonal")
+
+    @property
     def centrosymmetric(self) -> bool:
         """True when the point group contains the inversion."""
         return bool(np.any(np.all(self.point_group == -np.eye(3, dtype=int), axis=(1, 2))))
@@ -131,6 +146,30 @@ class Crystal:
         if q.shape != (self.natoms,):
             raise StructureError(f"charges need one value per atom ({self.natoms}), got shape {q.shape}")
         return dataclasses.replace(self, charges=q)
+
+
+#: Last space-group number of each crystal system (International Tables Vol. A).
+_SYSTEMS = (
+    (2, "triclinic"),
+    (15, "monoclinic"),
+    (74, "orthorhombic"),
+    (142, "tetragonal"),
+    (167, "trigonal"),
+    (194, "hexagonal"),
+    (230, "cubic"),
+)
+
+
+def crystal_system(number: int) -> str:
+    """Crystal system of space group ``number`` (1 to 230).
+
+    >>> crystal_system(166), crystal_system(194), crystal_system(225)
+    ('trigonal', 'hexagonal', 'cubic')
+    """
+    for last, name in _SYSTEMS:
+        if 1 <= number <= last:
+            return name
+    raise StructureError(f"space-group number must lie between 1 and 230, got {number}")
 
 
 def reduced_formula(species: Iterable[str]) -> str:
@@ -182,20 +221,19 @@ def _check_cell(
     return lattice, positions, species
 
 
-def _closest_pair(lattice: FloatArray, positions: FloatArray) -> tuple[float, int, int]:
-    """Smallest interatomic distance (Å), its atom indices, over neighbouring images.
+def _closest_pair(lattice: FloatArray, positions: FloatArray, radius: float) -> tuple[float, int, int] | None:
+    """Smallest interatomic distance below ``radius`` (Å) and its atom indices, or None when there is none.
 
-    ``lattice`` is (3, 3), rows, Å; ``positions`` (N, 3), fractional.
+    ``lattice`` is (3, 3), rows, Å; ``positions`` (N, 3), fractional.  A
+    cell-list search (:func:`termination.bulk.neighbours.neighbour_pairs`),
+    so a large cell needs no N² array.
     """
-    n = len(positions)
-    shifts = np.array(np.meshgrid([-1, 0, 1], [-1, 0, 1], [-1, 0, 1], indexing="ij")).reshape(3, -1).T
-    diff = positions[None, :, :] - positions[:, None, :]
-    diff -= np.rint(diff)
-    dist = np.linalg.norm((diff[:, :, None, :] + shifts[None, None]) @ lattice, axis=-1)
-    zero = np.flatnonzero(np.all(shifts == 0, axis=1))[0]
-    dist[np.arange(n), np.arange(n), zero] = np.inf
-    i, j, _ = np.unravel_index(np.argmin(dist), dist.shape)
-    return float(dist[i, j].min()), int(i), int(j)
+    pairs = neighbour_pairs(lattice, positions, radius)
+    if not len(pairs):
+        return None
+    k = int(np.argmin(pairs.distance))
+    i, j = sorted((int(pairs.source[k]), int(pairs.target[k])))
+    return float(pairs.distance[k]), i, j
 
 
 def build_crystal(
@@ -250,9 +288,18 @@ def build_crystal(
     cell_lattice, cell_positions, cell_species = _check_cell(lattice, positions, species)
     if not (np.isfinite(symprec) and symprec > 0):
         raise StructureError(f"symprec must be a positive length in Å, got {symprec}")
+    # The absolute structure is that of the atoms as given.  spglib turns a
+    # left-handed basis right-handed by a change of basis that inverts the
+    # structure, which would swap (hkl) and (-h -k -l) of a non-centrosymmetric
+    # crystal; negating all three vectors and coordinates instead keeps every
+    # atom where it is.
+    left_handed = bool(np.linalg.det(cell_lattice) < 0)
+    if left_handed:
+        cell_lattice, cell_positions = -cell_lattice, -cell_positions
     cell_positions = cell_positions - np.floor(cell_positions)
-    dmin, i, j = _closest_pair(cell_lattice, cell_positions)
-    if dmin < MIN_DISTANCE_ANGSTROM:
+    close = _closest_pair(cell_lattice, cell_positions, MIN_DISTANCE_ANGSTROM)
+    if close is not None:
+        dmin, i, j = close
         raise StructureError(
             f"impossible structure: atoms {i + 1} ({cell_species[i]}) and {j + 1} ({cell_species[j]}) "
             f"are {dmin:.3f} Å apart"
@@ -269,26 +316,27 @@ def build_crystal(
             if per_atom.shape != (len(cell_species),):
                 raise StructureError(f"charges need one value per atom, got shape {per_atom.shape}")
     numbers = np.array([atomic_number(s) for s in cell_species], dtype=np.intc)
-    # spglib's stubs ask for sequences; it reads any array (its own docs pass numpy arrays).
-    cell = cast("SpgCell", (cell_lattice, cell_positions, numbers))
-    try:
-        dataset = spglib.get_symmetry_dataset(cell, symprec=symprec)
-    except Exception:  # spglib.error.SpglibError in new releases
-        dataset = None
-    if dataset is None:
-        raise StructureError(f"spglib could not find the symmetry of the structure (symprec {symprec} Å)")
-    std_lattice = np.array(dataset.std_lattice, dtype=float)
-    std_positions = np.array(dataset.std_positions, dtype=float) % 1.0
-    std_positions[np.isclose(std_positions, 1.0, atol=1e-10)] = 0.0
-    std_numbers = np.array(dataset.std_types)
+    if len(numbers) > MAX_ATOMS:
+        raise StructureError(f"the cell holds {len(numbers)} atoms; at most {MAX_ATOMS} are accepted")
+    dataset, std_lattice, std_positions, std_numbers, std_charges = _standardise(
+        cell_lattice, cell_positions, numbers, per_atom, symprec
+    )
+    note = _describe_transformation(cell_lattice, numbers, std_lattice, std_numbers, dataset)
+    if _inversion_preferred(dataset, std_positions, std_numbers):
+        # An achiral non-centrosymmetric crystal: its inverted description is
+        # the same crystal turned by a proper rotation, and names (h k l) and
+        # (-h -k -l) the other way round.  Take the one the convention picks.
+        dataset, std_lattice, std_positions, std_numbers, std_charges = _standardise(
+            std_lattice, -std_positions % 1.0, std_numbers, std_charges, symprec
+        )
+        flipped = (
+            "described in the orientation the polarity convention picks, the inverse of spglib's standard cell of "
+            "the input: (h k l) of that cell is (-h -k -l) here"
+        )
+        note = flipped if note is None else f"{note}; {flipped}"
+    if len(std_numbers) > MAX_ATOMS:
+        raise StructureError(f"the conventional cell holds {len(std_numbers)} atoms; at most {MAX_ATOMS} are accepted")
     std_species = tuple(SYMBOLS[z] for z in std_numbers)
-
-    std_charges: FloatArray | None = None
-    if per_atom is not None:
-        prim_charge: dict[int, float] = {}
-        for q, p in zip(per_atom, dataset.mapping_to_primitive):
-            prim_charge.setdefault(int(p), q)
-        std_charges = np.array([prim_charge[int(p)] for p in dataset.std_mapping_to_primitive])
 
     std_cell = cast("SpgCell", (std_lattice, std_positions, std_numbers.astype(np.intc)))
     sym = spglib.get_symmetry(std_cell, symprec=symprec)
@@ -311,7 +359,9 @@ def build_crystal(
     gens = np.vstack([12 * np.eye(3, dtype=np.int64), centring_int])
     primitive_fractional = row_basis(gens) / 12.0
 
-    note = _describe_transformation(cell_lattice, numbers, std_lattice, std_numbers, dataset)
+    if left_handed:
+        flipped = "left-handed input axes replaced by right-handed ones (atoms not moved)"
+        note = flipped if note is None else f"{note}; {flipped}"
     return Crystal(
         lattice=std_lattice,
         positions=std_positions,
@@ -331,6 +381,82 @@ def build_crystal(
     )
 
 
+def _standardise(
+    lattice: FloatArray, positions: FloatArray, numbers: ArrayLike, charges: FloatArray | None, symprec: float
+) -> tuple[SpglibDataset, FloatArray, FloatArray, IntArray, FloatArray | None]:
+    """spglib's dataset and conventional standard cell (lattice, positions in [0, 1), atomic numbers, charges)."""
+    import spglib
+
+    # spglib's stubs ask for sequences; it reads any array (its own docs pass numpy arrays).
+    cell = cast("SpgCell", (lattice, positions, np.asarray(numbers, dtype=np.intc)))
+    try:
+        dataset = spglib.get_symmetry_dataset(cell, symprec=symprec)
+    except Exception:  # spglib.error.SpglibError in new releases
+        dataset = None
+    if dataset is None:
+        raise StructureError(f"spglib could not find the symmetry of the structure (symprec {symprec} Å)")
+    std_lattice = np.array(dataset.std_lattice, dtype=float)
+    std_positions = np.array(dataset.std_positions, dtype=float) % 1.0
+    std_positions[np.isclose(std_positions, 1.0, atol=1e-10)] = 0.0
+    std_numbers = np.array(dataset.std_types, dtype=np.int64)
+    std_charges: FloatArray | None = None
+    if charges is not None:
+        prim_charge: dict[int, float] = {}
+        for q, p in zip(charges, dataset.mapping_to_primitive):
+            prim_charge.setdefault(int(p), float(q))
+        std_charges = np.array([prim_charge[int(p)] for p in dataset.std_mapping_to_primitive])
+    return dataset, std_lattice, std_positions, std_numbers, std_charges
+
+
+def _largest_up(vectors: FloatArray) -> tuple[float, float, float]:
+    """The largest of (K, 3) fractional vectors compared by their c, then b, then a component (rounded)."""
+    v = np.round(vectors[:, ::-1], 6)
+    k = np.lexsort(v.T[::-1])[-1]
+    return float(v[k, 0]), float(v[k, 1]), float(v[k, 2])
+
+
+def _inversion_preferred(dataset: SpglibDataset, positions: FloatArray, numbers: IntArray) -> bool:
+    """True when the polarity convention picks the inverted description of an achiral non-centrosymmetric cell.
+
+    ``positions`` (N, 3) fractional and ``numbers`` (N,) are spglib's standard cell.
+
+    Notes
+    -----
+    The convention: take the elements in order of increasing
+    electronegativity (then atomic number) and, for each pair (p, q) in turn
+    (cross pairs first, then like pairs), the set S of vectors x_q - x_p
+    between their atoms, fractional and wrapped into [-1/2, 1/2).  Inversion
+    maps S to -S.  The description whose set holds the vector that lies
+    highest along c (then b, then a) is kept; the first pair that tells the
+    two apart decides.  So GaAs (111) is the Ga face ("(111)A", As one
+    quarter of the body diagonal above Ga) and ZnO (0001) the Zn-polar face
+    (O above Zn along c).  A chiral crystal (no improper operation) is never
+    inverted: its handedness is that of the input.
+    """
+    rotations = np.asarray(dataset.rotations)
+    dets = np.rint(np.linalg.det(rotations))
+    if np.any(np.all(rotations == -np.eye(3, dtype=rotations.dtype), axis=(1, 2))) or not np.any(dets < 0):
+        return False
+    elements = sorted(set(int(z) for z in numbers), key=lambda z: (electronegativity(SYMBOLS[z]), z))
+    pairs = [(p, q) for k, p in enumerate(elements) for q in elements[k + 1 :]] + [(p, p) for p in elements]
+    for p, q in pairs:
+        xp, xq = positions[numbers == p], positions[numbers == q]
+        best_up: tuple[float, float, float] | None = None
+        best_down: tuple[float, float, float] | None = None
+        step = max(1, 2_000_000 // max(1, len(xq)))
+        for lo in range(0, len(xp), step):
+            v = (xq[None, :, :] - xp[lo : lo + step, None, :]).reshape(-1, 3)
+            v -= np.floor(v + 0.5)
+            w = -v
+            w -= np.floor(w + 0.5)
+            up, down = _largest_up(v), _largest_up(w)
+            best_up = up if best_up is None else max(best_up, up)
+            best_down = down if best_down is None else max(best_down, down)
+        if best_up != best_down:
+            return bool(best_down is not None and best_up is not None and best_down > best_up)
+    return False
+
+
 def _describe_transformation(
     lattice: FloatArray,
     numbers: ArrayLike,
@@ -347,10 +473,13 @@ def _describe_transformation(
     same_metric = np.allclose(lattice @ lattice.T, std_lattice @ std_lattice.T, atol=1e-4)
     if n_in != n_std or not same_metric:
         a = np.linalg.norm(std_lattice, axis=1)
-        return (
+        text = (
             f"input cell ({n_in} atoms) standardised to the conventional {dataset.international} "
             f"cell ({n_std} atoms, a={a[0]:.4f} b={a[1]:.4f} c={a[2]:.4f} Å)"
         )
+        if str(dataset.international).startswith("R") and n_std == 3 * n_in:
+            text += "; rhombohedral axes converted to hexagonal axes (obverse setting, three lattice points per cell)"
+        return text
     rotated = not np.allclose(lattice, std_lattice, atol=1e-4)
     shift = np.asarray(dataset.origin_shift, dtype=float)
     shifted = not np.allclose(shift - np.rint(shift), 0.0, atol=RELATIVE_EPS)

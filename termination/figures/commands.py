@@ -40,7 +40,7 @@ import numpy as np
 from termination.defaults import FIGURE_DPI, FIGURE_TOP, MAX_CELL, MAX_FIGURES
 from termination.errors import TerminationError
 from termination.figures.canvas import check_format
-from termination.surface.miller import hkl_text
+from termination.surface.miller import face_text
 
 __all__ = [
     "PlannedFigure",
@@ -90,7 +90,8 @@ def planes_figures(report: Any, crystal: Any) -> list[PlannedFigure]:
     """Pole figure of a ``planes`` report (see :func:`termination.figures.poles.pole_figure`)."""
     from termination.figures.poles import pole_figure
 
-    around = hkl_text(report.mount) if report.mount is not None else "(0 0 1)"
+    hexagonal = report.structure.hexagonal_axes
+    around = face_text(report.mount if report.mount is not None else (0, 0, 1), hexagonal)
     caption = f"Stereographic projection of every face up to index {report.max_index} around {around}"
     if report.tilt_window is not None:
         lo, hi = report.tilt_window
@@ -216,6 +217,7 @@ def _termination_views(
         return fourier_pattern(
             pattern,
             ft.atoms.mesh_inplane,
+            hexagonal=crystal.hexagonal_axes,
             cell_inplane=None if cell is None else np.asarray(cell.matrix, dtype=float) @ ft.atoms.mesh_inplane,
             domains=domains,
             measured=None if measured is None else measured.map,
@@ -251,6 +253,7 @@ def terminations_figures(
     """Allowed steps, and top view, topograph and Fourier pattern of each inequivalent termination."""
     from termination.figures.steps import terminations_step_figure
 
+    face = face_text(report.hkl, report.structure.hexagonal_axes)
     cache: dict[str, Any] = {}
 
     def context() -> tuple[Any, Any]:
@@ -263,13 +266,13 @@ def terminations_figures(
     plans = [
         PlannedFigure(
             "steps",
-            f"Allowed step heights of {hkl_text(report.hkl)} between terraces of each pair of terminations.",
+            f"Allowed step heights of {face} between terraces of each pair of terminations.",
             lambda: terminations_step_figure(report),
         )
     ]
     for t in report.terminations:
         if t.equivalent_to is None:
-            plans += _termination_views(context, t.id, f"{hkl_text(report.hkl)} {t.label}", None)
+            plans += _termination_views(context, t.id, f"{face} {t.label}", None)
     return plans
 
 
@@ -278,14 +281,15 @@ def polarity_figures(report: Any) -> list[PlannedFigure]:
     from termination.figures.polarity import polarity_stack
 
     plans = []
+    hexagonal = report.structure.hexagonal_axes
     for face in report.faces:
         for tp in face.terminations:
             plans.append(
                 PlannedFigure(
                     f"polarity_{_slug(face.hkl, tp.id)}",
-                    f"Layer charges of {hkl_text(face.hkl)} {tp.label}: Tasker type {tp.tasker_type}, "
+                    f"Layer charges of {face_text(face.hkl, hexagonal)} {tp.label}: Tasker type {tp.tasker_type}, "
                     "dipole and compensating charge.",
-                    functools.partial(polarity_stack, tp, face.d, face.area, hkl=face.hkl),
+                    functools.partial(polarity_stack, tp, face.d, face.area, hkl=face.hkl, hexagonal=hexagonal),
                 )
             )
     return plans
@@ -311,7 +315,7 @@ def corrugation_figures(
         return cache["crystal"], cache["ft"]
 
     plans: list[PlannedFigure] = []
-    face = hkl_text(report.hkl)
+    face = face_text(report.hkl, report.structure.hexagonal_axes)
     for row in report.terminations:
         plans += _termination_views(context, row.id, f"{face} {row.label}", report.visibility)
         for cell_row in row.reconstructions:
@@ -379,7 +383,10 @@ def match_figures(
     plans: list[PlannedFigure] = []
     if report.mount is not None:
         tilt = report.measurement.tilt
-        caption = f"Poles of every candidate face within 90° of the mount {hkl_text(report.mount)}"
+        caption = (
+            "Poles of every candidate face within 90° of the mount "
+            f"{face_text(report.mount, report.structure.hexagonal_axes)}"
+        )
         if tilt is not None:
             caption += f"; the measured tilt {tilt.value:g}° as a ring with its ±{tilt.sigma:.2g}° band"
         plans.append(
@@ -414,7 +421,7 @@ def match_figures(
     cell = None
     if best.cell is not None:
         cell = _candidate_cell(context, t_id, best.cell, max_cell)
-    title = f"the best candidate, #{best.rank} {hkl_text(best.hkl)} {best.label}" + (
+    title = f"the best candidate, #{best.rank} {face_text(best.hkl, report.structure.hexagonal_axes)} {best.label}" + (
         f" {best.cell}" if best.cell else ""
     )
     views = _termination_views(context, t_id, best.termination.label, visibility, cell, measured, "best", title)
@@ -427,7 +434,7 @@ def match_figures(
 
             c, ft = context()
             tp = termination_polarity(c, ft, t_id, with_reconstructions=False)
-            return polarity_stack(tp, ft.d, ft.face.mesh.area, hkl=ft.face.hkl)
+            return polarity_stack(tp, ft.d, ft.face.mesh.area, hkl=ft.face.hkl, hexagonal=c.hexagonal_axes)
 
         plans.append(
             PlannedFigure(

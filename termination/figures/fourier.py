@@ -125,6 +125,7 @@ def fourier_pattern(
     measured_direction_deg: float | None = None,
     hkl: tuple[int, int, int] | None = None,
     title: str | None = None,
+    hexagonal: bool = False,
     width_in: float = 4.6,
 ) -> Any:
     """Predicted Fourier spots of a corrugation pattern, alone (like a LEED pattern) or over a measured FFT.
@@ -149,6 +150,8 @@ def fourier_pattern(
         it, the prediction is turned by :func:`best_turn`.
     hkl : 3 ints, optional
         The face, for the title.
+    hexagonal : bool
+        Write the face (h k i l).
     title : str, optional
     width_in : float
 
@@ -246,7 +249,11 @@ def fourier_pattern(
         ax.set_ylim(-lim, lim)
         ax.set_xlabel("G along e1 (1/Å)" if rotation == 0.0 else "kx (1/Å)")
         ax.set_ylabel("G along e2 (1/Å)" if rotation == 0.0 else "ky (1/Å)")
-        name = (f"{hkl_label(hkl)} " if hkl else "") + pattern.label + (f" {pattern.cell}" if pattern.cell else "")
+        name = (
+            (f"{hkl_label(hkl, hexagonal=hexagonal)} " if hkl else "")
+            + pattern.label
+            + (f" {pattern.cell}" if pattern.cell else "")
+        )
         where = "over the measured power spectrum" if measured is not None else "predicted"
         ax.set_title(title or f"Fourier spots of {name}: {where}", fontsize=7.5)
         fig.legend(

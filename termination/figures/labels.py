@@ -15,17 +15,25 @@ from typing import Any, SupportsInt
 __all__ = ["hkl_label", "nice_length", "scale_bar"]
 
 
-def hkl_label(hkl: Iterable[SupportsInt], brackets: str = "()") -> str:
+def hkl_label(hkl: Iterable[SupportsInt], brackets: str = "()", hexagonal: bool = False) -> str:
     """A Miller index with bars over negative entries (combining overline, U+0305).
 
-    Entries are run together unless one has two digits, then spaces separate them.
+    Entries are run together unless one has two digits, then spaces separate
+    them.  With ``hexagonal`` (a lattice with hexagonal axes) a face is
+    written (h k i l) and a direction (``brackets="[]"``) [u v t w].
 
     >>> hkl_label((1, -1, 0)) == "(11\u03050)"
     True
     >>> hkl_label((10, 0, -1), brackets="")
     '10 0 1\u0305'
+    >>> hkl_label((1, 0, 0), hexagonal=True) == "(101\u03050)"
+    True
     """
+    from termination.surface.miller import to_four_index, uvtw
+
     values = [int(v) for v in hkl]
+    if hexagonal and len(values) == 3:
+        values = list(uvtw(values) if brackets == "[]" else to_four_index(values))
     parts = ["".join(ch + "\u0305" for ch in str(abs(v))) if v < 0 else str(v) for v in values]
     sep = " " if any(abs(v) > 9 for v in values) else ""
     opening, closing = (brackets[0], brackets[1]) if len(brackets) == 2 else ("", "")

@@ -78,6 +78,7 @@ def polarity_stack(
     *,
     hkl: tuple[int, int, int] | None = None,
     title: str | None = None,
+    hexagonal: bool = False,
     width_in: float = 5.6,
 ) -> Any:
     """The layer-charge stack of one termination with its dipole and compensating fraction.
@@ -94,6 +95,8 @@ def polarity_stack(
     hkl : 3 ints, optional
         The face, for the title.
     title : str, optional
+    hexagonal : bool
+        Write the face (h k i l).
     width_in : float
 
     Returns
@@ -166,7 +169,7 @@ def polarity_stack(
         right.set_title(summary, fontsize=6.3, loc="left", gid="polarity summary")
         bottom = -(float(depths[-1]) + 0.1 * span)
         left.set_ylim(bottom, top_y)
-        face = f"{hkl_label(hkl)} " if hkl else ""
+        face = f"{hkl_label(hkl, hexagonal=hexagonal)} " if hkl else ""
         fig.suptitle(
             title or f"{face}{tp.label} ({tp.id}): layer charges of the repeat unit (d = {d:.3f} Å, A = {area:.2f} Å²)",
             fontsize=8,

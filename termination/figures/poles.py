@@ -31,7 +31,7 @@ from termination.figures.canvas import new_figure, style
 from termination.figures.labels import hkl_label
 from termination.figures.palette import MIST, SLATE, series_style
 from termination.surface.faces import distinct_faces, face_geometry, face_variants, variant_tilts
-from termination.surface.miller import HKL, check_hkl, hkl_text
+from termination.surface.miller import HKL, check_hkl, face_text, hkl_text
 from termination.units import DEG
 
 __all__ = ["Pole", "pole_figure", "poles_within", "stereographic_projection"]
@@ -163,6 +163,7 @@ def stereographic_projection(
     from matplotlib.patches import Annulus, Circle
 
     m = check_hkl(mount, "mount")
+    hexagonal = crystal.hexagonal_axes
     if faces is None:
         n = MAX_INDEX if max_index is None else max_index
         families: list[HKL] = [f.hkl for f in distinct_faces(crystal, max_index=n)]
@@ -187,7 +188,7 @@ def stereographic_projection(
         ax.plot([-1, 1], [0, 0], color=MIST, lw=0.5, zorder=0)
         ax.plot([0, 0], [-1, 1], color=MIST, lw=0.5, zorder=0)
         ax.annotate(
-            f"e1 ∥ {hkl_label(_direction(crystal, m), brackets='[]')}",
+            f"e1 ∥ {hkl_label(_direction(crystal, m), brackets='[]', hexagonal=hexagonal)}",
             (1.0, 0.0),
             xytext=(0, -14),
             textcoords="offset points",
@@ -240,7 +241,7 @@ def stereographic_projection(
                     linewidths=0.6,
                     zorder=6,
                     gid=f"poles {hkl_text(family)} highlighted",
-                    label=f"{hkl_label(family)}  {highlight_label} = {scores[family]:.2f}",
+                    label=f"{hkl_label(family, hexagonal=hexagonal)}  {highlight_label} = {scores[family]:.2f}",
                 )
             else:
                 ax.scatter(
@@ -256,7 +257,7 @@ def stereographic_projection(
                 )
             for p in mine:
                 ax.annotate(
-                    hkl_label(p.variant, brackets=""),
+                    hkl_label(p.variant, brackets="", hexagonal=hexagonal),
                     (p.x, p.y),
                     xytext=(2.5, 2.5),
                     textcoords="offset points",
@@ -266,7 +267,8 @@ def stereographic_projection(
                     zorder=7,
                 )
         ax.scatter([0], [0], s=30, marker="+", c="#000000", linewidths=1.0, zorder=8, gid="mount")
-        ax.set_title(title or f"Poles around the mount face {hkl_text(m)} (stereographic, upper hemisphere)")
+        where = face_text(m, hexagonal)
+        ax.set_title(title or f"Poles around the mount face {where} (stereographic, upper hemisphere)")
         handles, _ = ax.get_legend_handles_labels()
         if handles:
             ax.legend(loc="upper left", bbox_to_anchor=(0.0, 1.0), fontsize=6.5, handletextpad=0.3)
@@ -310,7 +312,8 @@ def pole_figure(report: Any, crystal: Crystal, *, top: int = FIGURE_TOP, width_i
             tilt_sigma=None if m.tilt is None else m.tilt.sigma,
             highlight=probabilities,
             top=top,
-            title=f"{report.structure.formula}: candidate poles around the mount {hkl_text(report.mount)}",
+            title=f"{report.structure.formula}: candidate poles around the mount "
+            f"{face_text(report.mount, crystal.hexagonal_axes)}",
             width_in=width_in,
         )
     if isinstance(report, PlanesReport):
@@ -328,7 +331,7 @@ def pole_figure(report: Any, crystal: Crystal, *, top: int = FIGURE_TOP, width_i
             top=top,
             window=report.tilt_window,
             title=f"{report.structure.formula}: poles up to index {report.max_index} around the {where} "
-            f"{hkl_text(mount)}",
+            f"{face_text(mount, crystal.hexagonal_axes)}",
             width_in=width_in,
         )
     raise TypeError(f"pole_figure takes a MatchReport or a PlanesReport, got {type(report).__name__}")

@@ -84,7 +84,8 @@ def candidate_ladder(
         for s in ft.steps
         if s.from_label in wanted and s.to_label in wanted
     )
-    return StepLadder(name or f"{hkl_label(ft.face.hkl)} {'+'.join(labels)}", steps)
+    face = hkl_label(ft.face.hkl, hexagonal=crystal.hexagonal_axes)
+    return StepLadder(name or f"{face} {'+'.join(labels)}", steps)
 
 
 def _normal_sum(x: np.ndarray, values: np.ndarray, sigmas: np.ndarray) -> np.ndarray:
@@ -239,7 +240,8 @@ def match_step_figure(
             crystal,
             row.hkl,
             [t.label for t in row.terraces],
-            name=f"#{row.rank} {hkl_label(row.hkl)} {row.label}" + (f" {row.cell}" if row.cell else ""),
+            name=f"#{row.rank} {hkl_label(row.hkl, hexagonal=crystal.hexagonal_axes)} {row.label}"
+            + (f" {row.cell}" if row.cell else ""),
             max_height=limit,
             termination_options=termination_options,
         )
@@ -260,6 +262,7 @@ def terminations_step_figure(report: Any, *, width_in: float = 5.6) -> Any:
     return step_histogram(
         (),
         ladders,
-        title=f"{report.structure.formula} {hkl_label(report.hkl)}: allowed step heights (d = {report.d:.3f} Å)",
+        title=f"{report.structure.formula} {hkl_label(report.hkl, hexagonal=report.structure.hexagonal_axes)}: "
+        f"allowed step heights (d = {report.d:.3f} Å)",
         width_in=width_in,
     )

@@ -189,6 +189,7 @@ def simulated_topograph(
     span_angstrom: float | None = None,
     pixels: int = TOPOGRAPH_PIXELS,
     title: str | None = None,
+    hexagonal: bool | None = None,
     width_in: float | None = None,
 ) -> Any:
     """Simulated topograph of termination ``key`` (and a reconstruction cell), beside a measured map if given.
@@ -212,6 +213,8 @@ def simulated_topograph(
     pixels : int
         Pixels along each side of the simulation (8 to 1024).
     title : str, optional
+    hexagonal : bool, optional
+        Write the face (h k i l); default from ``crystal`` (three indices without it).
     width_in : float, optional
 
     Returns
@@ -251,7 +254,9 @@ def simulated_topograph(
         im = ax.imshow(shown, origin="lower", extent=(0, span, 0, span), cmap=cmap, gid="simulated topograph")
         ax.set_xlabel("x along e1 (Å)")
         ax.set_ylabel("y (Å)")
-        name = f"{hkl_label(ft.face.hkl)} {t.label}" + (f" {reconstruction.label}" if reconstruction else "")
+        four = bool(hexagonal) if hexagonal is not None else crystal is not None and crystal.hexagonal_axes
+        face = hkl_label(ft.face.hkl, hexagonal=four)
+        name = f"{face} {t.label}" + (f" {reconstruction.label}" if reconstruction else "")
         ax.set_title(f"simulated: {name}\napparent {_lattice_text(pattern)}", fontsize=7.5)
         bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
         bar.set_label("apparent height (scaled)", fontsize=6.5)

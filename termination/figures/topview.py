@@ -160,6 +160,7 @@ def termination_top_view(
     depth_angstrom: float | None = None,
     span_angstrom: float | None = None,
     title: str | None = None,
+    hexagonal: bool | None = None,
     width_in: float = 6.0,
 ) -> Any:
     """Top view of termination ``key``: atoms by species and depth, mesh, apparent lattice, cell, scale bar.
@@ -187,6 +188,8 @@ def termination_top_view(
     span_angstrom : float, optional
         Side of the square shown, Å; default three cells (at least 10 Å).
     title : str, optional
+    hexagonal : bool, optional
+        Write the face (h k i l); default from ``crystal`` (three indices without it).
     width_in : float
 
     Returns
@@ -400,5 +403,6 @@ def termination_top_view(
             title=f"atoms to {depth:.1f} Å deep,\npaler when deeper",
             title_fontsize=6.5,
         )
-        ax.set_title(title or f"{hkl_label(ft.face.hkl)} {t.label} ({t.id}) from above")
+        four = bool(hexagonal) if hexagonal is not None else crystal is not None and crystal.hexagonal_axes
+        ax.set_title(title or f"{hkl_label(ft.face.hkl, hexagonal=four)} {t.label} ({t.id}) from above")
     return fig

@@ -45,8 +45,8 @@ from termination.surface.corrugation import (
     termination_corrugation,
 )
 from termination.surface.domains import face_point_group
-from termination.surface.faces import distinct_faces, variant_tilts
-from termination.surface.miller import check_hkl, hkl_text
+from termination.surface.faces import distinct_faces, face_index, variant_tilts
+from termination.surface.miller import face_text
 from termination.surface.polarity import termination_polarity
 from termination.surface.reconstructions import Reconstruction
 from termination.surface.steps import allowed_heights
@@ -299,7 +299,7 @@ def candidate_table(
     model = model or MatchModel()
     vis = Visibility() if visibility is None else visibility
     specs = check_cells(cells)
-    mount = None if mount is None else check_hkl(mount, "mount")
+    mount = None if mount is None else face_index(crystal, mount, "mount")
     faces = distinct_faces(crystal, max_index=max_index, mount=mount)
     # Checked once for the crystal: per termination a species that is merely
     # absent from the top unit makes that termination flat, which is a result.
@@ -443,7 +443,7 @@ def candidate_table(
         if not count:
             notes = [*notes, f"cell {label} fits the mesh of no face up to index {int(max_index)}: not tried"]
     for label, seen in domains_seen.items():
-        parts = [f"{hkl_text(hkl)} {' + '.join(names)}" for hkl, names in seen[:4]]
+        parts = [f"{face_text(hkl, crystal.hexagonal_axes)} {' + '.join(names)}" for hkl, names in seen[:4]]
         more = f"; and {len(seen) - 4} more faces" if len(seen) > 4 else ""
         notes = [*notes, f"cell {label}, rotational domains superposed: " + "; ".join(parts) + more]
     if specs:

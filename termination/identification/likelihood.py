@@ -510,7 +510,13 @@ def score(table: CandidateTable, measurement: Measurement, top: int | None = Non
     faces = _face_marginals(cands, prob)
     fit = _fit(rows_all[0], model)
     decision: Verdict = verdict(
-        rows_all, [cands[i] for i in order], faces, fit, len(cands), default_visibility=table.visibility == Visibility()
+        rows_all,
+        [cands[i] for i in order],
+        faces,
+        fit,
+        len(cands),
+        default_visibility=table.visibility == Visibility(),
+        hexagonal=table.structure.hexagonal_axes,
     )
     shown = rows_all if top is None else rows_all[: int(top)]
     notes = table.notes + (

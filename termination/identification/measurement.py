@@ -129,8 +129,9 @@ class Measurement:
 
     Parameters
     ----------
-    mount : tuple of 3 int or None
-        Miller indices of the face the crystal was mounted on.
+    mount : tuple of 3 or 4 int or None
+        Miller indices of the face the crystal was mounted on; four are a
+        Miller-Bravais index (h k i l) of a lattice with hexagonal axes.
     max_index : int or None
         Largest Miller index of the candidate faces to consider.
     tilt : Value or None
@@ -157,7 +158,7 @@ class Measurement:
         Cells of your own to try as candidates: Wood notation or a matrix ('2x1', 'c(2x2)', '2 0 0 1').
     """
 
-    mount: tuple[int, int, int] | None = None
+    mount: tuple[int, ...] | None = None
     max_index: int | None = None
     tilt: Value | None = field(default=None, metadata=DEG)
     row_angle: Value | None = field(default=None, metadata=DEG)
@@ -175,17 +176,22 @@ class Measurement:
 
 
 def _check_mount(mount, what="mount"):
-    if isinstance(mount, (str, bytes)) or not hasattr(mount, "__len__") or len(mount) != 3:
-        raise MeasurementError(f"{what} must be three integers (h, k, l), got {mount!r}")
+    wanted = "three integers (h, k, l) or four (h, k, i, l)"
+    if isinstance(mount, (str, bytes)) or not hasattr(mount, "__len__") or len(mount) not in (3, 4):
+        raise MeasurementError(f"{what} must be {wanted}, got {mount!r}")
     out = []
     for m in mount:
         if isinstance(m, bool) or not isinstance(m, int):
             if isinstance(m, float) and m.is_integer():
                 m = int(m)
             else:
-                raise MeasurementError(f"{what} must be three integers (h, k, l), got {list(mount)!r}")
+                raise MeasurementError(f"{what} must be {wanted}, got {list(mount)!r}")
         out.append(int(m))
-    if out == [0, 0, 0]:
+    if len(out) == 4 and out[2] != -(out[0] + out[1]):
+        raise MeasurementError(
+            f"{what} {out}: in a Miller-Bravais index (h, k, i, l) i must be -(h + k) = {-(out[0] + out[1])}"
+        )
+    if out in ([0, 0, 0], [0, 0, 0, 0]):
         raise MeasurementError(f"{what} (0 0 0) is not a face; give three integers not all zero")
     return tuple(out)
 
@@ -486,7 +492,7 @@ def format_measurement(measurement, *, comment=None):
     if comment:
         lines += [("# " + line).rstrip() for line in str(comment).splitlines()]
     if m.mount is not None:
-        lines.append(f"mount = [{m.mount[0]}, {m.mount[1]}, {m.mount[2]}]")
+        lines.append(f"mount = [{', '.join(str(v) for v in m.mount)}]")
     if m.max_index is not None:
         lines.append(f"max_index = {m.max_index}")
     if m.tilt is not None:

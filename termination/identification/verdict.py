@@ -13,13 +13,14 @@ says so instead of asking for more data.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from termination.identification.candidates import Candidate
 from termination.identification.fit import FitCheck
-from termination.surface.miller import hkl_text
+from termination.surface.miller import face_text
 
 __all__ = ["Verdict", "same_predictions", "separating_measurement", "verdict"]
 
@@ -33,17 +34,18 @@ class Verdict:
     warning: str | None
 
 
-def _describe(row: Any) -> str:
+def _describe(row: Any, hexagonal: bool) -> str:
     cell = "" if row.cell is None else f" {row.cell}"
+    face = face_text(row.hkl, hexagonal)
     if len(row.terraces) > 1:
         parts = " and ".join(t.label for t in row.terraces)
         shares = "/".join(f"{f:.2f}" for f in row.fractions)
-        return f"{hkl_text(row.hkl)} with {parts} terraces (fractions {shares}){cell}"
-    return f"{hkl_text(row.hkl)} {row.termination.label}-terminated{cell}"
+        return f"{face} with {parts} terraces (fractions {shares}){cell}"
+    return f"{face} {row.termination.label}-terminated{cell}"
 
 
-def _short(row: Any) -> str:
-    return f"{hkl_text(row.hkl)} {row.label}" + ("" if row.cell is None else f" {row.cell}")
+def _short(row: Any, hexagonal: bool) -> str:
+    return f"{face_text(row.hkl, hexagonal)} {row.label}" + ("" if row.cell is None else f" {row.cell}")
 
 
 def _rounded(values: Sequence[float], step: float) -> tuple[float, ...]:
@@ -71,11 +73,14 @@ def same_predictions(a: Candidate, b: Candidate, *, labels: bool = True) -> bool
     return _rounded(a.step_heights, 0.01) == _rounded(b.step_heights, 0.01)
 
 
-def separating_measurement(a: Candidate, b: Candidate, others: Sequence[Candidate] = ()) -> str:
+def separating_measurement(
+    a: Candidate, b: Candidate, others: Sequence[Candidate] = (), hexagonal: bool = False
+) -> str:
     """What to measure to tell candidate ``a`` from ``b``, in words.
 
     ``others`` are the remaining candidates: a mixed surface of the two
     terminations among them gives the step that joins their terraces.
+    ``hexagonal``: faces are written (h k i l).
     """
     out = []
     if a.tilts and b.tilts:
@@ -109,25 +114,33 @@ def separating_measurement(a: Candidate, b: Candidate, others: Sequence[Candidat
         ]
         if cross:
             out.append(f"a step of {min(cross):.2f} Å between their terraces")
-        out.append("which species images (STM contrast at both bias polarities; --visible)")
+        if _elements(a) != _elements(b):
+            out.append("which species images (STM contrast at both bias polarities; --visible)")
+        else:
+            out.append("the corrugation at atomic resolution (their tops differ in structure, not in species)")
     elif only or only_b:
-        h, owner = (min(only), _short_c(a)) if only else (min(only_b), _short_c(b))
+        h, owner = (min(only), _short_c(a, hexagonal)) if only else (min(only_b), _short_c(b, hexagonal))
         out.append(f"a step of {h:.2f} Å (allowed on {owner} only)")
     return "; ".join(dict.fromkeys(out)) or "a second spacing or more step heights"
+
+
+def _elements(c: Candidate) -> set[str]:
+    """Chemical elements named in a candidate's termination labels."""
+    return {el for ref in c.classes for el in re.findall(r"[A-Z][a-z]?", ref.label)}
 
 
 def _class_of(c: Candidate, termination_id: str) -> int:
     return next(i for i, members in enumerate(c.members) if termination_id in members)
 
 
-def _short_c(c: Candidate) -> str:
-    return f"{hkl_text(c.hkl)} {c.label}"
+def _short_c(c: Candidate, hexagonal: bool) -> str:
+    return f"{face_text(c.hkl, hexagonal)} {c.label}"
 
 
 _TERM_NAMES = {"tilt": "the tilt", "lattice": "the corrugation lattice", "steps": "the step heights"}
 
 
-def _decided_by(best: Any, runner: Any, default_visibility: bool) -> str:
+def _decided_by(best: Any, runner: Any, default_visibility: bool, hexagonal: bool) -> str:
     diffs = {}
     for key in ("tilt", "lattice", "steps"):
         x, y = getattr(best.terms, key), getattr(runner.terms, key)
@@ -135,10 +148,10 @@ def _decided_by(best: Any, runner: Any, default_visibility: bool) -> str:
             diffs[key] = (x if math.isfinite(x) else -1e300) - (y if math.isfinite(y) else -1e300)
     prior = best.terms.log_prior - runner.terms.log_prior
     if not diffs or max(diffs.values()) < 1.0:
-        return f"prior only: the measurements cannot separate it from {_short(runner)}"
+        return f"prior only: the measurements cannot separate it from {_short(runner, hexagonal)}"
     key = max(diffs, key=lambda k: diffs[k])
     gain = diffs[key]
-    text = f"{_TERM_NAMES[key]} (log-likelihood {gain:+.1f} over {_short(runner)}"
+    text = f"{_TERM_NAMES[key]} (log-likelihood {gain:+.1f} over {_short(runner, hexagonal)}"
     text += f"; prior {prior:+.1f})" if abs(prior) >= 0.05 else ")"
     if key == "lattice" and default_visibility and best.hkl == runner.hkl:
         text += (
@@ -155,6 +168,7 @@ def verdict(
     n_candidates: int,
     *,
     default_visibility: bool,
+    hexagonal: bool = False,
 ) -> Verdict:
     """The verdict of a ranking.
 
@@ -168,6 +182,8 @@ def verdict(
     n_candidates : int
     default_visibility : bool
         Whether the imaging model is the default (every species alike).
+    hexagonal : bool
+        The crystal has hexagonal axes: faces are written (h k i l).
     """
     best, cbest = rows[0], candidates[0]
     twins = [r for r, c in zip(rows[1:], candidates[1:]) if same_predictions(cbest, c)]
@@ -176,8 +192,8 @@ def verdict(
     face_p = next((f.probability for f in faces if f.hkl == best.hkl), best.probability)
     if fit.fits:
         text = (
-            f"Most likely {_describe(best)}, probability {best.probability:.2f} among {n_candidates} candidates; "
-            f"face {hkl_text(best.hkl)} with probability {face_p:.2f} over its terminations "
+            f"Most likely {_describe(best, hexagonal)}, probability {best.probability:.2f} among {n_candidates} "
+            f"candidates; face {face_text(best.hkl, hexagonal)} with probability {face_p:.2f} over its terminations "
             "(a ranked hypothesis, not proof)."
         )
     else:
@@ -185,18 +201,19 @@ def verdict(
             "No candidate explains the measurements within their uncertainties "
             f"(chi-square {fit.chi_square:.1f} for {fit.dof} values, p = {fit.p_value:.2g}; "
             f"{fit.step_outliers} step outliers, {fit.allowed_step_outliers} allowed). "
-            f"Closest: {_describe(best)}. Likely causes: " + "; ".join(fit.causes) + "."
+            f"Closest: {_describe(best, hexagonal)}. Likely causes: " + "; ".join(fit.causes) + "."
         )
     if twins:
-        names = ", ".join(sorted({_short(r) for r in twins}))
+        names = ", ".join(sorted({_short(r, hexagonal) for r in twins}))
         text += f" {names} predicts the same topography: these measurements cannot tell them apart."
     if runner is None:
         return Verdict(text, "only candidate with these predictions", None)
-    decided = _decided_by(best, runner, default_visibility)
+    decided = _decided_by(best, runner, default_visibility, hexagonal)
     warning = None
     if runner.probability > 0 and best.probability / runner.probability < 2.0:
+        separate = separating_measurement(cbest, crunner, candidates, hexagonal)
         warning = (
-            f"Ambiguous: the runner-up {_short(runner)} is within a factor of 2 (p = {runner.probability:.2f}); "
-            f"to separate them measure {separating_measurement(cbest, crunner, candidates)}."
+            f"Ambiguous: the runner-up {_short(runner, hexagonal)} is within a factor of 2 "
+            f"(p = {runner.probability:.2f}); to separate them measure {separate}."
         )
     return Verdict(text, decided, warning)

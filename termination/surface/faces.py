@@ -8,7 +8,7 @@ reciprocal vector G = h b1 + k b2 + l b3.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import SupportsFloat, SupportsInt, cast
@@ -31,6 +31,7 @@ __all__ = [
     "Mesh",
     "distinct_faces",
     "face_geometry",
+    "face_index",
     "face_variants",
     "interplanar_angle",
     "tilt_to_mount",
@@ -110,9 +111,24 @@ def _miller_rotations(crystal: Crystal) -> IntArray:
     return np.rint(np.linalg.inv(crystal.point_group)).astype(np.int64)
 
 
+def face_index(crystal: Crystal, hkl: Iterable[SupportsFloat], name: str = "plane") -> HKL:
+    """A face given with three indices, or four (Miller-Bravais) in a lattice with hexagonal axes, as (h k l).
+
+    See :func:`termination.surface.miller.check_hkl`; four indices are
+    refused for a crystal whose standard cell has no hexagonal axes.
+    """
+    values = list(hkl) if isinstance(hkl, Sequence | np.ndarray) else hkl
+    if isinstance(values, list) and len(values) == 4 and not crystal.hexagonal_axes:
+        raise PlaneError(
+            f"{name} ({' '.join(str(v) for v in values)}): four (Miller-Bravais) indices apply to hexagonal and "
+            f"trigonal lattices only, and {crystal.formula} is {crystal.crystal_system}; give three indices (h k l)"
+        )
+    return check_hkl(values, name, hexagonal=crystal.hexagonal_axes)
+
+
 def face_variants(crystal: Crystal, hkl: Iterable[SupportsFloat]) -> tuple[HKL, ...]:
     """Symmetry-equivalent Miller indices of ``hkl``, sorted, as tuples."""
-    h = np.asarray(check_hkl(hkl), dtype=np.int64)
+    h = np.asarray(face_index(crystal, hkl), dtype=np.int64)
     orbit = np.einsum("i,pij->pj", h, _miller_rotations(crystal))
     return tuple(sorted({hkl_tuple(v) for v in orbit}))
 
@@ -124,15 +140,33 @@ def _choice_key(v: Sequence[int]) -> tuple[int, int, int, int, int]:
     return (negatives, unsorted, -v[2], -v[1], -v[0])
 
 
-def _representative(orbit: set[HKL], laue_orbit: set[HKL]) -> HKL:
+def _hexagonal_choice_key(v: Sequence[int]) -> tuple[int, int, int, int, int, int]:
+    """Preference among variants in hexagonal axes: (h k i l) with h >= k >= 0, then larger l, h, k.
+
+    So the families read (1 0 -1 0), (1 1 -2 0), (1 0 -1 1), (2 -1 -1 0) as
+    practitioners write them.
+    """
+    h, k, l = v[0], v[1], v[2]
+    negatives = (h < 0) + (k < 0) + (l < 0)
+    return (negatives, 0 if h >= k >= 0 else 1, 0 if h >= 0 and k >= 0 else 1, -l, -h, -k)
+
+
+def _key_for(crystal: Crystal) -> Callable[[Sequence[int]], tuple[int, ...]]:
+    """The preference key of readable variants for the crystal's axes."""
+    return _hexagonal_choice_key if crystal.hexagonal_axes else _choice_key
+
+
+def _representative(
+    orbit: set[HKL], laue_orbit: set[HKL], key: Callable[[Sequence[int]], tuple[int, ...]] = _choice_key
+) -> HKL:
     """Readable representative: the Laue choice r if in the orbit, else -r, else the best."""
-    r = min(laue_orbit, key=_choice_key)
+    r = min(laue_orbit, key=key)
     if r in orbit:
         return r
     neg = (-r[0], -r[1], -r[2])
     if neg in orbit:
         return neg
-    return min(orbit, key=_choice_key)
+    return min(orbit, key=key)
 
 
 def face_geometry(crystal: Crystal, hkl: Iterable[SupportsFloat], mount: Iterable[SupportsFloat] | None = None) -> Face:
@@ -159,9 +193,9 @@ def face_geometry(crystal: Crystal, hkl: Iterable[SupportsFloat], mount: Iterabl
     vector (column 1).  Then d = 1/|h_p B_p| with B_p the reciprocal of P,
     which includes the centring: fcc (001) gives a/2 and fcc (012) a/(2 sqrt 5).
     """
-    h = check_hkl(hkl)
+    h = face_index(crystal, hkl)
     variants = face_variants(crystal, h)
-    return _geometry(crystal, h, variants, None if mount is None else check_hkl(mount, "mount"))
+    return _geometry(crystal, h, variants, None if mount is None else face_index(crystal, mount, "mount"))
 
 
 @lru_cache(maxsize=32)
@@ -235,8 +269,8 @@ def interplanar_angle(crystal: Crystal, hkl1: Iterable[SupportsFloat], hkl2: Ite
     cos phi = h1 G* h2 / (|h1| |h2|) with G* = B B^T the reciprocal metric.
     """
     B = crystal.reciprocal
-    g1 = np.asarray(check_hkl(hkl1), dtype=float) @ B
-    g2 = np.asarray(check_hkl(hkl2), dtype=float) @ B
+    g1 = np.asarray(face_index(crystal, hkl1), dtype=float) @ B
+    g2 = np.asarray(face_index(crystal, hkl2), dtype=float) @ B
     c = g1 @ g2 / (np.linalg.norm(g1) * np.linalg.norm(g2))
     return float(np.degrees(np.arccos(np.clip(c, -1.0, 1.0))))
 
@@ -292,7 +326,8 @@ def tilt_to_mount(
     angles = variant_tilts(crystal, rows, m)
     # Deterministic tie-break: smallest angle, then the preferred index form.
     rounded = np.round(angles, 6)
-    order = sorted(range(len(rows)), key=lambda i: (float(rounded[i]), _choice_key(rows[i])))
+    key = _key_for(crystal)
+    order = sorted(range(len(rows)), key=lambda i: (float(rounded[i]), key(rows[i])))
     best = order[0]
     tilt = float(angles[best])
     variant = rows[best]
@@ -333,12 +368,13 @@ def distinct_faces(
         raise PlaneError(f"max index must be an integer, got {max_index!r}") from None
     if n != max_index or not 1 <= n <= MAX_INDEX_LIMIT:
         raise PlaneError(f"max index must be an integer from 1 to {MAX_INDEX_LIMIT}, got {max_index}")
-    mount_hkl = None if mount is None else check_hkl(mount, "mount")
+    mount_hkl = None if mount is None else face_index(crystal, mount, "mount")
     r = np.arange(-n, n + 1)
     grid = np.array(np.meshgrid(r, r, r, indexing="ij")).reshape(3, -1).T
     g = np.gcd.reduce(np.abs(grid), axis=1)
     grid = grid[g == 1]
     rots = _miller_rotations(crystal)
+    key = _key_for(crystal)
     orbits = np.einsum("hi,pij->hpj", grid, rots)  # (H, P, 3)
     width = 2 * n + 1
     codes = ((orbits[..., 0] + n) * width + (orbits[..., 1] + n)) * width + (orbits[..., 2] + n)
@@ -348,9 +384,9 @@ def distinct_faces(
     for i in first:
         orbit = {hkl_tuple(v) for v in orbits[i].tolist()}
         laue = orbit | {(-v[0], -v[1], -v[2]) for v in orbit}
-        rep = _representative(orbit, laue)
+        rep = _representative(orbit, laue, key)
         faces.append(_geometry(crystal, rep, tuple(sorted(orbit)), mount_hkl))
-    faces.sort(key=lambda f: (sum(x * x for x in f.hkl), _choice_key(f.hkl)))
+    faces.sort(key=lambda f: (sum(x * x for x in f.hkl), key(f.hkl)))
     return tuple(faces)
 
 
@@ -418,7 +454,7 @@ def tilt_window(
     >>> sorted({r.hkl for r in rows}), round(rows[0].tilt, 1), len(rows)
     ([(1, 1, 3)], 72.5, 8)
     """
-    m = check_hkl(mount, "mount")
+    m = face_index(crystal, mount, "mount")
     lo, hi = float(min_tilt_deg), float(max_tilt_deg)
     if not (np.isfinite(lo) and np.isfinite(hi) and 0.0 <= lo <= hi <= 180.0):
         raise PlaneError(

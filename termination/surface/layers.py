@@ -67,8 +67,10 @@ class FaceAtoms:
 class Layer:
     """One atomic layer of the period.
 
-    ``height`` is its mean height in [0, d); ``depth`` is measured down from
-    the highest layer of the period; ``atoms`` index :class:`FaceAtoms`;
+    ``height`` is its mean height in [0, d) along the normal, from the
+    crystal's origin; ``depth`` is measured down from the top layer of the
+    face's first termination T1, in [0, d), and so does not depend on the
+    origin; ``atoms`` index :class:`FaceAtoms`;
     ``composition`` counts atoms per surface primitive cell.
     """
 

@@ -19,7 +19,16 @@ Rules (documented in the README):
    related by a space-group operation that maps the face onto itself
    (h R^-1 = h) are equivalent: they share a label and the relating in-plane
    rotation or mirror is given.
-5. A step from a terrace of termination i up to one of termination j has the
+5. A cut that no bond crosses (in a crystal that has bonds) is a van der
+   Waals gap: when the face has one, only such gaps are cuts, and the unit
+   between two of them is a van der Waals layer (a graphene sheet, an MoS2
+   sandwich, a Bi2Se3 quintuple layer).
+6. Terminations are ordered by broken-bond density, then by the composition
+   of their unit and the layer stack below it (gaps and compositions, which
+   do not depend on the crystal's origin): T1 comes first, and depths are
+   measured down from its top layer; inequivalent namesakes get primes in
+   this order.
+7. A step from a terrace of termination i up to one of termination j has the
    height delta_ij + n d, delta_ij = (z_j - z_i) mod d with z the height of
    the top layer.
 """
@@ -90,13 +99,13 @@ class Termination:
     Attributes
     ----------
     id : str
-        'T1', 'T2', ... in order of increasing broken-bond density.
+        'T1', 'T2', ... in order of increasing broken-bond density (ties: module notes, rule 6).
     label : str
         Composition of the top unit, electropositive element first ('SrO', 'B6').
     composition : dict of str to int
         Atoms of the top unit per surface primitive cell.
     depth : float
-        Depth of the top layer below the highest layer of the period, Å.
+        Depth of the top layer below the top layer of T1, in [0, d), Å.
     layers : tuple of int
         Layer indices of the top unit, top first.
     cut_height : float
@@ -107,6 +116,9 @@ class Termination:
         Id of the first symmetry-equivalent termination, if any.
     relation : str or None
         How it relates to that termination ('rotated 90°', 'mirror at 45°').
+    van_der_waals : bool
+        The top unit is a van der Waals layer: no bond crosses the cuts above
+        and below it.
     """
 
     id: str
@@ -119,6 +131,7 @@ class Termination:
     weighted_bonds_per_nm2: float = field(metadata=PER_NM2)
     equivalent_to: str | None
     relation: str | None
+    van_der_waals: bool = False
 
 
 @dataclass(frozen=True)
@@ -219,18 +232,16 @@ class FaceTerminations:
         z_top = self._top_height(t)
         # depth of image k of atom i: z_top - (z_i + k d)
         base = z_top - a.heights
-        kmin = np.floor((base - dmax) / d).astype(int)
-        kmax = np.ceil((base - dmin) / d).astype(int)
-        rows: list[int] = []
-        images: list[int] = []
-        for i in range(len(base)):
-            for k in range(kmin[i], kmax[i] + 1):
-                z = base[i] - k * d
-                if dmin <= z <= dmax:
-                    rows.append(i)
-                    images.append(k)
-        idx = np.array(rows, dtype=np.int64)
-        ks = np.array(images, dtype=np.float64)
+        kmin = np.floor((base - dmax) / d).astype(np.int64)
+        kmax = np.ceil((base - dmin) / d).astype(np.int64)
+        n_images = np.maximum(kmax - kmin + 1, 0)
+        rows = np.repeat(np.arange(len(base)), n_images)
+        first = np.repeat(np.cumsum(n_images) - n_images, n_images)
+        images = np.repeat(kmin, n_images) + (np.arange(len(rows)) - first)
+        z_all = base[rows] - images * d
+        inside = (z_all >= dmin) & (z_all <= dmax)
+        idx = rows[inside].astype(np.int64)
+        ks = images[inside].astype(np.float64)
         depth = base[idx] - ks * d
         inplane = a.inplane[idx] + ks[:, None] * a.stack_inplane[None, :]
         allowed = [c.height for c in self.cuts if c.allowed]
@@ -308,11 +319,27 @@ class _Candidate(NamedTuple):
 
     k: int
     comp: dict[str, int]
-    depth: float
     layers: tuple[int, ...]
     cut: float
     bb: float
     wb: float
+    key: tuple[object, ...]
+
+
+def _signature(k: int, centres: FloatArray, comps: list[dict[str, int]], d: float) -> tuple[object, ...]:
+    """The layer stack read down one period from layer ``k``: (gap to the next layer, composition) per layer.
+
+    Heights are differences, so the signature does not depend on the
+    crystal's origin; symmetry-equivalent terminations have equal ones.
+    """
+    nl = len(centres)
+    out: list[object] = []
+    for j in range(nl):
+        m = (k + j) % nl
+        below = centres[(m + 1) % nl]
+        gap = (centres[m] - below) % d if nl > 1 else d
+        out.append((round(float(gap), 4), tuple(sorted(comps[m].items()))))
+    return tuple(out)
 
 
 def _face_terminations(
@@ -323,26 +350,20 @@ def _face_terminations(
     atoms = face_atoms(crystal, face)
     labels, centres = cluster_layers(atoms.heights, d, tol)
     nl = len(centres)
-    # Top-first numbering: layer 0 is the highest of the period.
+    # Top-first numbering: layer k+1 lies below layer k (cyclically); renumbered below so that
+    # layer 0 is the top layer of T1.
     top_first = np.argsort(-centres, kind="stable")
     new_index = np.empty(nl, dtype=np.int64)
     new_index[top_first] = np.arange(nl)
     labels = new_index[labels]
     centres = centres[top_first]
-    layers = []
-    for k in range(nl):
-        in_layer = [int(i) for i in np.flatnonzero(labels == k)]
+    members = [[int(i) for i in np.flatnonzero(labels == k)] for k in range(nl)]
+    comps: list[dict[str, int]] = []
+    for in_layer in members:
         comp: dict[str, int] = {}
         for i in in_layer:
             comp[atoms.species[i]] = comp.get(atoms.species[i], 0) + 1
-        layers.append(
-            Layer(
-                height=float(centres[k]),
-                depth=float(centres[0] - centres[k]),
-                composition=comp,
-                atoms=tuple(in_layer),
-            )
-        )
+        comps.append(comp)
 
     # Gaps: below layer k (top-first) lies layer k+1; the gap above layer k is
     # between layer k and the layer above it (k-1, or the last one one period up).
@@ -360,29 +381,19 @@ def _face_terminations(
         allowed &= weighted <= ZERO_EPS
     else:
         allowed &= weighted <= ratio * wmin * (1 + ROUNDING_EPS)
-    cuts = tuple(
-        Cut(
-            height=float(cut_heights[k]),
-            below=k,
-            above=above_of[k],
-            broken_bonds=float(counts[k]),
-            weighted_bonds=float(weighted[k]),
-            unit_bonds=float(unit[k]),
-            allowed=bool(allowed[k]),
-        )
-        for k in range(nl)
-    )
+    # A cut no bond crosses, in a crystal that has bonds, is a van der Waals gap.
+    gap = (counts <= ZERO_EPS) & (len(graph.length) > 0)
 
     # Units: from an allowed cut above layer k down to the next allowed cut.
     allowed_layers = [k for k in range(nl) if allowed[k]]
     units: dict[int, tuple[int, ...]] = {}
     for k in allowed_layers:
-        members = [k]
+        unit_members = [k]
         j = (k + 1) % nl
         while not allowed[j]:
-            members.append(j)
+            unit_members.append(j)
             j = (j + 1) % nl
-        units[k] = tuple(members)
+        units[k] = tuple(unit_members)
 
     classes, relations = _equivalence(crystal, face, cut_heights, allowed_layers, tol, d)
 
@@ -390,23 +401,49 @@ def _face_terminations(
     for k in allowed_layers:
         unit_comp: dict[str, int] = {}
         for m in units[k]:
-            for el, n in layers[m].composition.items():
+            for el, n in comps[m].items():
                 unit_comp[el] = unit_comp.get(el, 0) + n
-        raw.append(
-            _Candidate(
-                k=k,
-                comp=unit_comp,
-                depth=layers[k].depth,
-                layers=units[k],
-                cut=float(cut_heights[k]),
-                bb=float(counts[k] / area_nm2),
-                wb=float(weighted[k] / area_nm2),
-            )
-        )
-    order = sorted(range(len(raw)), key=lambda i: (round(raw[i].bb, 6), round(raw[i].wb, 6), raw[i].depth))
+        bb, wb = float(counts[k] / area_nm2), float(weighted[k] / area_nm2)
+        key = (round(bb, 6), round(wb, 6), composition_label(unit_comp), _signature(k, centres, comps, d))
+        raw.append(_Candidate(k, unit_comp, units[k], float(cut_heights[k]), bb, wb, key))
+    # Cheapest first; ties by the unit's composition and the stack below it, which do not depend
+    # on the crystal's origin (the layer heights do): T1, its depth reference and the primes are
+    # the same for any input setting.  Candidates still tied are equivalent or look alike.
+    order = sorted(range(len(raw)), key=lambda i: (raw[i].key, raw[i].k))
     ids = {raw[i].k: f"T{n + 1}" for n, i in enumerate(order)}
 
-    # Labels: equivalent terminations share one; inequivalent namesakes get primes.
+    # Renumber the layers so that layer 0 is the top layer of T1, and measure depths from it.
+    ref = raw[order[0]].k
+    renumber = [(k - ref) % nl for k in range(nl)]
+    by_new = sorted(range(nl), key=lambda k: renumber[k])
+    layers = [
+        Layer(
+            height=float(centres[k]),
+            depth=float((centres[ref] - centres[k]) % d) if k != ref else 0.0,
+            composition=comps[k],
+            atoms=tuple(members[k]),
+        )
+        for k in by_new
+    ]
+    cuts = tuple(
+        sorted(
+            (
+                Cut(
+                    height=float(cut_heights[k]),
+                    below=renumber[k],
+                    above=renumber[above_of[k]],
+                    broken_bonds=float(counts[k]),
+                    weighted_bonds=float(weighted[k]),
+                    unit_bonds=float(unit[k]),
+                    allowed=bool(allowed[k]),
+                )
+                for k in range(nl)
+            ),
+            key=lambda c: c.below,
+        )
+    )
+
+    # Labels: equivalent terminations share one; inequivalent namesakes get primes in the order above.
     rep_of = {
         k: min((j for j in allowed_layers if classes[j] == classes[k]), key=lambda j: ids[j]) for k in allowed_layers
     }
@@ -424,18 +461,20 @@ def _face_terminations(
         r = raw[i]
         k = r.k
         rep = rep_of[k]
+        below_unit = (r.layers[-1] + 1) % nl
         found.append(
             Termination(
                 id=ids[k],
                 label=label_of[rep],
                 composition=r.comp,
-                depth=r.depth,
-                layers=r.layers,
+                depth=layers[renumber[k]].depth,
+                layers=tuple(renumber[m] for m in r.layers),
                 cut_height=r.cut,
                 broken_bonds_per_nm2=r.bb,
                 weighted_bonds_per_nm2=r.wb,
                 equivalent_to=None if rep == k else ids[rep],
                 relation=None if rep == k else relations.get((rep, k)),
+                van_der_waals=bool(gap[k] and gap[below_unit]),
             )
         )
     terminations = tuple(found)
@@ -465,8 +504,14 @@ def _crossings(
 
     ``cut_heights`` (C,) are the heights of the cut planes in [0, d), Å.
 
+    Notes
+    -----
     A bond from height z to z + dz (dz > 0) crosses the planes c + k d with
-    z < c + k d <= z + dz; their number is floor((z + dz - c)/d) - floor((z - c)/d).
+    z < c + k d <= z + dz; their number is floor((z + dz - c)/d) -
+    floor((z - c)/d).  With z in [0, d) and dz = m d + r (0 <= r < d) that is
+    m for every cut plus one for the cuts with c in (z, z + r] (modulo d), so
+    each bond adds m everywhere and one on an arc of heights: a sorted sweep
+    over the cuts, O((B + C) log C), with no B x C array.
     """
     d = face.d
     G = np.asarray(face.hkl, dtype=float) @ crystal.reciprocal
@@ -474,15 +519,39 @@ def _crossings(
     z_conv = (crystal.positions @ np.asarray(face.hkl, dtype=float)) / gnorm % d
     dz = graph.vector @ (G / gnorm)
     up = dz > ROUNDING_EPS
-    z0 = z_conv[graph.source[up]][:, None]
-    z1 = z0 + dz[up][:, None]
-    c = cut_heights[None, :]
-    n = np.floor((z1 - c) / d) - np.floor((z0 - c) / d)
+    z0 = z_conv[graph.source[up]]
+    step = dz[up]
+    full = np.floor(step / d)
+    rest = step - full * d
+    z1 = z0 + rest
     per_cell = 1.0 / len(crystal.centring)
-    counts = n.sum(axis=0) * per_cell
-    weighted = (n * graph.weight[up][:, None]).sum(axis=0) * per_cell
-    unit = (n * graph.unit[up][:, None]).sum(axis=0) * per_cell
-    return counts, weighted, unit
+    weights = (
+        np.ones(len(z0)),
+        graph.weight[up].astype(np.float64),
+        graph.unit[up].astype(np.float64),
+    )
+    order = np.argsort(cut_heights, kind="stable")
+    sorted_cuts = cut_heights[order]
+    n_cuts = len(cut_heights)
+
+    def arc(lo: FloatArray, hi: FloatArray, w: FloatArray) -> FloatArray:
+        """Sum of w over the arcs (lo, hi] (lo < hi, both in [0, 2d)), evaluated at every sorted cut."""
+        total = np.zeros(n_cuts + 1)
+        for shift in (0.0, d):
+            # planes c + shift in (lo, hi]: sorted cuts from a (first c > lo - shift) to b (first c > hi - shift)
+            a = np.searchsorted(sorted_cuts, lo - shift, side="right")
+            b = np.searchsorted(sorted_cuts, hi - shift, side="right")
+            np.add.at(total, a, w)
+            np.add.at(total, b, -w)
+        return np.cumsum(total)[:n_cuts]
+
+    out = []
+    for w in weights:
+        per_sorted = arc(z0, z1, w) + float((full * w).sum())
+        values = np.empty(n_cuts)
+        values[order] = per_sorted
+        out.append(values * per_cell)
+    return out[0], out[1], out[2]
 
 
 def _equivalence(

@@ -4,6 +4,7 @@ Wall time (median of ``--repeats`` fresh interpreters) of
 
 - the baseline ``python -c "import numpy, spglib"``,
 - ``termination planes rocksalt:Na,Cl --max-index 1``,
+- ``termination planes NaCl.vasp --max-index 1`` (a POSCAR file),
 - ``termination match --demo``,
 
 and each command's ratio to the baseline (target: within 3x).  A run with
@@ -20,6 +21,7 @@ import re
 import statistics
 import subprocess
 import sys
+import tempfile
 import time
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
@@ -28,8 +30,11 @@ HEAVY = ("pymatgen", "ase", "scipy", "matplotlib")
 TARGET_RATIO = 3.0
 
 BASELINE = ("import numpy, spglib", [sys.executable, "-c", "import numpy, spglib"])
+# A POSCAR of rock salt, read by the package's own reader (no ASE, no scipy).
+POSCAR = os.path.join(tempfile.gettempdir(), "termination-bench-NaCl.vasp")
 COMMANDS = [
     ("planes rocksalt:Na,Cl --max-index 1", [*CLI, "planes", "rocksalt:Na,Cl", "--max-index", "1"]),
+    ("planes NaCl.vasp --max-index 1", [*CLI, "planes", POSCAR, "--max-index", "1"]),
     ("match --demo", [*CLI, "match", "--demo"]),
 ]
 
@@ -80,6 +85,8 @@ def main(argv=None):
     parser.add_argument("--repeats", type=int, default=7)
     args = parser.parse_args(argv)
     commands = list(COMMANDS)
+    with open(POSCAR, "w") as fh:
+        fh.write("NaCl\n5.64\n0 .5 .5\n.5 0 .5\n.5 .5 0\nNa Cl\n1 1\nDirect\n0 0 0\n.5 .5 .5\n")
 
     base, *medians = wall_times([BASELINE[1]] + [cmd for _, cmd in commands], args.repeats)
     print(f"median of {args.repeats} fresh interpreters each, taking turns; {sys.executable}")

@@ -35,7 +35,7 @@ def test_structures_lists_prototypes():
     r = invoke("structures", "--wide")
     assert r.exit_code == 0 and "half-heusler" in r.output and "4b" in r.output
     data = json.loads(invoke("structures", "--json").stdout)
-    assert any(p["name"] == "hexaboride" and p["free_parameter_x"] == 0.2 for p in data["prototypes"])
+    assert any(p["name"] == "hexaboride" and p["parameters"] == {"x": 0.2} for p in data["prototypes"])
 
 
 def test_bad_inputs_give_one_line_and_exit_code_2(tmp_path):

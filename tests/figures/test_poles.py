@@ -96,3 +96,15 @@ def test_a_pole_figure_for_every_prototype_family(proto, name):
     report = planes_report(c, max_index=1, mount=(0, 0, 1))
     fig = pole_figure(report, c)
     assert len(_plotted(fig)) >= 1
+
+
+def test_hexagonal_poles_are_labelled_with_four_indices(proto):
+    # hcp from (0 0 0 1): the six {1 0 -1 0} prism faces lie on the rim (90°), the mount at the centre
+    # # common practice (hexagonal prism and basal planes)
+    c = proto("hcp:Mg")
+    fig = stereographic_projection(c, (0, 0, 1), [(0, 0, 1), (1, 0, 0)])
+    texts = {t.get_text() for t in by_gid(fig, "pole label")}
+    assert "0001" in texts and "101\u03050" in texts  # (1 0 -1 0) written with a bar over the 1
+    prism = [p for p in poles_within(c, (0, 0, 1), [(1, 0, 0)])]
+    assert len(prism) == 6 and all(p.tilt == pytest.approx(90.0) for p in prism)
+    assert "(0 0 0 1)" in fig.axes[0].get_title()

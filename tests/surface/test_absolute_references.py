@@ -37,13 +37,15 @@ def test_broken_bonds_per_surface_atom(spec, hkl, per_atom):
 
 def test_half_heusler_111_step_lists_are_whole():
     # TiNiSn (111), d = a/sqrt3 = 3.4237 Å (a = 5.93 Å): layers Sn, Ni, Ti a quarter period apart
-    # along [111]; Ni to Sn: delta = d/4 (C1b stacking, Wyckoff 4a/4b/4c; common practice).
+    # (C1b stacking; common practice).  The prototype's orientation (Sn 4a, Ti 4b, Ni 4d, the one
+    # the polarity convention picks) puts Ni a quarter period above Sn along [111]: Ni to Sn is
+    # delta = 3d/4, Sn to Ni d/4 (with Ni on 4c, as often written, the same holds for (-1 -1 -1)).
     crystal = build_prototype("half-heusler:Ti,Ni,Sn")
     ft = face_terminations(crystal, (1, 1, 1))
     d = 5.93 / math.sqrt(3)
     steps = {(s.from_label, s.to_label): s.heights for s in ft.steps}
-    assert steps[("Ni", "Sn")] == pytest.approx([d / 4 + n * d for n in range(4)], abs=1e-6)
-    assert steps[("Sn", "Ni")] == pytest.approx([3 * d / 4 + n * d for n in range(4)], abs=1e-6)
+    assert steps[("Ni", "Sn")] == pytest.approx([3 * d / 4 + n * d for n in range(4)], abs=1e-6)
+    assert steps[("Sn", "Ni")] == pytest.approx([d / 4 + n * d for n in range(4)], abs=1e-6)
     assert steps[("Sn", "Sn")] == pytest.approx([d, 2 * d, 3 * d], abs=1e-6)
 
 

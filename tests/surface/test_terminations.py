@@ -97,7 +97,7 @@ def test_half_heusler_111_three_terminations_and_reverse_order(proto):
     down = face_terminations(c, (-1, -1, -1))
     assert sorted(t.label for t in up.terminations) == ["Ni", "Sn", "Ti"]
     d = up.d
-    # Layer stacking along [111] Sn(4a) - Ti(4b) at d/2 - Ni(4c) at 3d/4 (Wyckoff positions, International Tables):
+    # Layer stacking along [111] Sn(4a) - Ni(4d) at d/4 - Ti(4b) at d/2 (Wyckoff positions, International Tables):
     # steps between different terminations are d/4, d/2 and 3d/4.
     deltas = sorted({round(s.heights[0] / d, 6) for s in up.steps if s.from_label != s.to_label})
     assert deltas == pytest.approx([0.25, 0.5, 0.75])
