@@ -21,9 +21,9 @@ from numpy.typing import ArrayLike
 from termination.algebra.lattice2d import canonical_hnf, cell_notation, wood_notation
 from termination.arrays import IntArray
 from termination.bulk.crystal import Crystal
-from termination.defaults import ANGLE_EPS_DEG, RELATIVE_EPS
+from termination.defaults import ANGLE_EPS_DEG
 from termination.surface.faces import Face
-from termination.surface.symmetry import face_operations
+from termination.surface.symmetry import face_operations, mesh_actions
 
 __all__ = ["Domain", "cell_domains", "domain_name", "face_point_group", "operation_text"]
 
@@ -51,16 +51,7 @@ def face_point_group(crystal: Crystal, face: Face) -> IntArray:
         terraces carry the rotated domains.
     """
     rots, _ = face_operations(crystal, face)
-    mesh = np.asarray(face.mesh_fractional, dtype=float)
-    pinv = np.linalg.pinv(mesh)
-    out: list[IntArray] = []
-    for R in rots:
-        S = mesh @ R.T @ pinv
-        Si = np.rint(S).astype(np.int64)
-        if np.max(np.abs(S - Si)) > RELATIVE_EPS or not np.allclose(Si @ mesh, mesh @ R.T, atol=RELATIVE_EPS):
-            continue
-        if not any(np.array_equal(Si, o) for o in out):
-            out.append(Si)
+    out = mesh_actions(face, rots)
     # Identity, then rotations by increasing angle (trace 2 cos θ), then mirrors: so that a domain is
     # named by the smallest rotation that makes it.
     ident = np.eye(2, dtype=np.int64)

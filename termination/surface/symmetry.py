@@ -19,7 +19,14 @@ from termination.bulk.crystal import Crystal
 from termination.defaults import ANGLE_EPS_DEG, RELATIVE_EPS
 from termination.surface.faces import Face
 
-__all__ = ["describe_operation", "face_operations", "keeps_face", "operation_tables", "termination_operations"]
+__all__ = [
+    "describe_operation",
+    "face_operations",
+    "keeps_face",
+    "mesh_actions",
+    "operation_tables",
+    "termination_operations",
+]
 
 
 @lru_cache(maxsize=32)
@@ -106,16 +113,37 @@ def termination_operations(crystal: Crystal, face: Face, *, shift_tol_angstrom: 
     shift = (trans @ h) / gnorm % d
     shift = np.minimum(shift, d - shift)
     keep = shift <= shift_tol_angstrom
+    out = mesh_actions(face, rots[keep])
+    ident = np.eye(2, dtype=np.int64)
+    out.sort(key=lambda s: not np.array_equal(s, ident))
+    return np.array(out, dtype=np.int64).reshape(-1, 2, 2)
+
+
+def mesh_actions(face: Face, rotations: IntArray) -> list[IntArray]:
+    """Distinct in-plane actions S (M R^T = S M) of rotations that keep the face's mesh.
+
+    Parameters
+    ----------
+    face : Face
+        Its mesh rows M are fractional, (2, 3).
+    rotations : (K, 3, 3) IntArray
+        Rotation parts R of space-group operations, acting on fractional columns.
+
+    Returns
+    -------
+    list of (2, 2) IntArray
+        One S per distinct action, in the order of first appearance; a
+        rotation whose action is not an integer matrix (it does not map the
+        mesh onto itself) is left out.
+    """
     mesh = np.asarray(face.mesh_fractional, dtype=float)
     pinv = np.linalg.pinv(mesh)
     out: list[IntArray] = []
-    for R in rots[keep]:
+    for R in rotations:
         S = mesh @ R.T @ pinv
         Si = np.rint(S).astype(np.int64)
         if np.max(np.abs(S - Si)) > RELATIVE_EPS or not np.allclose(Si @ mesh, mesh @ R.T, atol=RELATIVE_EPS):
             continue
         if not any(np.array_equal(Si, o) for o in out):
             out.append(Si)
-    ident = np.eye(2, dtype=np.int64)
-    out.sort(key=lambda s: not np.array_equal(s, ident))
-    return np.array(out, dtype=np.int64).reshape(-1, 2, 2)
+    return out
