@@ -45,6 +45,7 @@ from termination.defaults import (
     SYMPREC_ANGSTROM,
     UNIT_RATIO,
 )
+from termination.figures.canvas import FORMATS
 from termination.identification.model import MatchModel
 
 app = typer.Typer(
@@ -119,6 +120,7 @@ class _Command(typer.core.TyperCommand):
 
 command = functools.partial(app.command, cls=_Command)
 _TRACEBACK: contextvars.ContextVar[bool] = contextvars.ContextVar("traceback", default=False)
+_ARGV: contextvars.ContextVar[tuple[str, ...] | None] = contextvars.ContextVar("argv", default=None)
 DEMO_STRUCTURE = "half-heusler:Ti,Ni,Sn"
 DEMO_MEASUREMENT = "demo_TiNiSn_001.toml"
 
@@ -257,6 +259,22 @@ Depth = Annotated[
     ),
 ]
 Force = Annotated[bool, typer.Option("--force", help="Overwrite existing output files.")]
+Plot = Annotated[
+    str | None,
+    typer.Option(
+        "--plot", metavar="DIR", help="Write this command's figures to DIR (made if missing).", show_default=False
+    ),
+]
+PlotFormat = Annotated[str, typer.Option("--plot-format", metavar="FMT", help="Figure format: png, svg or pdf.")]
+Report = Annotated[
+    str | None,
+    typer.Option(
+        "--report",
+        metavar="FILE.html",
+        help="Write a self-contained HTML report (tables, figures, command, versions).",
+        show_default=False,
+    ),
+]
 Cell = Annotated[
     list[str] | None,
     typer.Option(
@@ -375,6 +393,13 @@ def _require_plane(plane: FaceArgument | None, crystal: Any) -> tuple[int, int, 
     return found
 
 
+def _inputs(structure: str | None) -> tuple[str, ...]:
+    """The structure file, when the structure is a file (outputs must never overwrite it)."""
+    import os
+
+    return (structure,) if structure is not None and os.path.exists(structure) else ()
+
+
 def _free_parameters(items: list[str] | None) -> tuple[float | None, dict[str, float]]:
     """--x values: one bare number, or NAME=VALUE pairs."""
     from termination.errors import StructureError
@@ -449,6 +474,90 @@ def _termination_rules(
     )
 
 
+class _Outputs:
+    """``--plot DIR``, ``--plot-format`` and ``--report FILE`` of one command: checked before the work, written after.
+
+    ``values`` are the command's parsed arguments (its ``locals()`` on entry), for the command line a
+    report shows when ``main`` did not see it typed.  Figures and reports are drawn by
+    :mod:`termination.figures` (matplotlib is imported only then) and written through
+    :mod:`termination.outputs`; a line on stderr names what was written.
+    """
+
+    def __init__(
+        self,
+        command: str,
+        values: dict[str, Any],
+        plot: str | None,
+        fmt: str,
+        force: bool,
+        report: str | None = None,
+        inputs: tuple[str, ...] = (),
+    ) -> None:
+        self.command, self.values = command, dict(values)
+        self.plot, self.fmt, self.force, self.report, self.inputs = plot, fmt, force, report, inputs
+        if plot is not None:
+            from termination.figures.commands import check_plot_folder
+
+            self.fmt = check_plot_folder(plot, fmt)
+        if report is not None:
+            import os
+
+            from termination.outputs import check_outputs
+
+            # A report inside the --plot folder that is still to be made is checked when it is written.
+            inside_new = plot is not None and not os.path.exists(plot)
+            inside_new = inside_new and os.path.dirname(os.path.abspath(report)) == os.path.abspath(str(plot))
+            if not inside_new:
+                check_outputs([report], inputs, force=force)
+
+    @property
+    def wanted(self) -> bool:
+        return self.plot is not None or self.report is not None
+
+    def write(self, record: Any, plans: Any) -> None:
+        """Draw ``plans`` (a list of :class:`termination.figures.commands.PlannedFigure`) and write them."""
+        written: list[str] = []
+        if self.plot is not None:
+            from termination.figures.commands import write_figures
+
+            written += [str(p) for p in write_figures(plans, self.plot, self.fmt, force=self.force, inputs=self.inputs)]
+        if self.report is not None:
+            from termination.htmlreport import command_line, write_report
+
+            given = _ARGV.get()
+            typed = given if given and given[0] == self.command else _typed_command(self.command, self.values)
+            command = command_line(typed)
+            write_report(self.report, record, plans, command=command, force=self.force, inputs=self.inputs)
+            written.append(self.report)
+        if written:
+            shown = ", ".join(written[:4]) + (f" and {len(written) - 4} more" if len(written) > 4 else "")
+            typer.echo(f"termination: wrote {shown}", err=True)
+
+
+def _typed_command(command: str, values: dict[str, Any]) -> list[str]:
+    """The arguments of ``command``, rebuilt from its parsed ``values`` (when ``main`` did not see them typed)."""
+    params = typer.main.get_command(app).commands[command].params  # type: ignore[attr-defined]
+    args = [command]
+    for param in params:
+        value = values.get(param.name)
+        if value is None or value == param.default or value in ((), []):
+            continue
+        if param.param_type_name == "argument":
+            args += [str(v) for v in (value if isinstance(value, (list, tuple)) else [value])]
+            continue
+        if value is True or value is False:
+            flags = param.opts if value else param.secondary_opts
+            args += flags[:1]
+        elif getattr(param, "multiple", False):
+            for v in value:
+                args += [param.opts[0], *(str(u) for u in (v if isinstance(v, (list, tuple)) else [v]))]
+        elif isinstance(value, (list, tuple)):
+            args += [param.opts[0], *(str(v) for v in value)]
+        else:
+            args += [param.opts[0], str(value)]
+    return args
+
+
 # --------------------------------------------------------------------------- commands
 
 
@@ -481,6 +590,9 @@ def planes(
     c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
@@ -488,6 +600,7 @@ def planes(
     """Symmetry-distinct faces: spacing d, tilt to the mount face, mesh, terminations, polarity."""
     from termination.reports import planes_report
 
+    outputs = _Outputs("planes", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec, c)
     report = planes_report(
         crystal,
@@ -496,6 +609,10 @@ def planes(
         charges=_charges(charge),
         tilt_window=tilt_window,
     )
+    if outputs.wanted:
+        from termination.figures.commands import planes_figures
+
+        outputs.write(report, planes_figures(report, crystal))
     render("planes", report, json_out, wide)
 
 
@@ -515,6 +632,9 @@ def terminations(
     c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
@@ -522,9 +642,15 @@ def terminations(
     """Atomic layers, terminations and allowed step heights of one face."""
     from termination.reports import terminations_report
 
+    outputs = _Outputs("terminations", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio, max_multiple)
-    render("terminations", terminations_report(crystal, _require_plane(plane, crystal), **rules), json_out, wide)
+    report = terminations_report(crystal, _require_plane(plane, crystal), **rules)
+    if outputs.wanted:
+        from termination.figures.commands import terminations_figures
+
+        outputs.write(report, terminations_figures(report, crystal, rules))
+    render("terminations", report, json_out, wide)
 
 
 @command()
@@ -551,6 +677,9 @@ def polarity(
     c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
@@ -558,6 +687,7 @@ def polarity(
     """Layer charges, dipole, Tasker type, compensation and reconstruction cells per termination."""
     from termination.reports import polarity_report
 
+    outputs = _Outputs("polarity", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     report = polarity_report(
@@ -568,6 +698,10 @@ def polarity(
         max_cell=max_cell,
         termination_options=rules,
     )
+    if outputs.wanted:
+        from termination.figures.commands import polarity_figures
+
+        outputs.write(report, polarity_figures(report))
     render("polarity", report, json_out, wide)
 
 
@@ -603,6 +737,9 @@ def corrugation(
     c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
@@ -614,6 +751,7 @@ def corrugation(
     from termination.reports import corrugation_report
     from termination.surface.corrugation import Visibility, parse_site_weights
 
+    outputs = _Outputs("corrugation", locals(), plot, plot_format, force, inputs=_inputs(structure))
     cells = check_cells(cell)
     visibility = Visibility(
         visible=tuple(visible) if visible else None,
@@ -634,6 +772,10 @@ def corrugation(
         max_cell=max_cell,
         cells=cells,
     )
+    if outputs.wanted:
+        from termination.figures.commands import corrugation_figures
+
+        outputs.write(report, corrugation_figures(report, crystal, _charges(charge), max_cell))
     render("corrugation", report, json_out, wide)
 
 
@@ -746,11 +888,16 @@ def match(
     c: LatticeC = None,
     x: FreeX = None,
     symprec: Symprec = SYMPREC_ANGSTROM,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    report_file: Report = None,
+    force: Force = False,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
 ) -> None:
     """Rank which face and termination match the measured tilt, corrugation and steps."""
+    typed = dict(locals())  # the arguments as parsed, before --demo fills in its own
 
     from termination.algebra.lattice2d import check_cells
     from termination.bulk.elements import parse_element_values
@@ -788,6 +935,15 @@ def match(
         site_weights=_site_weights(site_weight),
         cells=tuple(cell or ()),
     )
+    outputs = _Outputs(
+        "match",
+        typed,
+        plot,
+        plot_format,
+        force,
+        report_file,
+        inputs=_inputs(structure) + tuple(v for v in (measurement, steps, image_file) if v),
+    )
     base = read_measurement(measurement) if measurement else Measurement()
     measured_lines: tuple[str, ...] = ()
     if image_file is None and (pixel_size or z_unit or channel):
@@ -820,6 +976,19 @@ def match(
     )
     if measured_lines:
         report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
+    if outputs.wanted:
+        from termination.figures.commands import match_figures, read_measured
+
+        plans = match_figures(
+            report,
+            crystal,
+            visibility=visibility,
+            charges=_charges(charge),
+            max_cell=max_cell,
+            termination_options=rules,
+            measured=None if image_file is None else read_measured(image_file, pixel_size, z_unit, channel),
+        )
+        outputs.write(report, plans)
     render("match", report, json_out, wide)
 
 
@@ -924,12 +1093,17 @@ def image(
         float,
         typer.Option("--max-nan", metavar="FRACTION", help="Largest fraction of missing (NaN) pixels accepted."),
     ] = MAX_NAN_FRACTION,
+    plot: Plot = None,
+    plot_format: PlotFormat = FORMATS[0],
+    report_file: Report = None,
     json_out: Json = False,
     wide: Wide = False,
     three_index: ThreeIndex = False,
 ) -> None:
     """Tilt, lattice and step heights of a topograph (height map)."""
     from termination.reports import image_report
+
+    outputs = _Outputs("image", locals(), plot, plot_format, force, report_file, inputs=(file,))
 
     # A progress bar only where someone watches: a terminal, and a map of a megapixel or more.
     with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
@@ -947,6 +1121,11 @@ def image(
             drift_lattice=drift_lattice,
             max_nan_fraction=max_nan,
         )
+    if outputs.wanted:
+        from termination.figures.commands import image_figures, read_measured
+
+        measured = read_measured(file, pixel_size, z_unit, channel, report.analysis.lattice)
+        outputs.write(report, image_figures(report, measured))
     render("image", report, json_out, wide)
 
 
@@ -1238,6 +1417,7 @@ def main(argv: list[str] | None = None) -> None:
     if "--traceback" in args:
         _TRACEBACK.set(True)
         args = [v for v in args if v != "--traceback"]
+    typed = _ARGV.set(tuple(args))  # the command line as given, for reports; forgotten when it ends
     if not args:
         args = ["--help"]
     command = typer.main.get_command(app)
@@ -1253,6 +1433,8 @@ def main(argv: list[str] | None = None) -> None:
             raise
         typer.echo(f"termination: error: {exc.format_message()}", err=True)
         sys.exit(2)
+    finally:
+        _ARGV.reset(typed)
     sys.exit(code if isinstance(code, int) else 0)
 
 

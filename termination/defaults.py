@@ -112,6 +112,17 @@ MIN_STEP_ANGSTROM = 0.5
 #: Largest fraction of missing (NaN) pixels a height map may have.
 MAX_NAN_FRACTION = 0.5
 
+# --------------------------------------------------------------------------- figures
+
+#: Resolution of PNG figures, dots per inch.
+FIGURE_DPI = 150
+#: Candidates of ``match`` drawn in its figures (highlighted poles, step ladders).
+FIGURE_TOP = 3
+#: Pixels along each side of a simulated topograph.
+TOPOGRAPH_PIXELS = 160
+#: Largest number of figure files one command writes (checked before any is drawn).
+MAX_FIGURES = 100
+
 # --------------------------------------------------------------------------- numerical noise
 
 #: Heights and lengths closer than this are equal: rounding noise, far below

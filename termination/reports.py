@@ -13,7 +13,7 @@ from __future__ import annotations
 import os
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, SupportsFloat, Unpack
+from typing import TYPE_CHECKING, Any, ClassVar, SupportsFloat, Unpack
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -52,6 +52,7 @@ from termination.surface.reconstructions import CRITERION, Matrix2, Reconstructi
 from termination.surface.slab import SlabDescription
 from termination.surface.steps import StepHeights
 from termination.surface.terminations import Termination, TerminationRef, face_terminations
+from termination.tabular import Tabular
 from termination.units import ANGSTROM, DEG, EV, PER_NM2, SECOND
 
 if TYPE_CHECKING:
@@ -121,8 +122,10 @@ class PrototypeRow:
 
 
 @dataclass(frozen=True)
-class StructuresReport:
+class StructuresReport(Tabular):
     """Result of ``termination structures``."""
+
+    _tables: ClassVar[tuple[str, ...]] = ("prototypes",)
 
     prototypes: tuple[PrototypeRow, ...]
 
@@ -198,12 +201,14 @@ class WindowRow:
 
 
 @dataclass(frozen=True)
-class PlanesReport:
+class PlanesReport(Tabular):
     """Result of ``termination planes``: the distinct faces up to ``max_index``.
 
     With a tilt window, ``window`` lists every variant of every face whose
     tilt to the mount lies in ``tilt_window`` (degrees), sorted by tilt.
     """
+
+    _tables: ClassVar[tuple[str, ...]] = ("faces", "window")
 
     structure: StructureSummary
     mount: tuple[int, int, int] | None
@@ -334,8 +339,10 @@ class TerminationEntry:
 
 
 @dataclass(frozen=True)
-class TerminationsReport:
+class TerminationsReport(Tabular):
     """Result of ``termination terminations``: layers, terminations and steps of one face."""
+
+    _tables: ClassVar[tuple[str, ...]] = ("terminations", "layers", "steps")
 
     structure: StructureSummary
     hkl: tuple[int, int, int]
@@ -373,8 +380,10 @@ def terminations_report(
 
 
 @dataclass(frozen=True)
-class PolarityReport:
+class PolarityReport(Tabular):
     """Result of ``termination polarity``."""
+
+    _tables: ClassVar[tuple[str, ...]] = ("faces.terminations", "faces")
 
     structure: StructureSummary
     charges: ChargeAssignment
@@ -512,8 +521,10 @@ def _domains_row(
 
 
 @dataclass(frozen=True)
-class CorrugationReport:
+class CorrugationReport(Tabular):
     """Result of ``termination corrugation``: what a topograph of each termination of one face shows."""
+
+    _tables: ClassVar[tuple[str, ...]] = ("terminations", "terminations.reconstructions", "terminations.spots")
 
     structure: StructureSummary
     hkl: tuple[int, int, int]
@@ -638,8 +649,10 @@ class ImageSource:
 
 
 @dataclass(frozen=True)
-class ImageReport:
+class ImageReport(Tabular):
     """Result of ``termination image``: the source and what its analysis found, with the files written."""
+
+    _tables: ClassVar[tuple[str, ...]] = ("analysis.steps",)
 
     source: ImageSource
     analysis: HeightMapAnalysis
@@ -946,7 +959,7 @@ def screen_rows(
 
 
 @dataclass(frozen=True)
-class ScreenReport:
+class ScreenReport(Tabular):
     """Result of ``termination screen``: the rows of this run (when not written to a file) and its counts.
 
     ``structures`` were found, ``skipped`` already in the output (resumed),
@@ -954,6 +967,8 @@ class ScreenReport:
     ``rows`` counts the rows written (or listed in ``results``);
     ``wall_time`` is the run's duration in seconds.
     """
+
+    _tables: ClassVar[tuple[str, ...]] = ("results",)
 
     structures: int
     skipped: int
@@ -973,7 +988,7 @@ class ScreenReport:
 
 
 @dataclass(frozen=True)
-class SlabReport:
+class SlabReport(Tabular):
     """Result of ``termination slab``: the slab built, what it holds, and the file written.
 
     ``cell`` is the reconstruction cell applied (None for 1×1), with its
@@ -982,6 +997,8 @@ class SlabReport:
     surfaces were asked to show the termination, ``slab.symmetric`` whether
     they are related by symmetry.
     """
+
+    _tables: ClassVar[tuple[str, ...]] = ()
 
     structure: StructureSummary
     hkl: tuple[int, int, int]

@@ -69,6 +69,25 @@ def test_match_demo_imports_no_heavy_library():
     assert heavy_modules_after(cli_job("match", "--demo")) == []
 
 
+@pytest.mark.parametrize(
+    "args",
+    [
+        ("terminations", "rocksalt:Na,Cl", "--plane", "0", "0", "1"),
+        ("polarity", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"),
+        ("corrugation", "rocksalt:Na,Cl", "--plane", "1", "1", "1", "--max-cell", "2"),
+    ],
+)
+def test_commands_without_plot_or_report_do_not_import_matplotlib(args):
+    assert "matplotlib" not in heavy_modules_after(cli_job(*args))
+
+
+def test_plot_imports_matplotlib(tmp_path):
+    # The probe sees matplotlib when a figure is asked for, so the checks above can fail.
+    job = cli_job("planes", "rocksalt:Na,Cl", "--max-index", "1", "--plot", str(tmp_path))
+    assert "matplotlib" in heavy_modules_after(job)
+    assert (tmp_path / "poles.png").exists()
+
+
 def test_the_check_sees_a_heavy_import():
     # The probe itself must be able to fail: a (stand-in) matplotlib module is reported.
     code = "import sys, types\nsys.modules['matplotlib.pyplot'] = types.ModuleType('matplotlib.pyplot')\n"

@@ -36,6 +36,8 @@ def test_wheel_holds_only_the_termination_package(wheel):
         "termination/py.typed",
         "termination/structures/data/demo_TiNiSn_001.toml",
         "termination/schemas/match.json",
+        "termination/figures/poles.py",
+        "termination/htmlreport.py",
     ):
         assert required in names, required
 

@@ -56,7 +56,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any, TypedDict, Unpack
+from typing import Any, ClassVar, TypedDict, Unpack
 
 import numpy as np
 
@@ -87,6 +87,7 @@ from termination.identification.verdict import Verdict, verdict
 from termination.surface.corrugation import ApparentLattice, Visibility
 from termination.surface.miller import HKL
 from termination.surface.terminations import TerminationRef
+from termination.tabular import Tabular
 from termination.units import ANGSTROM, DEG
 
 __all__ = [
@@ -194,12 +195,14 @@ class FaceProbability:
 
 
 @dataclass(frozen=True)
-class MatchReport:
+class MatchReport(Tabular):
     """Result of ``termination match``: the measurement as scored, the ranked candidates, the fit and the verdict.
 
     ``measurement`` is the measurement with the uncertainties actually used
     (defaults applied, the mount term included in the tilt's sigma).
     """
+
+    _tables: ClassVar[tuple[str, ...]] = ("candidates", "faces")
 
     structure: StructureSummary
     mount: tuple[int, int, int] | None

@@ -1,0 +1,322 @@
+"""Simulated topograph of a termination from the corrugation model, beside the measured terrace when there is one.
+
+The corrugation model (:mod:`termination.surface.corrugation`) weighs each
+imaging atom j by A_j = w(species) exp(-depth/lambda).  Its Fourier
+coefficients F(G) = sum_j A_j exp(2 pi i G . r_j) over the *visible* spots
+(|F(G)|/F(0) above the threshold) are what a topograph resolves, so the
+simulated topograph is their synthesis
+
+    z(r) = Re sum_G conj(F(G)) exp(2 pi i G . r) / F(0),
+
+the site density low-pass filtered to the visible spots: its maxima sit on
+the bright sites and its period is the apparent lattice.  The figure shows
+it scaled to [0, 1] (an apparent height, not Å).  A measured height map,
+when given, is shown beside it on the same length scale: the window of that
+side with the least slope (on one terrace, away from step edges), high-pass
+filtered (a Gaussian of 3/4 of the apparent period removed, which keeps the
+corrugation: its Fourier factor is 1 - exp(-2 pi^2 (3/4)^2) > 0.99).
+
+References
+----------
+J. Tersoff and D. R. Hamann, Phys. Rev. B 31, 805 (1985).
+C. J. Chen, Introduction to Scanning Tunneling Microscopy (Oxford University
+Press, 2nd ed. 2008), ch. 6 (corrugation as a Fourier series).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from termination.algebra.integer import row_basis
+from termination.algebra.lattice2d import coset_representatives
+from termination.arrays import FloatArray
+from termination.bulk.crystal import Crystal
+from termination.defaults import TOPOGRAPH_PIXELS
+from termination.errors import ImageError, StructureError
+from termination.figures.canvas import new_figure, style
+from termination.figures.labels import hkl_label, nice_length, scale_bar
+from termination.figures.palette import relief_colormap
+from termination.surface.coordination import surface_coordination
+from termination.surface.corrugation import (
+    CorrugationPattern,
+    Visibility,
+    reconstruction_corrugation,
+    structure_factor,
+    termination_corrugation,
+)
+from termination.surface.reconstructions import Reconstruction
+from termination.surface.terminations import FaceTerminations
+from termination.units import ANGSTROM
+
+__all__ = [
+    "ImagingSites",
+    "MeasuredMap",
+    "corrugation_heights",
+    "highpass",
+    "imaging_sites",
+    "measured_panel",
+    "simulated_topograph",
+]
+
+
+@dataclass(frozen=True, eq=False)
+class ImagingSites:
+    """The weighted sites of the corrugation model of one termination (or reconstruction cell).
+
+    ``inplane`` (N, 2) Å in the face frame, ``amplitudes`` (N,), the
+    ``cell`` (2, 2) rows they repeat with and the 1x1 ``mesh`` (2, 2) rows.
+    """
+
+    inplane: FloatArray = field(metadata=ANGSTROM)
+    amplitudes: FloatArray
+    cell: FloatArray = field(metadata=ANGSTROM)
+    mesh: FloatArray = field(metadata=ANGSTROM)
+
+
+@dataclass(frozen=True, eq=False)
+class MeasuredMap:
+    """A measured height map to show beside a simulation: heights (ny, nx), Å, and the pixel size (x, y), Å."""
+
+    heights: FloatArray = field(metadata=ANGSTROM)
+    pixel_size: tuple[float, float] = field(metadata=ANGSTROM)
+    name: str = "measured"
+
+
+def imaging_sites(
+    face_terminations: FaceTerminations,
+    key: str,
+    visibility: Visibility | None = None,
+    reconstruction: Reconstruction | None = None,
+    *,
+    crystal: Crystal | None = None,
+) -> ImagingSites:
+    """The sites and amplitudes the corrugation model images for termination ``key``.
+
+    The same sites as :func:`termination.surface.corrugation.termination_corrugation`
+    (the top unit, or down to ``visibility.max_depth_angstrom``; site weights
+    by the bonds each atom keeps, which need ``crystal``) and, with a
+    reconstruction, as :func:`~termination.surface.corrugation.reconstruction_corrugation`:
+    the 1x1 sites repeated over the cell, the removed atoms taken out or the
+    added atoms put in.  The tests check that both give the same spots.
+    """
+    v = Visibility() if visibility is None else visibility
+    ft = face_terminations
+    t = ft.termination(key)
+    if v.max_depth_angstrom is None:
+        sa = ft.surface_atoms(t.id, ft.d)
+        keep = sa.unit == 0
+    else:
+        sa = ft.surface_atoms(t.id, v.max_depth_angstrom)
+        keep = np.ones(len(sa.depth), dtype=bool)
+    coordination = None
+    if v.site_weights:
+        if crystal is None:
+            raise StructureError("site weights (such as Ti5c=1) need the crystal: its bonds give the coordination")
+        coordination = surface_coordination(crystal, ft, t.id, sa)[keep]
+    species = [s for s, k in zip(sa.species, keep) if k]
+    inplane, depth = sa.inplane[keep], sa.depth[keep]
+    amplitudes = v.amplitudes(species, depth, coordination)
+    mesh = np.asarray(sa.mesh_inplane, dtype=float)
+    if reconstruction is None:
+        return ImagingSites(inplane, amplitudes, mesh, mesh)
+    r = reconstruction
+    matrix = np.asarray(r.matrix, dtype=np.int64)
+    cell = matrix.astype(float) @ mesh
+    shifts = coset_representatives(row_basis(matrix)).astype(float) @ mesh
+    pos = (inplane[None, :, :] + shifts[:, None, :]).reshape(-1, 2)
+    dep = np.tile(depth, len(shifts))
+    amp = np.tile(amplitudes, len(shifts))
+    changed = np.asarray(r.changed_atoms_inplane, dtype=float).reshape(-1, 2)
+    changed_depth = np.asarray(r.changed_atoms_depth, dtype=float).reshape(-1)
+    tol = v.site_tol_angstrom
+    if r.mode == "remove":
+        diff = pos[None, :, :] - changed[:, None, :]
+        frac = diff @ np.linalg.inv(cell)
+        frac -= np.rint(frac)
+        hit = (np.linalg.norm(frac @ cell, axis=-1) < tol) & (np.abs(dep[None, :] - changed_depth[:, None]) < tol)
+        kept = ~hit.any(axis=0)
+        pos, amp = pos[kept], amp[kept]
+    else:
+        inside = changed_depth <= float(depth.max()) + tol
+        pos = np.vstack([pos, changed[inside]])
+        added = [s for s, k in zip(r.changed_atoms_species, inside) if k]
+        amp = np.concatenate([amp, v.amplitudes(added, changed_depth[inside])])
+    return ImagingSites(pos, amp, cell, mesh)
+
+
+def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points: FloatArray) -> FloatArray:
+    """The simulated topograph z(r) at ``points`` (P, 2), Å in the face frame, in units of F(0).
+
+    Notes
+    -----
+    z(r) = Re sum_G conj(F(G)) exp(2 pi i G . r) / F(0) over the visible
+    spots of ``pattern`` (G = (h, k) inv(mesh)^T, both G and -G listed).
+    """
+    pts = np.asarray(points, dtype=float).reshape(-1, 2)
+    if not pattern.spots:
+        return np.zeros(len(pts))
+    g = np.array([s.g for s in pattern.spots], dtype=float) @ np.linalg.inv(sites.mesh).T
+    f = structure_factor(g, sites.inplane, sites.amplitudes) / float(np.sum(sites.amplitudes))
+    phase = np.exp(2j * np.pi * (pts @ g.T))
+    out: FloatArray = np.real(phase @ np.conj(f))
+    return out
+
+
+def highpass(heights: FloatArray, sigma_px: float) -> FloatArray:
+    """Heights minus their Gaussian smoothing (missing pixels filled with the mean first)."""
+    from scipy import ndimage
+
+    z = np.asarray(heights, dtype=float)
+    finite = np.isfinite(z)
+    if not finite.any():
+        raise ImageError("the height map has no finite pixel")
+    filled = np.where(finite, z, float(np.mean(z[finite])))
+    out: FloatArray = filled - ndimage.gaussian_filter(filled, sigma_px, mode="nearest")
+    return np.where(finite, out, np.nan)
+
+
+def simulated_topograph(
+    face_terminations: FaceTerminations,
+    key: str,
+    *,
+    reconstruction: Reconstruction | None = None,
+    visibility: Visibility | None = None,
+    measured: MeasuredMap | None = None,
+    crystal: Crystal | None = None,
+    span_angstrom: float | None = None,
+    pixels: int = TOPOGRAPH_PIXELS,
+    title: str | None = None,
+    hexagonal: bool | None = None,
+    width_in: float | None = None,
+) -> Any:
+    """Simulated topograph of termination ``key`` (and a reconstruction cell), beside a measured map if given.
+
+    Parameters
+    ----------
+    face_terminations : FaceTerminations
+    key : str
+        Termination id or label.
+    reconstruction : Reconstruction, optional
+    visibility : Visibility, optional
+        Corrugation model (default :class:`Visibility()`).
+    measured : MeasuredMap, optional
+        Shown beside the simulation, high-pass filtered, cut to the same
+        side length where it is larger.
+    crystal : Crystal, optional
+        The bulk crystal; needed only for ``visibility.site_weights``.
+    span_angstrom : float, optional
+        Side of the simulated square, Å; default four apparent periods (at
+        least 12 Å).
+    pixels : int
+        Pixels along each side of the simulation (8 to 1024).
+    title : str, optional
+    hexagonal : bool, optional
+        Write the face (h k i l); default from ``crystal`` (three indices without it).
+    width_in : float, optional
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The simulation is the image with the gid 'simulated topograph' (its
+        array is z at the pixel centres scaled to [0, 1], extent in Å), the
+        measured map 'measured topograph'.
+    """
+    if int(pixels) != pixels or not 8 <= pixels <= 1024:
+        raise ImageError(f"pixels must be an integer from 8 to 1024, got {pixels}")
+    ft = face_terminations
+    t = ft.termination(key)
+    v = Visibility() if visibility is None else visibility
+    pattern = (
+        termination_corrugation(ft, t.id, v, crystal=crystal)
+        if reconstruction is None
+        else reconstruction_corrugation(ft, t.id, reconstruction, v, crystal=crystal)
+    )
+    sites = imaging_sites(ft, t.id, v, reconstruction, crystal=crystal)
+    la = pattern.apparent_lattice
+    period = la.a if np.isfinite(la.a) else ft.face.mesh.a
+    period_b = la.b if np.isfinite(la.b) else period
+    span = float(span_angstrom) if span_angstrom else max(12.0, 4.0 * max(period, period_b))
+    n = int(pixels)
+    axis = (np.arange(n) + 0.5) / n * span
+    xx, yy = np.meshgrid(axis, axis)
+    z = corrugation_heights(sites, pattern, np.column_stack([xx.ravel(), yy.ravel()])).reshape(n, n)
+    panels = 2 if measured is not None else 1
+    width = width_in if width_in is not None else 3.2 * panels + 0.6
+    cmap = relief_colormap()
+    with style():
+        fig = new_figure(width, 3.3)
+        axes = fig.subplots(1, panels, squeeze=False)[0]
+        ax = axes[0]
+        shown = (z - z.min()) / max(float(np.ptp(z)), 1e-12)
+        im = ax.imshow(shown, origin="lower", extent=(0, span, 0, span), cmap=cmap, gid="simulated topograph")
+        ax.set_xlabel("x along e1 (Å)")
+        ax.set_ylabel("y (Å)")
+        four = bool(hexagonal) if hexagonal is not None else crystal is not None and crystal.hexagonal_axes
+        face = hkl_label(ft.face.hkl, hexagonal=four)
+        name = f"{face} {t.label}" + (f" {reconstruction.label}" if reconstruction else "")
+        ax.set_title(f"simulated: {name}\napparent {_lattice_text(pattern)}", fontsize=7.5)
+        bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
+        bar.set_label("apparent height (scaled)", fontsize=6.5)
+        scale_bar(ax, nice_length(span), colour="#ffffff")
+        if measured is not None:
+            measured_panel(fig, axes[1], measured, span, period, cmap)
+        if title:
+            fig.suptitle(title)
+    return fig
+
+
+def _lattice_text(pattern: CorrugationPattern) -> str:
+    la = pattern.apparent_lattice
+    if not np.isfinite(la.a):
+        return "none (flat)"
+    if not np.isfinite(la.b):
+        return f"stripes {la.a:.2f} Å"
+    return f"{la.a:.2f} × {la.b:.2f} Å, {la.gamma:.0f}°"
+
+
+def _flattest_window(z: FloatArray, cy: int, cx: int) -> tuple[int, int]:
+    """(row, column) of the top left corner of the cy x cx window with the least summed slope."""
+    gy, gx = np.gradient(z)
+    slope = np.hypot(gx, gy)
+    integral = np.zeros((slope.shape[0] + 1, slope.shape[1] + 1))
+    integral[1:, 1:] = slope.cumsum(axis=0).cumsum(axis=1)
+    sums = integral[cy:, cx:] - integral[:-cy, cx:] - integral[cy:, :-cx] + integral[:-cy, :-cx]
+    r, c = np.unravel_index(int(np.argmin(sums)), sums.shape)
+    return int(r), int(c)
+
+
+def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, period: float, cmap: Any) -> None:
+    """The flattest window of ``span`` Å of the measured map, high-pass filtered, with its own colour bar."""
+    z = np.asarray(measured.heights, dtype=float)
+    px, py = (float(v) for v in measured.pixel_size)
+    ny, nx = z.shape
+    cx, cy = min(nx, max(8, int(round(span / px)))), min(ny, max(8, int(round(span / py))))
+    sigma_px = max(1.0, 0.75 * period / min(px, py))
+    filtered = highpass(z, sigma_px)
+    finite = np.isfinite(z)
+    filled = np.where(finite, z, float(np.mean(z[finite])))
+    # Slope of the smoothed map: the corrugation and noise average out, a step edge spreads as far as the filter.
+    y0, x0 = _flattest_window(filled - np.where(finite, filtered, 0.0), cy, cx)
+    crop = filtered[y0 : y0 + cy, x0 : x0 + cx]
+    values = crop[np.isfinite(crop)]
+    lo, hi = np.percentile(values, [1, 99]) if values.size else (0.0, 1.0)
+    im = ax.imshow(
+        crop,
+        origin="lower",
+        extent=(0, cx * px, 0, cy * py),
+        cmap=cmap,
+        vmin=lo,
+        vmax=hi,
+        gid="measured topograph",
+    )
+    ax.set_xlabel("x (Å)")
+    ax.set_title(
+        f"{measured.name}: flattest {cx * px:.0f} Å window,\nhigh-pass (σ = {sigma_px * min(px, py):.1f} Å)",
+        fontsize=7.5,
+    )
+    bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
+    bar.set_label("height (Å)", fontsize=6.5)
+    scale_bar(ax, nice_length(cx * px), colour="#ffffff")
