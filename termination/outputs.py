@@ -86,6 +86,9 @@ def write_bytes(
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
+        # mkstemp makes the file private (0600); a result is an ordinary file, with the mode the
+        # user's umask gives a new file.
+        os.chmod(tmp, 0o666 & ~_umask())
         if not force and target.exists():  # appeared meanwhile
             raise error(f"{str(target)!r} exists; pass force=True (--force) to overwrite it")
         os.replace(tmp, target)
@@ -95,6 +98,13 @@ def write_bytes(
         if os.path.exists(tmp):
             os.unlink(tmp)
     return target
+
+
+def _umask() -> int:
+    """The process's file-creation mask (read by setting it and putting it back)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text(
