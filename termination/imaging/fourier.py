@@ -259,10 +259,40 @@ def _zoom_refine(
     return dx, dy
 
 
+def _fringes(support: BoolArray | None, shape: tuple[int, int], px: tuple[float, float], g: FloatArray) -> Any:
+    """How many periods of each wave ``g`` (m, 2), 1/Å, fit across the data of a region, along the wave's direction.
+
+    The extent of the pixels of ``support`` (all of ``shape`` when None)
+    projected on the direction of g, times |g|. A terrace that is a narrow
+    strip holds many periods of a wave along the strip and few across it,
+    so a single isotropic floor would either drop the lattice spots of the
+    strip or keep spots no terrace can resolve.
+    """
+    ny, nx = shape
+    if support is None:
+        # a full box: the extent along (ux, uy) is W |ux| + H |uy|
+        return np.abs(g[:, 0]) * (nx - 1) * px[0] + np.abs(g[:, 1]) * (ny - 1) * px[1]
+    stride = max(1, int(math.ceil(math.sqrt(support.sum() / 4096.0))))
+    rows, cols = np.nonzero(support[::stride, ::stride])
+    if rows.size == 0:
+        return np.zeros(len(g))
+    pts = np.stack([cols * stride * px[0], rows * stride * px[1]], axis=1)
+    proj = pts @ g.T  # already in periods: projection on u times |g|
+    return np.ptp(proj, axis=0) + stride * (np.abs(g[:, 0]) * px[0] + np.abs(g[:, 1]) * px[1])
+
+
 def _spectrum_peaks(
-    resid: AnyArray, px: tuple[float, float], p: ImageParameters, notes: list[str]
+    resid: AnyArray,
+    px: tuple[float, float],
+    p: ImageParameters,
+    notes: list[str],
+    support: BoolArray | None = None,
 ) -> tuple[FloatArray, FloatArray] | None:
     """Significant Fourier peaks of a levelled image: positions g (m, 2), 1/Å, and their sigmas, strongest first.
+
+    ``support`` marks the pixels that carry data (default: all). A peak
+    counts only when its wave repeats ``min_periods`` times across them along
+    its own direction (:func:`_fringes`).
 
     Returns (g, sig) or None, with the reason appended to ``notes``.
     """
@@ -277,8 +307,10 @@ def _spectrum_peaks(
     half = np.zeros(power.shape, dtype=bool)
     half[:, cx + 1 :] = True
     half[cy + 1 :, cx] = True
-    k_min = p.min_periods / min(nx * px[0], ny * px[1])
-    usable = half & (kr >= k_min)
+    # periods across the whole box along each wave's direction (|i| + |j| bins); the support is tested below
+    across = np.abs(np.arange(power.shape[1]) - cx)[None, :] + np.abs(np.arange(ny) - cy)[:, None]
+    usable = half & (across >= p.min_periods)
+    del across
     usable[[0, -1], :] = False
     usable[:, -1] = False
     if not usable.any():
@@ -298,6 +330,15 @@ def _spectrum_peaks(
     if rows.size == 0:
         notes.append(f"no lattice: no Fourier peak above the noise (false-alarm probability {p.lattice_false_alarm:g})")
         return None
+    if support is not None:
+        k_cand = np.stack([(cols - cx) * dkx, (rows - cy) * dky], axis=1)
+        wide = _fringes(support, (ny, nx), px, k_cand) >= p.min_periods
+        rows, cols = rows[wide], cols[wide]
+        if rows.size == 0:
+            notes.append(
+                f"no lattice: no Fourier peak above the noise repeats {p.min_periods} times across the data"
+            )
+            return None
     power64 = power  # peaks are read from the single-precision spectrum
     order = np.argsort(power64[rows, cols])[::-1]
     rows, cols = rows[order], cols[order]
@@ -305,10 +346,14 @@ def _spectrum_peaks(
     if streak.any():
         k = int(streak.sum())
         notes.append(f"{k} Fourier {'maximum' if k == 1 else 'maxima'} on radial streaks (step edges) ignored")
-    rows, cols = rows[~streak][: p.max_peaks], cols[~streak][: p.max_peaks]
+    rows, cols = rows[~streak], cols[~streak]
     if rows.size == 0:
         notes.append("no lattice: only streaks from step edges in the Fourier transform")
         return None
+    # side lobes of the strong spots through the (pixel-jagged) terrace mask stand far below them; on a
+    # clean map they also stand far above the numerical noise floor
+    strong = power64[rows, cols] >= p.min_peak_fraction * power64[rows[0], cols[0]]
+    rows, cols = rows[strong][: p.max_peaks], cols[strong][: p.max_peaks]
     noise_amp = np.sqrt(bg_img[rows, cols].astype(np.float64) / 2.0)
 
     def amp(r: IntArray, c: IntArray) -> Any:
@@ -561,7 +606,7 @@ def measure_lattice(
             sub[on] -= float(np.mean(sub[on], dtype=np.float64))
         sub *= _taper(on)
         trial: list[str] = []
-        peaks = _spectrum_peaks(sub, px, p, trial)
+        peaks = _spectrum_peaks(sub, px, p, trial, support=on)
         del sub, on
         fitted = _fit_basis(*peaks, p, trial) if peaks is not None else None
         if fitted is not None:
@@ -595,7 +640,7 @@ def measure_lattice(
         )
     else:
         # no terrace large enough, or none shows a lattice on its own: the whole image
-        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes)
+        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes, support=keep)
         fitted = _fit_basis(*peaks, p, notes) if peaks is not None else None
         if fitted is None:
             return None, None

@@ -1,6 +1,6 @@
 """The image lattice over the full grid of synthetic topographs (not a test; run by hand).
 
-    python tests/benchmarks/sweep_image_lattice.py [--seeds 2] [--workers 2] [--show wrong]
+    python tests/benchmarks/sweep_image_lattice.py [--seeds 2] [--workers 2] [--show wrong] [--only 128px,2steps]
 
 Every case of ``tests/imaging/lattice_grid.py`` (sizes 128² and 256², 0-2
 steps, tilts 1° and 6°, pixels 0.2-0.4 Å, square 4.19 Å, hexagonal 2.95 Å and
@@ -36,8 +36,10 @@ def main():
     ap.add_argument("--seeds", type=int, default=2, help="seeds per combination")
     ap.add_argument("--workers", type=int, default=2, help="processes (one pool)")
     ap.add_argument("--show", choices=["wrong", "missed", "all"], default="wrong", help="cases to list")
+    ap.add_argument("--only", default="", help="keep the cases whose name contains every comma-separated part")
     args = ap.parse_args()
-    cases = full_grid(seeds=tuple(range(args.seeds)))
+    parts = [p for p in args.only.split(",") if p]
+    cases = [c for c in full_grid(seeds=tuple(range(args.seeds))) if all(p in c.name for p in parts)]
     t0 = time.perf_counter()
     with ProcessPoolExecutor(args.workers) as pool:
         results = list(pool.map(run, cases, chunksize=4))
