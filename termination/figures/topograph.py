@@ -30,19 +30,18 @@ from typing import Any
 
 import numpy as np
 
-from termination.algebra.integer import row_basis
-from termination.algebra.lattice2d import coset_representatives
 from termination.arrays import FloatArray
 from termination.bulk.crystal import Crystal
 from termination.defaults import TOPOGRAPH_PIXELS
-from termination.errors import ImageError, StructureError
+from termination.errors import ImageError
 from termination.figures.canvas import new_figure, style
 from termination.figures.labels import hkl_label, nice_length, scale_bar
 from termination.figures.palette import relief_colormap
-from termination.surface.coordination import surface_coordination
 from termination.surface.corrugation import (
     CorrugationPattern,
+    ImagingSites,
     Visibility,
+    imaging_sites,
     reconstruction_corrugation,
     structure_factor,
     termination_corrugation,
@@ -52,28 +51,12 @@ from termination.surface.terminations import FaceTerminations
 from termination.units import ANGSTROM
 
 __all__ = [
-    "ImagingSites",
     "MeasuredMap",
     "corrugation_heights",
     "highpass",
-    "imaging_sites",
     "measured_panel",
     "simulated_topograph",
 ]
-
-
-@dataclass(frozen=True, eq=False)
-class ImagingSites:
-    """The weighted sites of the corrugation model of one termination (or reconstruction cell).
-
-    ``inplane`` (N, 2) Å in the face frame, ``amplitudes`` (N,), the
-    ``cell`` (2, 2) rows they repeat with and the 1x1 ``mesh`` (2, 2) rows.
-    """
-
-    inplane: FloatArray = field(metadata=ANGSTROM)
-    amplitudes: FloatArray
-    cell: FloatArray = field(metadata=ANGSTROM)
-    mesh: FloatArray = field(metadata=ANGSTROM)
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,68 +66,6 @@ class MeasuredMap:
     heights: FloatArray = field(metadata=ANGSTROM)
     pixel_size: tuple[float, float] = field(metadata=ANGSTROM)
     name: str = "measured"
-
-
-def imaging_sites(
-    face_terminations: FaceTerminations,
-    key: str,
-    visibility: Visibility | None = None,
-    reconstruction: Reconstruction | None = None,
-    *,
-    crystal: Crystal | None = None,
-) -> ImagingSites:
-    """The sites and amplitudes the corrugation model images for termination ``key``.
-
-    The same sites as :func:`termination.surface.corrugation.termination_corrugation`
-    (the top unit, or down to ``visibility.max_depth_angstrom``; site weights
-    by the bonds each atom keeps, which need ``crystal``) and, with a
-    reconstruction, as :func:`~termination.surface.corrugation.reconstruction_corrugation`:
-    the 1x1 sites repeated over the cell, the removed atoms taken out or the
-    added atoms put in.  The tests check that both give the same spots.
-    """
-    v = Visibility() if visibility is None else visibility
-    ft = face_terminations
-    t = ft.termination(key)
-    if v.max_depth_angstrom is None:
-        sa = ft.surface_atoms(t.id, ft.d)
-        keep = sa.unit == 0
-    else:
-        sa = ft.surface_atoms(t.id, v.max_depth_angstrom)
-        keep = np.ones(len(sa.depth), dtype=bool)
-    coordination = None
-    if v.site_weights:
-        if crystal is None:
-            raise StructureError("site weights (such as Ti5c=1) need the crystal: its bonds give the coordination")
-        coordination = surface_coordination(crystal, ft, t.id, sa)[keep]
-    species = [s for s, k in zip(sa.species, keep) if k]
-    inplane, depth = sa.inplane[keep], sa.depth[keep]
-    amplitudes = v.amplitudes(species, depth, coordination)
-    mesh = np.asarray(sa.mesh_inplane, dtype=float)
-    if reconstruction is None:
-        return ImagingSites(inplane, amplitudes, mesh, mesh)
-    r = reconstruction
-    matrix = np.asarray(r.matrix, dtype=np.int64)
-    cell = matrix.astype(float) @ mesh
-    shifts = coset_representatives(row_basis(matrix)).astype(float) @ mesh
-    pos = (inplane[None, :, :] + shifts[:, None, :]).reshape(-1, 2)
-    dep = np.tile(depth, len(shifts))
-    amp = np.tile(amplitudes, len(shifts))
-    changed = np.asarray(r.changed_atoms_inplane, dtype=float).reshape(-1, 2)
-    changed_depth = np.asarray(r.changed_atoms_depth, dtype=float).reshape(-1)
-    tol = v.site_tol_angstrom
-    if r.mode == "remove":
-        diff = pos[None, :, :] - changed[:, None, :]
-        frac = diff @ np.linalg.inv(cell)
-        frac -= np.rint(frac)
-        hit = (np.linalg.norm(frac @ cell, axis=-1) < tol) & (np.abs(dep[None, :] - changed_depth[:, None]) < tol)
-        kept = ~hit.any(axis=0)
-        pos, amp = pos[kept], amp[kept]
-    else:
-        inside = changed_depth <= float(depth.max()) + tol
-        pos = np.vstack([pos, changed[inside]])
-        added = [s for s, k in zip(r.changed_atoms_species, inside) if k]
-        amp = np.concatenate([amp, v.amplitudes(added, changed_depth[inside])])
-    return ImagingSites(pos, amp, cell, mesh)
 
 
 def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points: FloatArray) -> FloatArray:
