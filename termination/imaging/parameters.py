@@ -180,7 +180,13 @@ class ImageParameters:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
                 raise ImageError(f"{name} must be a positive number, got {v!r}")
-        for name in ("min_level_contrast", "lattice_false_alarm", "streak_ratio", "max_nan_fraction", "min_peak_fraction"):
+        for name in (
+            "min_level_contrast",
+            "lattice_false_alarm",
+            "streak_ratio",
+            "max_nan_fraction",
+            "min_peak_fraction",
+        ):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:
                 raise ImageError(f"{name} must lie in (0, 1), got {v!r}")

@@ -1312,9 +1312,9 @@ def levelled_image(
     out = np.empty(shape, dtype=dtype)
     for rows in _row_blocks(shape):
         near = fit.near(shape, rows)
-        out[rows] = _residual(
-            z, None, coords, fit.slope, fit.offsets, fit.lines, fit.background, rows, block_labels=near
-        )
+        # the fitted background is left in: with nodes a few pixels apart it can follow part of the atomic
+        # corrugation, and what it takes leaves side bands of the lattice spots at the node spacing
+        out[rows] = _residual(z, None, coords, fit.slope, fit.offsets, fit.lines, None, rows, block_labels=near)
     out[~valid] = 0.0
     step = max(1, int(math.sqrt(out.size / 250_000)))
     on = fit.labels[::step, ::step] > 0

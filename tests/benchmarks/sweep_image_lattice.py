@@ -45,7 +45,8 @@ def main():
         results = list(pool.map(run, cases, chunksize=4))
     elapsed = time.perf_counter() - t0
     counts = Counter(kind for _, kind, _, _ in results)
-    print(f"{len(cases)} maps in {elapsed:.0f} s: " + ", ".join(f"{counts[k]} {k}" for k in ("right", "not found", "wrong")))
+    tally = ", ".join(f"{counts[k]} {k}" for k in ("right", "not found", "wrong"))
+    print(f"{len(cases)} maps in {elapsed:.0f} s: {tally}")
     axes = ("size", "steps", "tilt_deg", "pixel_size", "lattice", "artifact")
     for axis in axes:
         per = defaultdict(Counter)

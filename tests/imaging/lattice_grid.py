@@ -96,11 +96,7 @@ def outcome(case):
     if lat is None:
         return "not found", r
     a, b, gamma = reduced(*LATTICES[case.lattice][:3])
-    ok = (
-        abs(lat.a - a) <= SPACING_REL * a
-        and abs(lat.b - b) <= SPACING_REL * b
-        and abs(lat.gamma - gamma) <= ANGLE_DEG
-    )
+    ok = abs(lat.a - a) <= SPACING_REL * a and abs(lat.b - b) <= SPACING_REL * b and abs(lat.gamma - gamma) <= ANGLE_DEG
     return ("right" if ok else "wrong"), r
 
 
