@@ -11,10 +11,11 @@ simulated topograph is their synthesis
 the site density low-pass filtered to the visible spots: its maxima sit on
 the bright sites and its period is the apparent lattice.  The figure shows
 it scaled to [0, 1] (an apparent height, not Å).  A measured height map,
-when given, is shown beside it on the same length scale: the window of that
-side with the least slope (on one terrace, away from step edges), high-pass
-filtered (a Gaussian of 3/4 of the apparent period removed, which keeps the
-corrugation: its Fourier factor is 1 - exp(-2 pi^2 (3/4)^2) > 0.99).
+when given, is shown beside it on the same length scale: a window of the
+image its analysis measured the lattice on
+(:func:`termination.imaging.analysis.levelled_maps`: plane, scan-line
+offsets and terrace offsets of the terrace model removed, step edges and
+adsorbates left out), where that image keeps the most pixels.
 
 References
 ----------
@@ -26,7 +27,8 @@ Press, 2nd ed. 2008), ch. 6 (corrugation as a Fourier series).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -50,10 +52,12 @@ from termination.surface.reconstructions import Reconstruction
 from termination.surface.terminations import FaceTerminations
 from termination.units import ANGSTROM
 
+if TYPE_CHECKING:
+    from termination.imaging.analysis import LevelledMaps
+
 __all__ = [
     "MeasuredMap",
     "corrugation_heights",
-    "highpass",
     "measured_panel",
     "simulated_topograph",
 ]
@@ -61,11 +65,25 @@ __all__ = [
 
 @dataclass(frozen=True, eq=False)
 class MeasuredMap:
-    """A measured height map to show beside a simulation: heights (ny, nx), Å, and the pixel size (x, y), Å."""
+    """A measured height map to show: heights (ny, nx), Å, and the pixel size (x, y), Å.
+
+    ``parameters`` are the image parameters its analysis used
+    (:class:`~termination.imaging.parameters.ImageParameters` fields, as
+    (name, value) pairs); the figures show the maps that analysis levelled
+    (:attr:`levelled`), not a filtering of their own.
+    """
 
     heights: FloatArray = field(metadata=ANGSTROM)
     pixel_size: tuple[float, float] = field(metadata=ANGSTROM)
     name: str = "measured"
+    parameters: tuple[tuple[str, Any], ...] = ()
+
+    @cached_property
+    def levelled(self) -> LevelledMaps:
+        """The terrace model's levelled maps (:func:`termination.imaging.analysis.levelled_maps`), computed once."""
+        from termination.imaging.analysis import levelled_maps
+
+        return levelled_maps(self.heights, self.pixel_size, **dict(self.parameters))
 
 
 def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points: FloatArray) -> FloatArray:
@@ -84,19 +102,6 @@ def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points
     phase = np.exp(2j * np.pi * (pts @ g.T))
     out: FloatArray = np.real(phase @ np.conj(f))
     return out
-
-
-def highpass(heights: FloatArray, sigma_px: float) -> FloatArray:
-    """Heights minus their Gaussian smoothing (missing pixels filled with the mean first)."""
-    from scipy import ndimage
-
-    z = np.asarray(heights, dtype=float)
-    finite = np.isfinite(z)
-    if not finite.any():
-        raise ImageError("the height map has no finite pixel")
-    filled = np.where(finite, z, float(np.mean(z[finite])))
-    out: FloatArray = filled - ndimage.gaussian_filter(filled, sigma_px, mode="nearest")
-    return np.where(finite, out, np.nan)
 
 
 def simulated_topograph(
@@ -124,8 +129,8 @@ def simulated_topograph(
     visibility : Visibility, optional
         Corrugation model (default :class:`Visibility()`).
     measured : MeasuredMap, optional
-        Shown beside the simulation, high-pass filtered, cut to the same
-        side length where it is larger.
+        Shown beside the simulation as its analysis levelled it, cut to the
+        same side length where it is larger.
     crystal : Crystal, optional
         The bulk crystal; needed only for ``visibility.site_weights``.
     span_angstrom : float, optional
@@ -183,7 +188,7 @@ def simulated_topograph(
         bar.set_label("apparent height (scaled)", fontsize=6.5)
         scale_bar(ax, nice_length(span), colour="#ffffff")
         if measured is not None:
-            measured_panel(fig, axes[1], measured, span, period, cmap)
+            measured_panel(fig, axes[1], measured, span, cmap)
         if title:
             fig.suptitle(title)
     return fig
@@ -198,30 +203,28 @@ def _lattice_text(pattern: CorrugationPattern) -> str:
     return f"{la.a:.2f} × {la.b:.2f} Å, {la.gamma:.0f}°"
 
 
-def _flattest_window(z: FloatArray, cy: int, cx: int) -> tuple[int, int]:
-    """(row, column) of the top left corner of the cy x cx window with the least summed slope."""
-    gy, gx = np.gradient(z)
-    slope = np.hypot(gx, gy)
-    integral = np.zeros((slope.shape[0] + 1, slope.shape[1] + 1))
-    integral[1:, 1:] = slope.cumsum(axis=0).cumsum(axis=1)
+def _fullest_window(kept: Any, cy: int, cx: int) -> tuple[int, int]:
+    """(row, column) of the top left corner of the cy x cx window with the most pixels kept (the first of equals)."""
+    integral = np.zeros((kept.shape[0] + 1, kept.shape[1] + 1))
+    integral[1:, 1:] = kept.cumsum(axis=0).cumsum(axis=1)
     sums = integral[cy:, cx:] - integral[:-cy, cx:] - integral[cy:, :-cx] + integral[:-cy, :-cx]
-    r, c = np.unravel_index(int(np.argmin(sums)), sums.shape)
+    r, c = np.unravel_index(int(np.argmax(sums)), sums.shape)
     return int(r), int(c)
 
 
-def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, period: float, cmap: Any) -> None:
-    """The flattest window of ``span`` Å of the measured map, high-pass filtered, with its own colour bar."""
-    z = np.asarray(measured.heights, dtype=float)
+def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, cmap: Any) -> None:
+    """A window of ``span`` Å of the image the lattice was measured on, where it keeps the most pixels.
+
+    The image is the analysis's own (:attr:`MeasuredMap.levelled`): every
+    terrace levelled by the terrace model, step edges, adsorbates and pits
+    left out (blank).
+    """
+    z = measured.levelled.lattice_image
     px, py = (float(v) for v in measured.pixel_size)
     ny, nx = z.shape
     cx, cy = min(nx, max(8, int(round(span / px)))), min(ny, max(8, int(round(span / py))))
-    sigma_px = max(1.0, 0.75 * period / min(px, py))
-    filtered = highpass(z, sigma_px)
-    finite = np.isfinite(z)
-    filled = np.where(finite, z, float(np.mean(z[finite])))
-    # Slope of the smoothed map: the corrugation and noise average out, a step edge spreads as far as the filter.
-    y0, x0 = _flattest_window(filled - np.where(finite, filtered, 0.0), cy, cx)
-    crop = filtered[y0 : y0 + cy, x0 : x0 + cx]
+    y0, x0 = _fullest_window(np.isfinite(z), cy, cx)
+    crop = z[y0 : y0 + cy, x0 : x0 + cx]
     values = crop[np.isfinite(crop)]
     lo, hi = np.percentile(values, [1, 99]) if values.size else (0.0, 1.0)
     im = ax.imshow(
@@ -234,10 +237,7 @@ def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, period
         gid="measured topograph",
     )
     ax.set_xlabel("x (Å)")
-    ax.set_title(
-        f"{measured.name}: flattest {cx * px:.0f} Å window,\nhigh-pass (σ = {sigma_px * min(px, py):.1f} Å)",
-        fontsize=7.5,
-    )
+    ax.set_title(f"{measured.name}: {cx * px:.0f} Å window,\nlevelled by the terrace model", fontsize=7.5)
     bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
     bar.set_label("height (Å)", fontsize=6.5)
     scale_bar(ax, nice_length(cx * px), colour="#ffffff")

@@ -1299,8 +1299,12 @@ def levelled_image(
 ) -> tuple[AnyArray, BoolArray]:
     """Terrace-levelled image for the Fourier analysis (step edges, outliers and NaN set to zero).
 
-    Every pixel is levelled with the plane, the scan-line offset, the
-    background and the offset of its nearest terrace. Where the result
+    Every pixel is levelled with the plane, the scan-line offset and the
+    offset of its nearest terrace. The smooth background is not removed: a
+    background with nodes a few pixels apart can follow part of the atomic
+    corrugation, and removing it would put side bands beside the lattice
+    spots at the node spacing; a smooth relief transforms to low
+    frequencies only. Where the result
     stands far out of the terrace corrugation and noise (step edges,
     adsorbates), pixels are set to zero with a margin of ``edge_guard_px``,
     and so are NaN pixels. Keeping the corrugation up to the step edges
