@@ -582,16 +582,19 @@ def _below_floor(gmat: FloatArray, px: tuple[float, float], metric: FloatArray, 
 _MIN_PERIOD_PX = 2.5  # shortest lattice vector that the pixel grid resolves (2 pixels is the sampling limit)
 
 
+_CLEAR_MAJORITY = 0.6  # of the area that shows a lattice: two of three equal terraces, not a near tie
+
+
 def _vote(results: list[_TerraceLattice], examined: int, n_regions: int, notes: list[str]) -> list[_TerraceLattice]:
     """The terrace lattices that agree with the one most of the terrace area supports, in one frame; [] for none.
 
     Terraces whose lattices are the same (one integer basis change apart,
-    :func:`_align`) form a group. The group holding more than half of the
-    area of the terraces that show a lattice is taken when it also holds
-    more than half of the ``examined`` area (terraces that show no lattice
-    support none); a lattice that a minority of the terrace area shows is
-    not reported. When no group holds most of the area that shows a
-    lattice, the terraces disagree: the group whose best terrace has the
+    :func:`_align`) form a group. The group holding a clear majority
+    (:data:`_CLEAR_MAJORITY`) of the area of the terraces that show a
+    lattice is taken when it also holds more than half of the ``examined``
+    area (terraces that show no lattice support none); a lattice that a
+    minority of the terrace area shows is not reported. Without a clear
+    majority the terraces disagree: the group whose best terrace has the
     strongest, sharpest spots (:func:`_sharpness`) is reported, and the
     notes say so.
     """
@@ -607,7 +610,7 @@ def _vote(results: list[_TerraceLattice], examined: int, n_regions: int, notes: 
     shown = sum(t.area for t in results)
     by_area = max(groups, key=lambda g: sum(t.area for t in g))
     support = sum(t.area for t in by_area)
-    if 2 * support > shown:
+    if support >= _CLEAR_MAJORITY * shown:
         if 2 * support <= examined:
             notes.append(
                 f"no lattice: the one found shows on {len(by_area)} of the {n_regions} largest terraces, "

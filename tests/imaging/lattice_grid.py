@@ -112,11 +112,25 @@ def full_grid(seeds=(0, 1)):
 
 
 def fast_grid():
-    """A spread of the full grid small enough for the default suite: each value of each axis at least twice."""
+    """A spread of the full grid small enough for the default suite.
+
+    Every lattice with every artifact (21 maps); sizes, step counts, tilts,
+    pixel sizes and seeds are spread over them in a seeded random order,
+    each value at least four times.
+    """
     rng = np.random.default_rng(14)
-    cases = full_grid(seeds=(0, 1, 2))
-    picks = rng.choice(len(cases), size=40, replace=False)
-    chosen = [cases[i] for i in sorted(picks)]
+    pairs = list(itertools.product(LATTICES, ARTIFACTS))
+    n = len(pairs)
+
+    def spread(values):
+        return [values[i] for i in rng.permutation(np.arange(n) % len(values))]
+
+    sizes, steps, tilts = spread((128, 256)), spread((0, 1, 2)), spread((1.0, 6.0))
+    pixels, seeds = spread((0.2, 0.25, 0.4)), spread((0, 1, 2))
+    chosen = [
+        Case(sizes[i], steps[i], tilts[i], pixels[i], lattice, artifact, seeds[i], (0.0, 90.0, 40.0)[seeds[i]])
+        for i, (lattice, artifact) in enumerate(pairs)
+    ]
     # the reported regressions: two steps on 256², one on 128², square 4.19 Å at 0.25 Å/px, tilt 1°
     chosen += [
         Case(256, 2, 1.0, 0.25, "square 4.19", "clean", 0, azimuth_deg=0.0),
