@@ -769,9 +769,17 @@ def measure_lattice(
                 f"slow-scan stretch {drift.y_scale:+.4f} ± {drift.sigma_y_scale:.4f}; gamma is then fixed by "
                 "the stated lattice type, not measured"
             )
+    lattice = _lattice_values(params, cov, metric, count, terraces, None if drift is None else drift)
+    rel = max(lattice.sigma_a / lattice.a, lattice.sigma_b / lattice.b)
+    if not rel <= p.max_lattice_sigma_fraction:
+        notes.append(
+            f"no lattice: the one found ({lattice.a:.2f} × {lattice.b:.2f} Å, {lattice.gamma:.1f}°) is uncertain "
+            f"by {rel:.1%}, more than {p.max_lattice_sigma_fraction:.1%} (max_lattice_sigma_fraction): its spots "
+            "are too broad or too few"
+        )
+        return None, None
     if drift is None:
         notes.append(DRIFT_NOTE)
-    lattice = _lattice_values(params, cov, metric, count, terraces, None if drift is None else drift)
     return lattice, drift
 
 

@@ -69,6 +69,12 @@ class ImageParameters:
         has a shorter one (the shortest metal-metal distances are about
         2.2 Å), so a shorter lattice is an artifact and is not returned.
         Lattices shorter than 2.5 pixels are not returned either.
+    max_lattice_sigma_fraction : float, default 0.015
+        A lattice whose a or b has a larger relative standard uncertainty
+        is not reported: its spots are too broad or too few (terraces only
+        a few periods wide, strong artifacts) for a lattice measured to a
+        few percent, and such lattices came out wrong by 2-4 % in the test
+        grid (``tests/benchmarks/sweep_image_lattice.py``).
     index_tol : float, default 0.05
         A peak is indexed when its fractional indices lie within this of integers.
     lattice_clip_sigmas : float, default 4
@@ -142,6 +148,7 @@ class ImageParameters:
     max_peaks: int = 12
     min_peak_fraction: float = 1e-3
     min_lattice_angstrom: float = 2.0
+    max_lattice_sigma_fraction: float = 0.015
     index_tol: float = 0.05
     lattice_clip_sigmas: float = 4.0
     streak_ratio: float = 0.05
@@ -186,6 +193,7 @@ class ImageParameters:
             "streak_ratio",
             "max_nan_fraction",
             "min_peak_fraction",
+            "max_lattice_sigma_fraction",
         ):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:

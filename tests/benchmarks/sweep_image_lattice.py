@@ -17,6 +17,8 @@ from collections import Counter, defaultdict
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
+import numpy as np
+
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
@@ -26,7 +28,10 @@ from tests.imaging.lattice_grid import full_grid, outcome  # noqa: E402
 def run(case):
     kind, r = outcome(case)
     lat = r.lattice
-    got = None if lat is None else (round(lat.a, 3), round(lat.b, 3), round(lat.gamma, 2))
+    got = None
+    if lat is not None:
+        rel = max(lat.sigma_a / lat.a, lat.sigma_b / lat.b)
+        got = (round(lat.a, 3), round(lat.b, 3), round(lat.gamma, 2), f"sigma {rel:.1%} {lat.sigma_gamma:.1f} deg")
     reason = next((n for n in r.notes if "lattice" in n and ("no " in n or "disagree" in n)), "")
     return case, kind, got, reason
 
@@ -54,6 +59,14 @@ def main():
             per[getattr(case, axis)][kind] += 1
         cells = [f"{v}: {c['not found']}/{sum(c.values())} missed, {c['wrong']} wrong" for v, c in per.items()]
         print(f"  {axis:10s} " + "; ".join(cells))
+    for kind in ("right", "wrong"):
+        rels = [float(got[3].split()[1][:-1]) for _, k, got, _ in results if k == kind]
+        if rels:
+            q = np.percentile(rels, [50, 90, 99, 100])
+            print(
+                f"  relative sigma of a, b when {kind}: median {q[0]:.2f} %, 90 % {q[1]:.2f} %, "
+                f"99 % {q[2]:.2f} %, max {q[3]:.2f} %"
+            )
     show = {"wrong": {"wrong"}, "missed": {"wrong", "not found"}, "all": {"wrong", "not found", "right"}}[args.show]
     for case, kind, got, reason in results:
         if kind in show:
