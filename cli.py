@@ -1124,7 +1124,8 @@ def image(
     if outputs.wanted:
         from termination.figures.commands import image_figures, read_measured
 
-        measured = read_measured(file, pixel_size, z_unit, channel, report.analysis.lattice)
+        settings = {"min_step_angstrom": min_step, "max_nan_fraction": max_nan}
+        measured = read_measured(file, pixel_size, z_unit, channel, report.analysis.lattice, settings)
         outputs.write(report, image_figures(report, measured))
     render("image", report, json_out, wide)
 

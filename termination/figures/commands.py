@@ -473,20 +473,31 @@ def _candidate_cell(context: Callable[[], tuple[Any, Any]], t_id: str, name: str
 
 
 def read_measured(
-    path: Any, pixel_size: Any = None, z_unit: Any = None, channel: Any = None, lattice: Any = None
+    path: Any,
+    pixel_size: Any = None,
+    z_unit: Any = None,
+    channel: Any = None,
+    lattice: Any = None,
+    parameters: dict[str, Any] | None = None,
 ) -> Measured:
     """A height-map file read again with the calibration the command used, for its figures.
 
     ``lattice`` (an ``image`` analysis's) gives the direction of the measured
     lattice vector a; without it a Fourier figure turns its prediction onto the
     measured spectrum by itself (:func:`termination.figures.fourier.best_turn`).
+    ``parameters`` are the image parameters the command's analysis used, so
+    that the figures show the maps it levelled.
     """
     from termination.figures.topograph import MeasuredMap
     from termination.imaging.reading import read_heightmap
 
     hm = read_heightmap(path, pixel_size=pixel_size, z_unit=z_unit, channel=channel)
     name = Path(path).name
-    return Measured(MeasuredMap(hm.heights, hm.pixel_size, name=name), None if lattice is None else lattice.direction)
+    settings = tuple(sorted((parameters or {}).items()))
+    return Measured(
+        MeasuredMap(hm.heights, hm.pixel_size, name=name, parameters=settings),
+        None if lattice is None else lattice.direction,
+    )
 
 
 def _has_charges(report: Any) -> bool:
@@ -503,12 +514,12 @@ def image_figures(report: Any, measured: Measured) -> list[PlannedFigure]:
     plans = [
         PlannedFigure(
             "image",
-            "The height map with its terrace plane removed, and its flattest window high-pass filtered.",
+            "The height map levelled by the terrace model, and a window of the image the lattice was measured on.",
             lambda: map_overview(measured.map, analysis),
         ),
         PlannedFigure(
             "spectrum",
-            "Power spectrum of the high-pass filtered map with the reciprocal lattice found.",
+            "Power spectrum of the image the lattice was measured on, with the reciprocal lattice found.",
             lambda: lattice_spectrum(measured.map, analysis.lattice),
         ),
     ]

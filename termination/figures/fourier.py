@@ -10,7 +10,8 @@ domains of a cell give (``Spot.domains`` below the cell's domain count, when
 the corrugation record lists domains) are drawn as diamonds.
 
 With a measured height map the pattern is drawn over its power spectrum
-(high-pass filtered as in :mod:`termination.figures.topograph`, Hann window,
+(of the image its analysis measured the lattice on,
+:attr:`termination.figures.topograph.MeasuredMap.levelled`; Hann window,
 log scale), turned into the image's frame (which is not the crystal's): so
 that the predicted apparent lattice vector a lies along the measured one when
 its direction is given, otherwise by the turn that puts the most measured
@@ -167,12 +168,7 @@ def fourier_pattern(
     rotation = 0.0
     spectrum = None
     if measured is not None:
-        from termination.figures.topograph import highpass
-
-        la = pattern.apparent_lattice
-        period = la.a if np.isfinite(la.a) else float(np.linalg.norm(mesh[0]))
-        sigma_px = max(1.0, 0.75 * period / min(measured.pixel_size))
-        power, kx, ky = power_spectrum(highpass(measured.heights, sigma_px), measured.pixel_size)
+        power, kx, ky = power_spectrum(measured.levelled.lattice_image, measured.pixel_size)
         log_power = np.log10(power + power.max() * 1e-12)
         spectrum = (log_power, kx, ky)
         vectors = apparent_vectors(pattern.spots, mesh, cell_inplane)

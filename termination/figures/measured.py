@@ -1,11 +1,15 @@
 """Figures of a measured height map alone (``image``): the levelled map and its power spectrum with the lattice.
 
-The map is shown with the terrace plane of the analysis removed, so terraces
-appear as levels, beside its flattest window high-pass filtered
-(:mod:`termination.figures.topograph`).  The power spectrum of the high-pass
-filtered map (Hann window, log scale) carries the reciprocal lattice of the
-lattice found: the points h a* + k b*, with b taken on the side of a (turned
-by +gamma or -gamma) where the spectrum has more power, since the analysis
+Both show the maps the analysis itself levelled
+(:func:`termination.imaging.analysis.levelled_maps`, through
+:attr:`termination.figures.topograph.MeasuredMap.levelled`), not a
+filtering of their own: the map with the terrace plane, scan-line offsets
+and smooth background of the terrace model removed, so terraces appear as
+levels, beside a window of the image the lattice was measured on
+(:mod:`termination.figures.topograph`). The power spectrum of that image
+(Hann window, log scale) carries the reciprocal lattice of the lattice
+found: the points h a* + k b*, with b taken on the side of a (turned by
++gamma or -gamma) where the spectrum has more power, since the analysis
 reports the direction of a and the angle but not the handedness.
 """
 
@@ -21,31 +25,9 @@ from termination.figures.canvas import new_figure, style
 from termination.figures.fourier import power_spectrum
 from termination.figures.labels import nice_length, scale_bar
 from termination.figures.palette import COLOURS, relief_colormap
-from termination.figures.topograph import MeasuredMap, highpass, measured_panel
+from termination.figures.topograph import MeasuredMap, measured_panel
 
-__all__ = ["lattice_points_of", "lattice_spectrum", "levelled", "map_overview"]
-
-
-def levelled(measured: MeasuredMap, tilt_deg: float | None, azimuth_deg: float | None) -> FloatArray:
-    """Heights minus the plane of tilt ``tilt_deg`` rising towards ``azimuth_deg`` (from +x towards +y).
-
-    Notes
-    -----
-    z - (s cos(phi) x + s sin(phi) y) with s = tan(tilt); x along columns,
-    y along rows, both from the first pixel, Å.  Without a tilt the map is
-    returned unchanged.
-    """
-    z = np.asarray(measured.heights, dtype=float)
-    if tilt_deg is None or azimuth_deg is None:
-        return z
-    ny, nx = z.shape
-    px, py = measured.pixel_size
-    s = math.tan(math.radians(tilt_deg))
-    x = np.arange(nx) * px
-    y = np.arange(ny) * py
-    plane = s * math.cos(math.radians(azimuth_deg)) * x[None, :] + s * math.sin(math.radians(azimuth_deg)) * y[:, None]
-    out: FloatArray = z - plane
-    return out
+__all__ = ["lattice_points_of", "lattice_spectrum", "map_overview"]
 
 
 def lattice_points_of(lattice: Any, handedness: int, k_max: float) -> FloatArray:
@@ -69,15 +51,17 @@ def lattice_points_of(lattice: Any, handedness: int, k_max: float) -> FloatArray
 
 
 def map_overview(measured: MeasuredMap, analysis: Any, *, width_in: float = 7.0) -> Any:
-    """The map with the terrace plane removed beside its flattest window, high-pass filtered.
+    """The map levelled by the terrace model beside a window of the image the lattice was measured on.
 
     Returns
     -------
     matplotlib.figure.Figure
-        The levelled map is the image 'levelled map', the window 'measured topograph'.
+        The levelled map is the image 'levelled map' (its array is
+        :attr:`MeasuredMap.levelled` ``.terraces``), the window 'measured
+        topograph' (a crop of ``.lattice_image``).
     """
     tilt = analysis.tilt
-    z = levelled(measured, tilt.terrace, tilt.terrace_azimuth)
+    z = measured.levelled.terraces
     ny, nx = z.shape
     px, py = measured.pixel_size
     period = analysis.lattice.a if analysis.lattice is not None else 5.0
@@ -92,18 +76,18 @@ def map_overview(measured: MeasuredMap, analysis: Any, *, width_in: float = 7.0)
         )
         left.set_xlabel("x (Å)")
         left.set_ylabel("y (Å)")
-        what = "terrace plane removed" if tilt.terrace is not None else "as measured (no terrace plane)"
+        what = "levelled by the terrace model" + ("" if tilt.terrace is not None else " (terrace tilt not determined)")
         left.set_title(f"{measured.name}: {what}", fontsize=7.5)
         bar = fig.colorbar(im, ax=left, shrink=0.8, pad=0.02)
         bar.set_label("height (Å)", fontsize=6.5)
         scale_bar(left, nice_length(nx * px), colour="#ffffff")
         span = min(nx * px, ny * py, max(12.0, 5 * period))
-        measured_panel(fig, right, measured, span, period, cmap)
+        measured_panel(fig, right, measured, span, cmap)
     return fig
 
 
 def lattice_spectrum(measured: MeasuredMap, lattice: Any, *, width_in: float = 4.6) -> Any:
-    """Power spectrum of the high-pass filtered map with the reciprocal lattice of ``lattice`` (None: none found).
+    """Power spectrum of the image the lattice was measured on, with the reciprocal lattice of ``lattice`` (None: none).
 
     Returns
     -------
@@ -112,8 +96,7 @@ def lattice_spectrum(measured: MeasuredMap, lattice: Any, *, width_in: float = 4
         scatter 'measured lattice' (offsets in 1/Å).
     """
     px, py = (float(v) for v in measured.pixel_size)
-    period = lattice.a if lattice is not None else 5.0
-    power, kx, ky = power_spectrum(highpass(measured.heights, max(1.0, 0.75 * period / min(px, py))), (px, py))
+    power, kx, ky = power_spectrum(measured.levelled.lattice_image, (px, py))
     log_power = np.log10(power + power.max() * 1e-12)
     k_max = 1.0 / (2 * max(px, py))
     if lattice is not None:
@@ -133,7 +116,7 @@ def lattice_spectrum(measured: MeasuredMap, lattice: Any, *, width_in: float = 4
             vmax=hi,
             gid="measured power",
         )
-        title = "power spectrum (high-pass, Hann window)"
+        title = "power spectrum (levelled, Hann window)"
         if lattice is not None:
             candidates = [lattice_points_of(lattice, h, k_max) for h in (1, -1)]
             scores = [_power_at(log_power, kx, ky, g) for g in candidates]

@@ -11,10 +11,11 @@ simulated topograph is their synthesis
 the site density low-pass filtered to the visible spots: its maxima sit on
 the bright sites and its period is the apparent lattice.  The figure shows
 it scaled to [0, 1] (an apparent height, not Å).  A measured height map,
-when given, is shown beside it on the same length scale: the window of that
-side with the least slope (on one terrace, away from step edges), high-pass
-filtered (a Gaussian of 3/4 of the apparent period removed, which keeps the
-corrugation: its Fourier factor is 1 - exp(-2 pi^2 (3/4)^2) > 0.99).
+when given, is shown beside it on the same length scale: a window of the
+image its analysis measured the lattice on
+(:func:`termination.imaging.analysis.levelled_maps`: plane, scan-line
+offsets and terrace offsets of the terrace model removed, step edges and
+adsorbates left out), where that image keeps the most pixels.
 
 References
 ----------
@@ -26,23 +27,23 @@ Press, 2nd ed. 2008), ch. 6 (corrugation as a Fourier series).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from termination.algebra.integer import row_basis
-from termination.algebra.lattice2d import coset_representatives
 from termination.arrays import FloatArray
 from termination.bulk.crystal import Crystal
 from termination.defaults import TOPOGRAPH_PIXELS
-from termination.errors import ImageError, StructureError
+from termination.errors import ImageError
 from termination.figures.canvas import new_figure, style
 from termination.figures.labels import hkl_label, nice_length, scale_bar
 from termination.figures.palette import relief_colormap
-from termination.surface.coordination import surface_coordination
 from termination.surface.corrugation import (
     CorrugationPattern,
+    ImagingSites,
     Visibility,
+    imaging_sites,
     reconstruction_corrugation,
     structure_factor,
     termination_corrugation,
@@ -51,100 +52,38 @@ from termination.surface.reconstructions import Reconstruction
 from termination.surface.terminations import FaceTerminations
 from termination.units import ANGSTROM
 
+if TYPE_CHECKING:
+    from termination.imaging.analysis import LevelledMaps
+
 __all__ = [
-    "ImagingSites",
     "MeasuredMap",
     "corrugation_heights",
-    "highpass",
-    "imaging_sites",
     "measured_panel",
     "simulated_topograph",
 ]
 
 
 @dataclass(frozen=True, eq=False)
-class ImagingSites:
-    """The weighted sites of the corrugation model of one termination (or reconstruction cell).
-
-    ``inplane`` (N, 2) Å in the face frame, ``amplitudes`` (N,), the
-    ``cell`` (2, 2) rows they repeat with and the 1x1 ``mesh`` (2, 2) rows.
-    """
-
-    inplane: FloatArray = field(metadata=ANGSTROM)
-    amplitudes: FloatArray
-    cell: FloatArray = field(metadata=ANGSTROM)
-    mesh: FloatArray = field(metadata=ANGSTROM)
-
-
-@dataclass(frozen=True, eq=False)
 class MeasuredMap:
-    """A measured height map to show beside a simulation: heights (ny, nx), Å, and the pixel size (x, y), Å."""
+    """A measured height map to show: heights (ny, nx), Å, and the pixel size (x, y), Å.
+
+    ``parameters`` are the image parameters its analysis used
+    (:class:`~termination.imaging.parameters.ImageParameters` fields, as
+    (name, value) pairs); the figures show the maps that analysis levelled
+    (:attr:`levelled`), not a filtering of their own.
+    """
 
     heights: FloatArray = field(metadata=ANGSTROM)
     pixel_size: tuple[float, float] = field(metadata=ANGSTROM)
     name: str = "measured"
+    parameters: tuple[tuple[str, Any], ...] = ()
 
+    @cached_property
+    def levelled(self) -> LevelledMaps:
+        """The terrace model's levelled maps (:func:`termination.imaging.analysis.levelled_maps`), computed once."""
+        from termination.imaging.analysis import levelled_maps
 
-def imaging_sites(
-    face_terminations: FaceTerminations,
-    key: str,
-    visibility: Visibility | None = None,
-    reconstruction: Reconstruction | None = None,
-    *,
-    crystal: Crystal | None = None,
-) -> ImagingSites:
-    """The sites and amplitudes the corrugation model images for termination ``key``.
-
-    The same sites as :func:`termination.surface.corrugation.termination_corrugation`
-    (the top unit, or down to ``visibility.max_depth_angstrom``; site weights
-    by the bonds each atom keeps, which need ``crystal``) and, with a
-    reconstruction, as :func:`~termination.surface.corrugation.reconstruction_corrugation`:
-    the 1x1 sites repeated over the cell, the removed atoms taken out or the
-    added atoms put in.  The tests check that both give the same spots.
-    """
-    v = Visibility() if visibility is None else visibility
-    ft = face_terminations
-    t = ft.termination(key)
-    if v.max_depth_angstrom is None:
-        sa = ft.surface_atoms(t.id, ft.d)
-        keep = sa.unit == 0
-    else:
-        sa = ft.surface_atoms(t.id, v.max_depth_angstrom)
-        keep = np.ones(len(sa.depth), dtype=bool)
-    coordination = None
-    if v.site_weights:
-        if crystal is None:
-            raise StructureError("site weights (such as Ti5c=1) need the crystal: its bonds give the coordination")
-        coordination = surface_coordination(crystal, ft, t.id, sa)[keep]
-    species = [s for s, k in zip(sa.species, keep) if k]
-    inplane, depth = sa.inplane[keep], sa.depth[keep]
-    amplitudes = v.amplitudes(species, depth, coordination)
-    mesh = np.asarray(sa.mesh_inplane, dtype=float)
-    if reconstruction is None:
-        return ImagingSites(inplane, amplitudes, mesh, mesh)
-    r = reconstruction
-    matrix = np.asarray(r.matrix, dtype=np.int64)
-    cell = matrix.astype(float) @ mesh
-    shifts = coset_representatives(row_basis(matrix)).astype(float) @ mesh
-    pos = (inplane[None, :, :] + shifts[:, None, :]).reshape(-1, 2)
-    dep = np.tile(depth, len(shifts))
-    amp = np.tile(amplitudes, len(shifts))
-    changed = np.asarray(r.changed_atoms_inplane, dtype=float).reshape(-1, 2)
-    changed_depth = np.asarray(r.changed_atoms_depth, dtype=float).reshape(-1)
-    tol = v.site_tol_angstrom
-    if r.mode == "remove":
-        diff = pos[None, :, :] - changed[:, None, :]
-        frac = diff @ np.linalg.inv(cell)
-        frac -= np.rint(frac)
-        hit = (np.linalg.norm(frac @ cell, axis=-1) < tol) & (np.abs(dep[None, :] - changed_depth[:, None]) < tol)
-        kept = ~hit.any(axis=0)
-        pos, amp = pos[kept], amp[kept]
-    else:
-        inside = changed_depth <= float(depth.max()) + tol
-        pos = np.vstack([pos, changed[inside]])
-        added = [s for s, k in zip(r.changed_atoms_species, inside) if k]
-        amp = np.concatenate([amp, v.amplitudes(added, changed_depth[inside])])
-    return ImagingSites(pos, amp, cell, mesh)
+        return levelled_maps(self.heights, self.pixel_size, **dict(self.parameters))
 
 
 def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points: FloatArray) -> FloatArray:
@@ -163,19 +102,6 @@ def corrugation_heights(sites: ImagingSites, pattern: CorrugationPattern, points
     phase = np.exp(2j * np.pi * (pts @ g.T))
     out: FloatArray = np.real(phase @ np.conj(f))
     return out
-
-
-def highpass(heights: FloatArray, sigma_px: float) -> FloatArray:
-    """Heights minus their Gaussian smoothing (missing pixels filled with the mean first)."""
-    from scipy import ndimage
-
-    z = np.asarray(heights, dtype=float)
-    finite = np.isfinite(z)
-    if not finite.any():
-        raise ImageError("the height map has no finite pixel")
-    filled = np.where(finite, z, float(np.mean(z[finite])))
-    out: FloatArray = filled - ndimage.gaussian_filter(filled, sigma_px, mode="nearest")
-    return np.where(finite, out, np.nan)
 
 
 def simulated_topograph(
@@ -203,8 +129,8 @@ def simulated_topograph(
     visibility : Visibility, optional
         Corrugation model (default :class:`Visibility()`).
     measured : MeasuredMap, optional
-        Shown beside the simulation, high-pass filtered, cut to the same
-        side length where it is larger.
+        Shown beside the simulation as its analysis levelled it, cut to the
+        same side length where it is larger.
     crystal : Crystal, optional
         The bulk crystal; needed only for ``visibility.site_weights``.
     span_angstrom : float, optional
@@ -262,7 +188,7 @@ def simulated_topograph(
         bar.set_label("apparent height (scaled)", fontsize=6.5)
         scale_bar(ax, nice_length(span), colour="#ffffff")
         if measured is not None:
-            measured_panel(fig, axes[1], measured, span, period, cmap)
+            measured_panel(fig, axes[1], measured, span, cmap)
         if title:
             fig.suptitle(title)
     return fig
@@ -277,30 +203,28 @@ def _lattice_text(pattern: CorrugationPattern) -> str:
     return f"{la.a:.2f} × {la.b:.2f} Å, {la.gamma:.0f}°"
 
 
-def _flattest_window(z: FloatArray, cy: int, cx: int) -> tuple[int, int]:
-    """(row, column) of the top left corner of the cy x cx window with the least summed slope."""
-    gy, gx = np.gradient(z)
-    slope = np.hypot(gx, gy)
-    integral = np.zeros((slope.shape[0] + 1, slope.shape[1] + 1))
-    integral[1:, 1:] = slope.cumsum(axis=0).cumsum(axis=1)
+def _fullest_window(kept: Any, cy: int, cx: int) -> tuple[int, int]:
+    """(row, column) of the top left corner of the cy x cx window with the most pixels kept (the first of equals)."""
+    integral = np.zeros((kept.shape[0] + 1, kept.shape[1] + 1))
+    integral[1:, 1:] = kept.cumsum(axis=0).cumsum(axis=1)
     sums = integral[cy:, cx:] - integral[:-cy, cx:] - integral[cy:, :-cx] + integral[:-cy, :-cx]
-    r, c = np.unravel_index(int(np.argmin(sums)), sums.shape)
+    r, c = np.unravel_index(int(np.argmax(sums)), sums.shape)
     return int(r), int(c)
 
 
-def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, period: float, cmap: Any) -> None:
-    """The flattest window of ``span`` Å of the measured map, high-pass filtered, with its own colour bar."""
-    z = np.asarray(measured.heights, dtype=float)
+def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, cmap: Any) -> None:
+    """A window of ``span`` Å of the image the lattice was measured on, where it keeps the most pixels.
+
+    The image is the analysis's own (:attr:`MeasuredMap.levelled`): every
+    terrace levelled by the terrace model, step edges, adsorbates and pits
+    left out (blank).
+    """
+    z = measured.levelled.lattice_image
     px, py = (float(v) for v in measured.pixel_size)
     ny, nx = z.shape
     cx, cy = min(nx, max(8, int(round(span / px)))), min(ny, max(8, int(round(span / py))))
-    sigma_px = max(1.0, 0.75 * period / min(px, py))
-    filtered = highpass(z, sigma_px)
-    finite = np.isfinite(z)
-    filled = np.where(finite, z, float(np.mean(z[finite])))
-    # Slope of the smoothed map: the corrugation and noise average out, a step edge spreads as far as the filter.
-    y0, x0 = _flattest_window(filled - np.where(finite, filtered, 0.0), cy, cx)
-    crop = filtered[y0 : y0 + cy, x0 : x0 + cx]
+    y0, x0 = _fullest_window(np.isfinite(z), cy, cx)
+    crop = z[y0 : y0 + cy, x0 : x0 + cx]
     values = crop[np.isfinite(crop)]
     lo, hi = np.percentile(values, [1, 99]) if values.size else (0.0, 1.0)
     im = ax.imshow(
@@ -313,10 +237,7 @@ def measured_panel(fig: Any, ax: Any, measured: MeasuredMap, span: float, period
         gid="measured topograph",
     )
     ax.set_xlabel("x (Å)")
-    ax.set_title(
-        f"{measured.name}: flattest {cx * px:.0f} Å window,\nhigh-pass (σ = {sigma_px * min(px, py):.1f} Å)",
-        fontsize=7.5,
-    )
+    ax.set_title(f"{measured.name}: {cx * px:.0f} Å window,\nlevelled by the terrace model", fontsize=7.5)
     bar = fig.colorbar(im, ax=ax, shrink=0.8, pad=0.02)
     bar.set_label("height (Å)", fontsize=6.5)
     scale_bar(ax, nice_length(cx * px), colour="#ffffff")

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
+from termination.arrays import FloatArray
 from termination.errors import ImageError
 from termination.imaging.fourier import DriftCorrection, Lattice, measure_lattice
 from termination.imaging.parameters import ImageParameters
@@ -45,7 +46,7 @@ from termination.imaging.terraces import (
 )
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["SEGMENT_PIXELS", "HeightMapAnalysis", "Tilt", "analyse_heightmap"]
+__all__ = ["SEGMENT_PIXELS", "HeightMapAnalysis", "LevelledMaps", "Tilt", "analyse_heightmap", "levelled_maps"]
 
 #: Larger images are segmented on a copy binned to about this many pixels (the fit uses every pixel).
 SEGMENT_PIXELS = 512 * 512
@@ -137,6 +138,88 @@ class HeightMapAnalysis:
         return tuple(out)
 
 
+def _checked(
+    heights: ArrayLike, pixel_size: Any, parameters: dict[str, Any]
+) -> tuple[FloatArray, tuple[float, float], ImageParameters]:
+    """The heights, pixel size and parameters of one analysis, checked (ImageError naming the bad one)."""
+    z = check_heights(heights, max_abs=MAX_HEIGHT_ANGSTROM)
+    try:
+        px = parse_pixel_size(pixel_size)
+    except ImageError as exc:
+        raise ImageError(f"pixel_size: {exc}") from None
+    unknown = set(parameters) - set(ImageParameters.names()) | ({"bin", "workers"} & set(parameters))
+    if unknown:
+        raise ImageError(f"unknown image parameter {sorted(unknown)[0]!r}")
+    # segment large images on a binned copy (about 512 x 512 pixels)
+    params = ImageParameters(**parameters, bin=max(1, int(round(math.sqrt(z.size / SEGMENT_PIXELS)))))
+    return z, px, params
+
+
+@dataclass(frozen=True, eq=False)
+class LevelledMaps:
+    """The height map as the analysis levels it, for figures that show what was analysed.
+
+    Parameters
+    ----------
+    terraces : (ny, nx) ndarray
+        Heights minus the terrace plane, the scan-line offsets and the smooth
+        background of the terrace model, Å: each terrace is a flat level.
+        NaN where pixels are missing.
+    lattice_image : (ny, nx) ndarray
+        The image the lattice is measured on
+        (:func:`termination.imaging.terraces.levelled_image`): every terrace
+        brought to zero (the smooth background left in), Å; NaN where step
+        edges, adsorbates, pits and missing pixels were left out.
+    """
+
+    terraces: FloatArray = field(metadata=ANGSTROM)
+    lattice_image: FloatArray = field(metadata=ANGSTROM)
+
+
+def levelled_maps(heights: ArrayLike, pixel_size: Any, **parameters: Any) -> LevelledMaps:
+    """The levelled maps of the terrace model that :func:`analyse_heightmap` fits, with the same parameters.
+
+    Parameters
+    ----------
+    heights : (ny, nx) array_like
+        Heights, Å (NaN: missing).
+    pixel_size : float or (2,) sequence or str
+    **parameters
+        As for :func:`analyse_heightmap`; the same values give the same maps
+        the analysis measured on.
+
+    Returns
+    -------
+    LevelledMaps
+
+    Raises
+    ------
+    ImageError
+        As :func:`analyse_heightmap`.
+    """
+    z, px, params = _checked(heights, pixel_size, parameters)
+    valid = np.isfinite(z)
+    if 1.0 - float(valid.mean()) > params.max_nan_fraction:
+        raise ImageError(
+            f"{1.0 - float(valid.mean()):.1%} of the pixels are missing (NaN), more than the limit of "
+            f"{params.max_nan_fraction:.0%} (max_nan_fraction)"
+        )
+    coords = _coordinates(z.shape, px)
+    fit = fit_terraces(z, valid, coords, px, params)
+    x, y = coords
+    a, b = fit.slope
+    terraces = z - fit.lines[:, None] - b * y[:, None] - a * x[None, :]
+    if fit.background is not None:
+        terraces = terraces - fit.background.rows(coords)
+    terraces[~valid] = np.nan
+    on = valid & (np.asarray(fit.near(z.shape, slice(None))) > 0)
+    if on.any():
+        terraces -= float(np.median(terraces[on]))
+    flat, keep = levelled_image(z, valid, fit, coords, params)
+    lattice_image = np.where(keep, flat, np.nan).astype(np.float64)
+    return LevelledMaps(terraces=np.asarray(terraces, dtype=np.float64), lattice_image=lattice_image)
+
+
 def analyse_heightmap(
     heights: ArrayLike,
     pixel_size: Any,
@@ -196,16 +279,7 @@ def analyse_heightmap(
     *Lattice* (:func:`termination.imaging.fourier.measure_lattice`):
     measured on each of the largest terraces and combined.
     """
-    z = check_heights(heights, max_abs=MAX_HEIGHT_ANGSTROM)
-    try:
-        px = parse_pixel_size(pixel_size)
-    except ImageError as exc:
-        raise ImageError(f"pixel_size: {exc}") from None
-    unknown = set(parameters) - set(ImageParameters.names()) | ({"bin", "workers"} & set(parameters))
-    if unknown:
-        raise ImageError(f"unknown image parameter {sorted(unknown)[0]!r}")
-    # segment large images on a binned copy (about 512 x 512 pixels)
-    params = ImageParameters(**parameters, bin=max(1, int(round(math.sqrt(z.size / SEGMENT_PIXELS)))))
+    z, px, params = _checked(heights, pixel_size, parameters)
     if progress is not None and not callable(progress):
         raise ImageError(f"progress must be callable, got {progress!r}")
 

@@ -259,10 +259,40 @@ def _zoom_refine(
     return dx, dy
 
 
+def _fringes(support: BoolArray | None, shape: tuple[int, int], px: tuple[float, float], g: FloatArray) -> Any:
+    """How many periods of each wave ``g`` (m, 2), 1/Å, fit across the data of a region, along the wave's direction.
+
+    The extent of the pixels of ``support`` (all of ``shape`` when None)
+    projected on the direction of g, times |g|. A terrace that is a narrow
+    strip holds many periods of a wave along the strip and few across it,
+    so a single isotropic floor would either drop the lattice spots of the
+    strip or keep spots no terrace can resolve.
+    """
+    ny, nx = shape
+    if support is None:
+        # a full box: the extent along (ux, uy) is W |ux| + H |uy|
+        return np.abs(g[:, 0]) * (nx - 1) * px[0] + np.abs(g[:, 1]) * (ny - 1) * px[1]
+    stride = max(1, int(math.ceil(math.sqrt(support.sum() / 4096.0))))
+    rows, cols = np.nonzero(support[::stride, ::stride])
+    if rows.size == 0:
+        return np.zeros(len(g))
+    pts = np.stack([cols * stride * px[0], rows * stride * px[1]], axis=1)
+    proj = pts @ g.T  # already in periods: projection on u times |g|
+    return np.ptp(proj, axis=0) + stride * (np.abs(g[:, 0]) * px[0] + np.abs(g[:, 1]) * px[1])
+
+
 def _spectrum_peaks(
-    resid: AnyArray, px: tuple[float, float], p: ImageParameters, notes: list[str]
+    resid: AnyArray,
+    px: tuple[float, float],
+    p: ImageParameters,
+    notes: list[str],
+    support: BoolArray | None = None,
 ) -> tuple[FloatArray, FloatArray] | None:
     """Significant Fourier peaks of a levelled image: positions g (m, 2), 1/Å, and their sigmas, strongest first.
+
+    ``support`` marks the pixels that carry data (default: all). A peak
+    counts only when its wave repeats ``min_periods`` times across them along
+    its own direction (:func:`_fringes`).
 
     Returns (g, sig) or None, with the reason appended to ``notes``.
     """
@@ -277,8 +307,10 @@ def _spectrum_peaks(
     half = np.zeros(power.shape, dtype=bool)
     half[:, cx + 1 :] = True
     half[cy + 1 :, cx] = True
-    k_min = p.min_periods / min(nx * px[0], ny * px[1])
-    usable = half & (kr >= k_min)
+    # periods across the whole box along each wave's direction (|i| + |j| bins); the support is tested below
+    across = np.abs(np.arange(power.shape[1]) - cx)[None, :] + np.abs(np.arange(ny) - cy)[:, None]
+    usable = half & (across >= p.min_periods)
+    del across
     usable[[0, -1], :] = False
     usable[:, -1] = False
     if not usable.any():
@@ -298,6 +330,13 @@ def _spectrum_peaks(
     if rows.size == 0:
         notes.append(f"no lattice: no Fourier peak above the noise (false-alarm probability {p.lattice_false_alarm:g})")
         return None
+    if support is not None:
+        k_cand = np.stack([(cols - cx) * dkx, (rows - cy) * dky], axis=1)
+        wide = _fringes(support, (ny, nx), px, k_cand) >= p.min_periods
+        rows, cols = rows[wide], cols[wide]
+        if rows.size == 0:
+            notes.append(f"no lattice: no Fourier peak above the noise repeats {p.min_periods} times across the data")
+            return None
     power64 = power  # peaks are read from the single-precision spectrum
     order = np.argsort(power64[rows, cols])[::-1]
     rows, cols = rows[order], cols[order]
@@ -305,10 +344,14 @@ def _spectrum_peaks(
     if streak.any():
         k = int(streak.sum())
         notes.append(f"{k} Fourier {'maximum' if k == 1 else 'maxima'} on radial streaks (step edges) ignored")
-    rows, cols = rows[~streak][: p.max_peaks], cols[~streak][: p.max_peaks]
+    rows, cols = rows[~streak], cols[~streak]
     if rows.size == 0:
         notes.append("no lattice: only streaks from step edges in the Fourier transform")
         return None
+    # side lobes of the strong spots through the (pixel-jagged) terrace mask stand far below them; on a
+    # clean map they also stand far above the numerical noise floor
+    strong = power64[rows, cols] >= p.min_peak_fraction * power64[rows[0], cols[0]]
+    rows, cols = rows[strong][: p.max_peaks], cols[strong][: p.max_peaks]
     noise_amp = np.sqrt(bg_img[rows, cols].astype(np.float64) / 2.0)
 
     def amp(r: IntArray, c: IntArray) -> Any:
@@ -497,6 +540,99 @@ def _align(gmat: FloatArray, cov: FloatArray, ref: FloatArray) -> tuple[FloatArr
     return new, big @ cov @ big.T
 
 
+@dataclass(frozen=True)
+class _TerraceLattice:
+    """The reciprocal basis fitted on one terrace, with the terrace's area (pixels) and the sharpness of its spots."""
+
+    gmat: FloatArray
+    cov: FloatArray
+    count: int
+    area: int
+    quality: float
+
+
+def _sharpness(gmat: FloatArray, cov: FloatArray) -> float:
+    """Inverse relative uncertainty of a reciprocal basis: large for strong, sharp spots.
+
+    The position sigmas of the spots grow with the noise under them and with
+    their broadening (:func:`_spectrum_peaks`), so this ranks terraces by the
+    strength and sharpness of the spots that carry their lattice.
+    """
+    scale = float(np.sum(gmat**2))
+    return math.sqrt(scale / max(float(np.trace(cov)), 1e-300))
+
+
+def _below_floor(gmat: FloatArray, px: tuple[float, float], metric: FloatArray, p: ImageParameters) -> str | None:
+    """Why the lattice of a reciprocal basis is too short to be real, or None.
+
+    A lattice vector shorter than ``min_lattice_angstrom`` exists on no
+    crystal surface, and one shorter than 2.5 pixels cannot be told from
+    aliasing of finer structure (the sampling limit is 2 pixels).
+    """
+    real = _reduce(np.asarray(np.linalg.inv(gmat).T, dtype=np.float64), metric)
+    lengths = np.sqrt(np.einsum("ij,jk,ik->i", real, metric, real))
+    in_px = np.hypot(real[:, 0] / px[0], real[:, 1] / px[1])
+    if lengths.min() < p.min_lattice_angstrom:
+        return f"lattice vector of {lengths.min():.2f} Å, below the floor of {p.min_lattice_angstrom:g} Å"
+    if in_px.min() < _MIN_PERIOD_PX:
+        return f"lattice vector of {in_px.min():.1f} pixels, below the sampling floor of {_MIN_PERIOD_PX:g} pixels"
+    return None
+
+
+_MIN_PERIOD_PX = 2.5  # shortest lattice vector that the pixel grid resolves (2 pixels is the sampling limit)
+
+
+_CLEAR_MAJORITY = 0.6  # of the area that shows a lattice: two of three equal terraces, not a near tie
+
+
+def _vote(results: list[_TerraceLattice], examined: int, n_regions: int, notes: list[str]) -> list[_TerraceLattice]:
+    """The terrace lattices that agree with the one most of the terrace area supports, in one frame; [] for none.
+
+    Terraces whose lattices are the same (one integer basis change apart,
+    :func:`_align`) form a group. The group holding a clear majority
+    (:data:`_CLEAR_MAJORITY`) of the area of the terraces that show a
+    lattice is taken when it also holds more than half of the ``examined``
+    area (terraces that show no lattice support none); a lattice that a
+    minority of the terrace area shows is not reported. Without a clear
+    majority the terraces disagree: the group whose best terrace has the
+    strongest, sharpest spots (:func:`_sharpness`) is reported, and the
+    notes say so.
+    """
+    groups: list[list[_TerraceLattice]] = []
+    for t in sorted(results, key=lambda r: (-r.area, -r.quality)):
+        for group in groups:
+            al = _align(t.gmat, t.cov, group[0].gmat)
+            if al is not None:
+                group.append(_TerraceLattice(al[0], al[1], t.count, t.area, t.quality))
+                break
+        else:
+            groups.append([t])
+    shown = sum(t.area for t in results)
+    by_area = max(groups, key=lambda g: sum(t.area for t in g))
+    support = sum(t.area for t in by_area)
+    if support >= _CLEAR_MAJORITY * shown:
+        if 2 * support <= examined:
+            notes.append(
+                f"no lattice: the one found shows on {len(by_area)} of the {n_regions} largest terraces, "
+                f"{support / examined:.0%} of their area, not most of it"
+            )
+            return []
+        chosen = by_area
+    else:
+        chosen = max(groups, key=lambda g: max(t.quality for t in g))
+        notes.append(
+            f"terraces disagree on the lattice: none of the {len(groups)} lattices found is supported by most of "
+            "the terrace area; the one with the strongest, sharpest Fourier spots is reported"
+        )
+    skipped = len(results) - len(chosen)
+    if skipped:
+        notes.append(
+            f"{skipped} terrace lattice{'s' if skipped > 1 else ''} not commensurate with the "
+            f"{'majority' if chosen is by_area else 'one reported'} ignored"
+        )
+    return chosen
+
+
 def measure_lattice(
     flat: AnyArray,
     keep: BoolArray,
@@ -553,59 +689,71 @@ def measure_lattice(
     uncertainties are propagated through the solution.
     """
     regions = _terrace_regions(fit, flat.shape, p, min_side=32)
-    results = []
+    metric = _metric(slope)
+    results: list[_TerraceLattice] = []
+    short: list[str] = []
+    examined = 0
     for k, (rows, cols) in regions:
         on = keep[rows, cols] & (fit.near(flat.shape, rows)[:, cols] == k)
+        area = int(on.sum())
+        examined += area
         sub = np.where(on, flat[rows, cols], 0.0).astype(np.float32)
-        if on.any():
+        if area:
             sub[on] -= float(np.mean(sub[on], dtype=np.float64))
         sub *= _taper(on)
         trial: list[str] = []
-        peaks = _spectrum_peaks(sub, px, p, trial)
+        peaks = _spectrum_peaks(sub, px, p, trial, support=on)
         del sub, on
         fitted = _fit_basis(*peaks, p, trial) if peaks is not None else None
-        if fitted is not None:
-            results.append(fitted)
+        if fitted is None:
+            continue
+        reason = _below_floor(fitted[0], px, metric, p)
+        if reason is not None:
+            short.append(reason)
+            continue
+        results.append(_TerraceLattice(*fitted, area=area, quality=_sharpness(*fitted[:2])))
+    if short:
+        notes.append(f"{len(short)} terrace lattice{'s' if len(short) > 1 else ''} rejected: {short[0]}")
     if results and len(results) < len(regions):
         missed = len(regions) - len(results)
         notes.append(f"no lattice found on {missed} of the {len(regions)} largest terraces on their own")
-    terraces = len(results)
-    if results:
-        ref = max(results, key=lambda r: r[2])[0]
-        aligned = []
-        for gmat, cov, count in results:
-            al = _align(gmat, cov, ref)
-            if al is not None:
-                aligned.append((*al, count))
-        skipped = len(results) - len(aligned)
-        if skipped:
-            notes.append(
-                f"{skipped} terrace lattice{'s' if skipped > 1 else ''} not commensurate with the others ignored"
-            )
-        weights = [np.linalg.pinv(c) for _, c, _ in aligned]
+    aligned = _vote(results, examined, len(regions), notes) if results else []
+    if aligned:
+        weights = [np.linalg.pinv(t.cov) for t in aligned]
         total = np.linalg.pinv(sum(weights))
-        mean = total @ sum(w @ _params(g) for w, (g, _, _) in zip(weights, aligned))
+        mean = total @ sum(w @ _params(t.gmat) for w, t in zip(weights, aligned))
         if len(aligned) > 1:
-            chi2 = sum(float((_params(g) - mean) @ w @ (_params(g) - mean)) for w, (g, _, _) in zip(weights, aligned))
+            chi2 = sum(float((_params(t.gmat) - mean) @ w @ (_params(t.gmat) - mean)) for w, t in zip(weights, aligned))
             total = total * max(1.0, chi2 / (4 * (len(aligned) - 1)))
-        params, cov, count, terraces = mean, total, sum(c for _, _, c in aligned), len(aligned)
+        params, cov, count, terraces = mean, total, sum(t.count for t in aligned), len(aligned)
         notes.append(
             f"lattice measured on {terraces} terrace{'s' if terraces > 1 else ''} separately and combined"
             + ("; sigma covers the spread between them" if terraces > 1 else "")
         )
+    elif results:
+        return None, None
+    elif len(set(np.asarray(fit.level_of).tolist())) > 1:
+        # the atomic lattice of one terrace is shifted laterally against the next: a transform across the
+        # steps adds spots of different phase, which shifts and distorts them (by 5 % and 2° in the tests)
+        notes.append(
+            "no lattice: no single terrace shows one, and a transform across terraces would be biased by the "
+            "lateral shifts of the lattice between them"
+        )
+        return None, None
     else:
-        # no terrace large enough, or none shows a lattice on its own: the whole image
-        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes)
+        # one level, but no terrace large enough on its own: the whole image
+        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes, support=keep)
         fitted = _fit_basis(*peaks, p, notes) if peaks is not None else None
         if fitted is None:
             return None, None
-        if regions:
-            notes.append(
-                "lattice from the whole image: no single terrace shows it; lateral shifts between terraces may bias it"
-            )
         gmat, cov, count = fitted
+        reason = _below_floor(gmat, px, metric, p)
+        if reason is not None:
+            notes.append(f"no lattice: {reason}")
+            return None, None
+        if regions:
+            notes.append("lattice from the whole image: no single terrace shows it on its own")
         params, terraces = _params(gmat), 0
-    metric = _metric(slope)
     drift = None
     if p.drift_lattice is not None:
         solved = _solve_drift(params, metric, p.drift_lattice)
@@ -621,9 +769,17 @@ def measure_lattice(
                 f"slow-scan stretch {drift.y_scale:+.4f} ± {drift.sigma_y_scale:.4f}; gamma is then fixed by "
                 "the stated lattice type, not measured"
             )
+    lattice = _lattice_values(params, cov, metric, count, terraces, None if drift is None else drift)
+    rel = max(lattice.sigma_a / lattice.a, lattice.sigma_b / lattice.b)
+    if not rel <= p.max_lattice_sigma_fraction:
+        notes.append(
+            f"no lattice: the one found ({lattice.a:.2f} × {lattice.b:.2f} Å, {lattice.gamma:.1f}°) is uncertain "
+            f"by {rel:.1%}, more than {p.max_lattice_sigma_fraction:.1%} (max_lattice_sigma_fraction): its spots "
+            "are too broad or too few"
+        )
+        return None, None
     if drift is None:
         notes.append(DRIFT_NOTE)
-    lattice = _lattice_values(params, cov, metric, count, terraces, None if drift is None else drift)
     return lattice, drift
 
 

@@ -59,6 +59,22 @@ class ImageParameters:
         A periodicity must repeat at least this many times across the image.
     max_peaks : int, default 12
         Strongest Fourier peaks (one half plane) used for the lattice.
+    min_peak_fraction : float, default 1e-3
+        A Fourier peak counts only when its power is at least this fraction
+        of the strongest one's: weaker maxima are side lobes of the strong
+        spots through the terrace mask (on clean maps they stand far above
+        the noise).
+    min_lattice_angstrom : float, default 2.0
+        Shortest lattice vector that can be reported, Å; no crystal surface
+        has a shorter one (the shortest metal-metal distances are about
+        2.2 Å), so a shorter lattice is an artifact and is not returned.
+        Lattices shorter than 2.5 pixels are not returned either.
+    max_lattice_sigma_fraction : float, default 0.015
+        A lattice whose a or b has a larger relative standard uncertainty
+        is not reported: its spots are too broad or too few (terraces only
+        a few periods wide, strong artifacts) for a lattice measured to a
+        few percent, and such lattices came out wrong by 2-4 % in the test
+        grid (``tests/benchmarks/sweep_image_lattice.py``).
     index_tol : float, default 0.05
         A peak is indexed when its fractional indices lie within this of integers.
     lattice_clip_sigmas : float, default 4
@@ -130,6 +146,9 @@ class ImageParameters:
     lattice_false_alarm: float = 1e-3
     min_periods: int = 6
     max_peaks: int = 12
+    min_peak_fraction: float = 1e-3
+    min_lattice_angstrom: float = 2.0
+    max_lattice_sigma_fraction: float = 0.015
     index_tol: float = 0.05
     lattice_clip_sigmas: float = 4.0
     streak_ratio: float = 0.05
@@ -162,12 +181,20 @@ class ImageParameters:
             "background_spacing_px",
             "background_stiffness",
             "background_min_relief_angstrom",
+            "min_lattice_angstrom",
         )
         for name in positive:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
                 raise ImageError(f"{name} must be a positive number, got {v!r}")
-        for name in ("min_level_contrast", "lattice_false_alarm", "streak_ratio", "max_nan_fraction"):
+        for name in (
+            "min_level_contrast",
+            "lattice_false_alarm",
+            "streak_ratio",
+            "max_nan_fraction",
+            "min_peak_fraction",
+            "max_lattice_sigma_fraction",
+        ):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 < v < 1:
                 raise ImageError(f"{name} must lie in (0, 1), got {v!r}")

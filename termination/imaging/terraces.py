@@ -1299,8 +1299,12 @@ def levelled_image(
 ) -> tuple[AnyArray, BoolArray]:
     """Terrace-levelled image for the Fourier analysis (step edges, outliers and NaN set to zero).
 
-    Every pixel is levelled with the plane, the scan-line offset, the
-    background and the offset of its nearest terrace. Where the result
+    Every pixel is levelled with the plane, the scan-line offset and the
+    offset of its nearest terrace. The smooth background is not removed: a
+    background with nodes a few pixels apart can follow part of the atomic
+    corrugation, and removing it would put side bands beside the lattice
+    spots at the node spacing; a smooth relief transforms to low
+    frequencies only. Where the result
     stands far out of the terrace corrugation and noise (step edges,
     adsorbates), pixels are set to zero with a margin of ``edge_guard_px``,
     and so are NaN pixels. Keeping the corrugation up to the step edges
@@ -1312,9 +1316,9 @@ def levelled_image(
     out = np.empty(shape, dtype=dtype)
     for rows in _row_blocks(shape):
         near = fit.near(shape, rows)
-        out[rows] = _residual(
-            z, None, coords, fit.slope, fit.offsets, fit.lines, fit.background, rows, block_labels=near
-        )
+        # the fitted background is left in: with nodes a few pixels apart it can follow part of the atomic
+        # corrugation, and what it takes leaves side bands of the lattice spots at the node spacing
+        out[rows] = _residual(z, None, coords, fit.slope, fit.offsets, fit.lines, None, rows, block_labels=near)
     out[~valid] = 0.0
     step = max(1, int(math.sqrt(out.size / 250_000)))
     on = fit.labels[::step, ::step] > 0

@@ -20,7 +20,7 @@ import re
 from collections.abc import Collection, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from fractions import Fraction
-from typing import cast
+from typing import Any, cast
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -52,9 +52,11 @@ from termination.units import ANGSTROM, DEG, PER_ANGSTROM
 __all__ = [
     "ApparentLattice",
     "CorrugationPattern",
+    "ImagingSites",
     "Spot",
     "Visibility",
     "cell_corrugation",
+    "imaging_sites",
     "lattice_type",
     "parse_site",
     "parse_site_weights",
@@ -849,6 +851,73 @@ def _bulk_species(
     return out
 
 
+def _supercell_sites(
+    face_terminations: FaceTerminations,
+    key: str,
+    M: IntArray,
+    changed_inplane: ArrayLike,
+    changed_depth: ArrayLike,
+    mode: str,
+    changed_species: str | Iterable[str] | None,
+    v: Visibility,
+    crystal: Crystal | None,
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """Imaging sites (N, 2), amplitudes (N,), cell (2, 2) and mesh (2, 2) of a supercell with changed sites.
+
+    The 1x1 sites repeated over the cosets of ``M``, the changed sites
+    removed or added (see :func:`supercell_corrugation`, which checks them).
+    """
+    C, Z, sp = _check_changes(changed_inplane, changed_depth, mode, changed_species)
+    extra_species: list[str] = [] if sp is None else sp
+    v.check(tuple(face_terminations.atoms.species) + tuple(extra_species))
+    species, inplane, depth, mesh, amplitudes = _surface_sites(face_terminations, key, v, crystal)
+    tol = v.site_tol_angstrom
+    super_cell = M.astype(float) @ mesh
+    T = coset_representatives(row_basis(M)).astype(float) @ mesh
+    pos = (inplane[None, :, :] + T[:, None, :]).reshape(-1, 2)
+    dep = np.tile(depth, len(T))
+    amp = np.tile(amplitudes, len(T))
+    spc = tuple(species) * len(T)
+    deepest = float(depth.max()) + tol
+    if mode == "remove":
+        hit = _matches(pos, dep, C, Z, super_cell, tol)
+        for k in range(len(Z)):
+            if Z[k] <= deepest and not hit[k].any():
+                raise StructureError(
+                    f"removed site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is not an atom "
+                    f"of termination {key!r}"
+                )
+        keep = cast(BoolArray, ~hit.any(axis=0))
+        pos, dep, amp = pos[keep], dep[keep], amp[keep]
+        spc = tuple(s for s, k in zip(spc, keep) if k)
+    else:
+        hit = _matches(pos, dep, C, Z, super_cell, tol)
+        for k in range(len(Z)):
+            if hit[k].any():
+                raise StructureError(
+                    f"added site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is already occupied"
+                )
+        bulk = _bulk_species(face_terminations, key, C, Z, tol)
+        add_species: list[str] = []
+        for k in range(len(Z)):
+            s = sp[k] if sp is not None else bulk[k]
+            if s is None:
+                raise StructureError(
+                    f"added site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is no bulk site; "
+                    "give its species"
+                )
+            add_species.append(s)
+        inside = Z <= deepest
+        pos = np.vstack([pos, C[inside]])
+        added = tuple(s for s, k in zip(add_species, inside) if k)
+        amp = np.concatenate([amp, v.amplitudes(added, Z[inside])])
+        dep = np.concatenate([dep, Z[inside]])
+        spc = spc + added
+    if len(dep) == 0:
+        raise StructureError(f"the supercell {M.tolist()} of termination {key!r} has no atoms left")
+    return pos, amp, super_cell, mesh
+
+
 def supercell_corrugation(
     face_terminations: FaceTerminations,
     key: str,
@@ -913,57 +982,88 @@ def supercell_corrugation(
     J. Tersoff and D. R. Hamann, Phys. Rev. B 31, 805 (1985).
     """
     M = _check_matrix(matrix)
-    C, Z, sp = _check_changes(changed_inplane, changed_depth, mode, changed_species)
-    extra_species: list[str] = [] if sp is None else sp
     v = Visibility() if visibility is None else visibility
-    v.check(tuple(face_terminations.atoms.species) + tuple(extra_species))
-    species, inplane, depth, mesh, amplitudes = _surface_sites(face_terminations, key, v, crystal)
-    tol = v.site_tol_angstrom
-    super_cell = M.astype(float) @ mesh
-    T = coset_representatives(row_basis(M)).astype(float) @ mesh
-    pos = (inplane[None, :, :] + T[:, None, :]).reshape(-1, 2)
-    dep = np.tile(depth, len(T))
-    amp = np.tile(amplitudes, len(T))
-    spc = tuple(species) * len(T)
-    deepest = float(depth.max()) + tol
-    if mode == "remove":
-        hit = _matches(pos, dep, C, Z, super_cell, tol)
-        for k in range(len(Z)):
-            if Z[k] <= deepest and not hit[k].any():
-                raise StructureError(
-                    f"removed site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is not an atom "
-                    f"of termination {key!r}"
-                )
-        keep = cast(BoolArray, ~hit.any(axis=0))
-        pos, dep, amp = pos[keep], dep[keep], amp[keep]
-        spc = tuple(s for s, k in zip(spc, keep) if k)
-    else:
-        hit = _matches(pos, dep, C, Z, super_cell, tol)
-        for k in range(len(Z)):
-            if hit[k].any():
-                raise StructureError(
-                    f"added site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is already occupied"
-                )
-        bulk = _bulk_species(face_terminations, key, C, Z, tol)
-        add_species: list[str] = []
-        for k in range(len(Z)):
-            s = sp[k] if sp is not None else bulk[k]
-            if s is None:
-                raise StructureError(
-                    f"added site ({C[k, 0]:.3f}, {C[k, 1]:.3f}) Å at depth {Z[k]:.3f} Å is no bulk site; "
-                    "give its species"
-                )
-            add_species.append(s)
-        inside = Z <= deepest
-        pos = np.vstack([pos, C[inside]])
-        added = tuple(s for s, k in zip(add_species, inside) if k)
-        amp = np.concatenate([amp, v.amplitudes(added, Z[inside])])
-        dep = np.concatenate([dep, Z[inside]])
-        spc = spc + added
-    if len(dep) == 0:
-        raise StructureError(f"the supercell {M.tolist()} of termination {key!r} has no atoms left")
+    pos, amp, super_cell, mesh = _supercell_sites(
+        face_terminations, key, M, changed_inplane, changed_depth, mode, changed_species, v, crystal
+    )
     t = face_terminations.termination(key)
     return _pattern(pos, amp, super_cell, mesh, v, t.label, cell_notation(M, mesh) if cell is None else str(cell))
+
+
+def _reconstruction_changes(r: Reconstruction) -> tuple[Any, Any, Any]:
+    """Changed sites, depths and species of a reconstruction record: every changed atom where it lists them."""
+    inplane = getattr(r, "changed_atoms_inplane", None)
+    if inplane is None:
+        inplane, depth, species = r.changed_inplane, r.changed_depth, getattr(r, "changed_species", None)
+    else:
+        depth, species = r.changed_atoms_depth, r.changed_atoms_species
+    if r.mode == "remove":
+        species = None  # vacancies are matched to the atoms themselves
+    return inplane, depth, species
+
+
+@dataclass(frozen=True, eq=False)
+class ImagingSites:
+    """The weighted sites of the corrugation model of one termination (or reconstruction cell).
+
+    Parameters
+    ----------
+    inplane : (N, 2) ndarray
+        Sites, Cartesian in the face frame (e1, e2), Å.
+    amplitudes : (N,) ndarray
+        Their weights A_j = w(s_j) exp(-z_j / lambda).
+    cell : (2, 2) ndarray
+        Rows: the cell the sites repeat with, Å (the mesh without a reconstruction).
+    mesh : (2, 2) ndarray
+        Rows: the 1x1 surface mesh, Å.
+    """
+
+    inplane: FloatArray = field(metadata=ANGSTROM)
+    amplitudes: FloatArray
+    cell: FloatArray = field(metadata=ANGSTROM)
+    mesh: FloatArray = field(metadata=ANGSTROM)
+
+
+def imaging_sites(
+    face_terminations: FaceTerminations,
+    key: str,
+    visibility: Visibility | None = None,
+    reconstruction: Reconstruction | None = None,
+    *,
+    crystal: Crystal | None = None,
+) -> ImagingSites:
+    """The sites and amplitudes the corrugation model images for termination ``key``.
+
+    Exactly the sites whose structure factor :func:`termination_corrugation`
+    (without ``reconstruction``) or :func:`reconstruction_corrugation` (with
+    it) evaluates: the top unit, or down to ``visibility.max_depth_angstrom``,
+    weighted by species, depth and (with site weights, which need
+    ``crystal``) coordination; with a reconstruction, repeated over its cell
+    with the changed atoms removed or added.
+
+    Returns
+    -------
+    ImagingSites
+
+    Examples
+    --------
+    >>> from termination.structures import build_prototype
+    >>> from termination.surface.terminations import face_terminations
+    >>> ft = face_terminations(build_prototype("rocksalt:Na,Cl", a=5.64), (0, 0, 1))
+    >>> imaging_sites(ft, "NaCl").inplane.shape
+    (2, 2)
+    """
+    v = Visibility() if visibility is None else visibility
+    if reconstruction is None:
+        v.check(face_terminations.atoms.species)
+        _, inplane, _, mesh, amplitudes = _surface_sites(face_terminations, key, v, crystal)
+        return ImagingSites(inplane, amplitudes, mesh, mesh)
+    changed, depth, species = _reconstruction_changes(reconstruction)
+    M = _check_matrix(reconstruction.matrix)
+    pos, amp, cell, mesh = _supercell_sites(
+        face_terminations, key, M, changed, depth, reconstruction.mode, species, v, crystal
+    )
+    return ImagingSites(pos, amp, cell, mesh)
 
 
 def reconstruction_corrugation(
@@ -998,13 +1098,7 @@ def reconstruction_corrugation(
         '+Cl' when the layer below gives sites too).
     """
     r = reconstruction
-    inplane = getattr(r, "changed_atoms_inplane", None)
-    if inplane is None:
-        inplane, depth, species = r.changed_inplane, r.changed_depth, getattr(r, "changed_species", None)
-    else:
-        depth, species = r.changed_atoms_depth, r.changed_atoms_species
-    if r.mode == "remove":
-        species = None  # vacancies are matched to the atoms themselves
+    inplane, depth, species = _reconstruction_changes(r)
     return supercell_corrugation(
         face_terminations,
         key,

@@ -5,11 +5,12 @@ import pytest
 from figure_data import one
 
 from termination.bulk.charges import with_formal_charges
-from termination.figures.topograph import MeasuredMap, corrugation_heights, imaging_sites, simulated_topograph
+from termination.figures.topograph import MeasuredMap, corrugation_heights, simulated_topograph
 from termination.figures.topview import apparent_vectors
 from termination.structures import PROTOTYPES
 from termination.surface.corrugation import (
     Visibility,
+    imaging_sites,
     pattern_from_sites,
     reconstruction_corrugation,
     termination_corrugation,
