@@ -245,6 +245,9 @@ def ewald_bulk_potential(
         alpha = float(np.sqrt(np.pi) / volume ** (1.0 / 3.0))
     rc = cutoff_erfc / alpha
     gc = 2.0 * alpha * cutoff_erfc
+    # A short basis of the same lattice keeps the wrapped separations and so the image sphere small
+    # (a face's primitive cell is often long and thin).
+    cell = _short_basis(cell)
     recip = np.linalg.inv(cell).T
     diff = tgt[:, None, :] - src[None, :, :]  # (t, n, 3)
     diff -= np.floor(diff @ np.linalg.inv(cell) + 0.5) @ cell  # every image is summed: nearest one suffices
@@ -255,19 +258,55 @@ def ewald_bulk_potential(
     lat = lat[np.linalg.norm(lat, axis=1) <= rc + span]
     v = np.zeros(len(tgt))
     for i in range(len(tgt)):  # one target at a time bounds the (charges, images) temporaries
-        dist = np.linalg.norm(diff[i][:, None, :] - lat[None, :, :], axis=-1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            term = np.where(dist > _SAME_SITE_ANGSTROM, erfc(alpha * dist) / dist, 0.0)
+        dx = diff[i][:, 0, None] - lat[None, :, 0]
+        dy = diff[i][:, 1, None] - lat[None, :, 1]
+        dz = diff[i][:, 2, None] - lat[None, :, 2]
+        dist = np.sqrt(dx * dx + dy * dy + dz * dz)
+        # Images beyond rc add less than erfc(cutoff_erfc) / rc each: left out.
+        inside = (dist < rc) & (dist > _SAME_SITE_ANGSTROM)
+        term = np.zeros(dist.shape)
+        d_in = dist[inside]
+        term[inside] = erfc(alpha * d_in) / d_in
         v[i] = float(term.sum(axis=1) @ q)
         own = np.any(dist < _SAME_SITE_ANGSTROM, axis=1)  # the target sits on this charge or an image of it
         v[i] -= 2 * alpha / np.sqrt(np.pi) * float(q[own].sum())
+    # The terms are even in G: one of each pair +-G, counted twice.
     ng = np.ceil(gc / (2 * np.pi) * np.linalg.norm(cell, axis=1)).astype(int) + 1
-    grid = np.meshgrid(*[np.arange(-k, k + 1) for k in ng], indexing="ij")
-    g = 2 * np.pi * (np.stack([x.ravel() for x in grid], axis=1) @ recip)
+    grid = np.meshgrid(np.arange(0, ng[0] + 1), *[np.arange(-k, k + 1) for k in ng[1:]], indexing="ij")
+    h, k, m = (x.ravel() for x in grid)
+    half = (h > 0) | ((h == 0) & ((k > 0) | ((k == 0) & (m > 0))))
+    g = 2 * np.pi * (np.stack([h[half], k[half], m[half]], axis=1) @ recip)
     gn2 = np.sum(g * g, axis=1)
     keep = (gn2 > ZERO_EPS) & (gn2 <= gc * gc)
     g, gn2 = g[keep], gn2[keep]
     weight = np.exp(-gn2 / (4 * alpha * alpha)) / gn2
     phase = np.cos(np.einsum("tnk,gk->tng", diff, g))  # (t, n, G)
-    v += (4 * np.pi / volume) * np.einsum("tng,g,n->t", phase, weight, q)
+    v += (8 * np.pi / volume) * np.einsum("tng,g,n->t", phase, weight, q)
     return cast(FloatArray, v)
+
+
+def _short_basis(cell: FloatArray) -> FloatArray:
+    """(3, 3) rows of a short basis of the lattice of ``cell`` (rows): pairwise reduction until nothing shortens.
+
+    Each step subtracts an integer multiple of one row from another, so the
+    lattice stays the same; every step shortens a row, so it ends.
+    """
+    b = np.array(cell, dtype=np.float64)
+    for _ in range(100):
+        changed = False
+        b = b[np.argsort(np.einsum("ij,ij->i", b, b), kind="stable")]
+        for i in range(3):
+            for j in range(3):
+                if i == j:
+                    continue
+                k = np.round(b[i] @ b[j] / (b[j] @ b[j]))
+                if k != 0:
+                    shorter = b[i] - k * b[j]
+                    if shorter @ shorter < b[i] @ b[i] * (1 - 1e-12):
+                        b[i] = shorter
+                        changed = True
+        if not changed:
+            break
+    if np.linalg.det(b) * np.linalg.det(cell) < 0:
+        b[0] = -b[0]
+    return b
