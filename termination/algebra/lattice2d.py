@@ -627,9 +627,16 @@ def coset_representatives(hnf: ArrayLike) -> IntArray:
     [[0, 0], [1, 0]]
     """
     h = np.asarray(hnf, dtype=np.int64)
-    p, r = int(h[0, 0]), int(h[1, 1])
+    return _cosets(int(h[0, 0]), int(h[1, 1]))
+
+
+@lru_cache(maxsize=256)
+def _cosets(p: int, r: int) -> IntArray:
+    """(p r, 2) translations (i, j), 0 <= i < p, 0 <= j < r (cached, read-only)."""
     i, j = np.meshgrid(np.arange(p, dtype=np.int64), np.arange(r, dtype=np.int64), indexing="ij")
-    return np.stack([i.ravel(), j.ravel()], axis=1)
+    out = np.stack([i.ravel(), j.ravel()], axis=1)
+    out.flags.writeable = False
+    return out
 
 
 def coset_index(hnf: ArrayLike, u: ArrayLike) -> IntArray:

@@ -321,14 +321,15 @@ def build_crystal(
     dataset, std_lattice, std_positions, std_numbers, std_charges = _standardise(
         cell_lattice, cell_positions, numbers, per_atom, symprec
     )
+    # The cell whose spglib dataset is in hand (the input, or its inverse below).
+    analysed: tuple[FloatArray, FloatArray, IntArray] = (cell_lattice, cell_positions, numbers.astype(np.int64))
     note = _describe_transformation(cell_lattice, numbers, std_lattice, std_numbers, dataset)
     if _inversion_preferred(dataset, std_positions, std_numbers):
         # An achiral non-centrosymmetric crystal: its inverted description is
         # the same crystal turned by a proper rotation, and names (h k l) and
         # (-h -k -l) the other way round.  Take the one the convention picks.
-        dataset, std_lattice, std_positions, std_numbers, std_charges = _standardise(
-            std_lattice, -std_positions % 1.0, std_numbers, std_charges, symprec
-        )
+        analysed = (std_lattice, -std_positions % 1.0, std_numbers)
+        dataset, std_lattice, std_positions, std_numbers, std_charges = _standardise(*analysed, std_charges, symprec)
         flipped = (
             "described in the orientation the polarity convention picks, the inverse of spglib's standard cell of "
             "the input: (h k l) of that cell is (-h -k -l) here"
@@ -338,12 +339,22 @@ def build_crystal(
         raise StructureError(f"the conventional cell holds {len(std_numbers)} atoms; at most {MAX_ATOMS} are accepted")
     std_species = tuple(SYMBOLS[z] for z in std_numbers)
 
-    std_cell = cast("SpgCell", (std_lattice, std_positions, std_numbers.astype(np.intc)))
-    sym = spglib.get_symmetry(std_cell, symprec=symprec)
-    if sym is None:  # the standard cell of a found dataset always has a symmetry; guard spglib's optional
-        raise StructureError(f"spglib could not find the symmetry of the standard cell (symprec {symprec} Å)")
-    rotations = np.array(sym["rotations"], dtype=np.int64)
-    translations = np.array(sym["translations"], dtype=float) % 1.0
+    if (
+        np.array_equal(analysed[0], std_lattice)
+        and np.array_equal(analysed[1], std_positions)
+        and np.array_equal(analysed[2], std_numbers)
+    ):
+        # The input was spglib's standard cell already (a prototype, a standard file): its operations are
+        # those of the dataset in hand, and a second symmetry search (spglib's dearest call) would repeat it.
+        sym_rotations, sym_translations = dataset.rotations, dataset.translations
+    else:
+        std_cell = cast("SpgCell", (std_lattice, std_positions, std_numbers.astype(np.intc)))
+        sym = spglib.get_symmetry(std_cell, symprec=symprec)
+        if sym is None:  # the standard cell of a found dataset always has a symmetry; guard spglib's optional
+            raise StructureError(f"spglib could not find the symmetry of the standard cell (symprec {symprec} Å)")
+        sym_rotations, sym_translations = sym["rotations"], sym["translations"]
+    rotations = np.array(sym_rotations, dtype=np.int64)
+    translations = np.array(sym_translations, dtype=float) % 1.0
     translations[np.isclose(translations, 1.0, atol=1e-8)] = 0.0
 
     # Distinct rotations in order of first appearance, identity first.

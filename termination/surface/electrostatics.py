@@ -149,17 +149,22 @@ def ewald_slab_matrix(
     # Pairs farther apart along the normal than rc have no real-space term.
     near = np.flatnonzero(np.abs(z.reshape(-1)) < rc)
     flat_rho, flat_z = rho.reshape(-1, 2)[near], z.reshape(-1)[near]
-    chunk = max(1, 4_000_000 // max(1, len(lat)))  # bound the (pairs, images) temporaries
+    chunk = max(1, 500_000 // max(1, len(lat)))  # bound the (pairs, images) temporaries
     for s in range(0, len(flat_z), chunk):
-        d_in = flat_rho[s : s + chunk, None, :] + lat[None, :, :]
-        dist = np.sqrt(np.sum(d_in * d_in, axis=-1) + flat_z[s : s + chunk, None] ** 2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            term = np.where(dist > _SAME_SITE_ANGSTROM, erfc(alpha * dist) / dist, 0.0)
+        dx = flat_rho[s : s + chunk, 0, None] + lat[None, :, 0]
+        dy = flat_rho[s : s + chunk, 1, None] + lat[None, :, 1]
+        dist = np.sqrt(dx * dx + dy * dy + flat_z[s : s + chunk, None] ** 2)
+        # Images beyond rc add less than erfc(cutoff_erfc) / rc each: left out like those beyond rc + span.
+        inside = (dist < rc) & (dist > _SAME_SITE_ANGSTROM)
+        term = np.zeros(dist.shape)
+        d_in = dist[inside]
+        term[inside] = erfc(alpha * d_in) / d_in
         out[near[s : s + chunk]] = term.sum(axis=1)
-    # Reciprocal space.
+    # Reciprocal space.  The terms are even in G: one of each pair +-G, counted twice.
     ng = np.ceil(gc / (2 * np.pi) * np.linalg.norm(cell, axis=1)).astype(int) + 1
-    i, j = np.meshgrid(np.arange(-ng[0], ng[0] + 1), np.arange(-ng[1], ng[1] + 1), indexing="ij")
-    g = 2 * np.pi * (np.stack([i.ravel(), j.ravel()], axis=1) @ recip)
+    i, j = np.meshgrid(np.arange(0, ng[0] + 1), np.arange(-ng[1], ng[1] + 1), indexing="ij")
+    half = (i > 0) | ((i == 0) & (j > 0))
+    g = 2 * np.pi * (np.stack([i[half], j[half]], axis=1) @ recip)
     gn = np.linalg.norm(g, axis=1)
     keep = (gn > ZERO_EPS) & (gn <= gc)
     g, gn = g[keep], gn[keep]
@@ -167,13 +172,17 @@ def ewald_slab_matrix(
         # Beyond |z| = 40/|G|min every G≠0 term is below exp(-40): only the G = 0 sheet term is left.
         close = np.flatnonzero(np.abs(z.reshape(-1)) * gn.min() < 40.0)
         za = np.abs(z.reshape(-1)[close])[:, None]  # the sum is even in z
-        base = np.exp(-((gn / (2 * alpha)) ** 2) - (alpha * za) ** 2)
-        up = base * erfcx(gn / (2 * alpha) + alpha * za)
-        x_down = gn / (2 * alpha) - alpha * za
-        with np.errstate(over="ignore", invalid="ignore"):
-            down = np.where(x_down >= 0, base * erfcx(np.maximum(x_down, 0.0)), np.exp(-gn * za) * erfc(x_down))
+        x_g = gn / (2 * alpha)
+        base = np.exp(-(x_g**2))[None, :] * np.exp(-((alpha * za) ** 2))
+        terms = base * erfcx(x_g + alpha * za)  # e^{|G|z} erfc(|G|/2α + αz)
+        x_down = x_g - alpha * za
+        above = x_down >= 0
+        # e^{-|G|z} erfc(|G|/2α - αz): through erfcx where that is finite, directly where erfc is not small.
+        terms[above] += base[above] * erfcx(x_down[above])
+        below = ~above
+        terms[below] += np.exp(-(gn[None, :] * za)[below]) * erfc(x_down[below])
         phase = np.cos(rho.reshape(-1, 2)[close] @ g.T)
-        out[close] += (np.pi / area) * np.sum(phase * (up + down) / gn, axis=-1)
+        out[close] += (2 * np.pi / area) * np.sum(phase * terms / gn, axis=-1)
     sheet = np.abs(z) * erf(alpha * np.abs(z)) + np.exp(-((alpha * z) ** 2)) / (alpha * np.sqrt(np.pi))
     phi -= (2 * np.pi / area) * sheet
     phi[same] -= 2 * alpha / np.sqrt(np.pi)
@@ -236,6 +245,9 @@ def ewald_bulk_potential(
         alpha = float(np.sqrt(np.pi) / volume ** (1.0 / 3.0))
     rc = cutoff_erfc / alpha
     gc = 2.0 * alpha * cutoff_erfc
+    # A short basis of the same lattice keeps the wrapped separations and so the image sphere small
+    # (a face's primitive cell is often long and thin).
+    cell = _short_basis(cell)
     recip = np.linalg.inv(cell).T
     diff = tgt[:, None, :] - src[None, :, :]  # (t, n, 3)
     diff -= np.floor(diff @ np.linalg.inv(cell) + 0.5) @ cell  # every image is summed: nearest one suffices
@@ -246,19 +258,55 @@ def ewald_bulk_potential(
     lat = lat[np.linalg.norm(lat, axis=1) <= rc + span]
     v = np.zeros(len(tgt))
     for i in range(len(tgt)):  # one target at a time bounds the (charges, images) temporaries
-        dist = np.linalg.norm(diff[i][:, None, :] - lat[None, :, :], axis=-1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            term = np.where(dist > _SAME_SITE_ANGSTROM, erfc(alpha * dist) / dist, 0.0)
+        dx = diff[i][:, 0, None] - lat[None, :, 0]
+        dy = diff[i][:, 1, None] - lat[None, :, 1]
+        dz = diff[i][:, 2, None] - lat[None, :, 2]
+        dist = np.sqrt(dx * dx + dy * dy + dz * dz)
+        # Images beyond rc add less than erfc(cutoff_erfc) / rc each: left out.
+        inside = (dist < rc) & (dist > _SAME_SITE_ANGSTROM)
+        term = np.zeros(dist.shape)
+        d_in = dist[inside]
+        term[inside] = erfc(alpha * d_in) / d_in
         v[i] = float(term.sum(axis=1) @ q)
         own = np.any(dist < _SAME_SITE_ANGSTROM, axis=1)  # the target sits on this charge or an image of it
         v[i] -= 2 * alpha / np.sqrt(np.pi) * float(q[own].sum())
+    # The terms are even in G: one of each pair +-G, counted twice.
     ng = np.ceil(gc / (2 * np.pi) * np.linalg.norm(cell, axis=1)).astype(int) + 1
-    grid = np.meshgrid(*[np.arange(-k, k + 1) for k in ng], indexing="ij")
-    g = 2 * np.pi * (np.stack([x.ravel() for x in grid], axis=1) @ recip)
+    grid = np.meshgrid(np.arange(0, ng[0] + 1), *[np.arange(-k, k + 1) for k in ng[1:]], indexing="ij")
+    h, k, m = (x.ravel() for x in grid)
+    half = (h > 0) | ((h == 0) & ((k > 0) | ((k == 0) & (m > 0))))
+    g = 2 * np.pi * (np.stack([h[half], k[half], m[half]], axis=1) @ recip)
     gn2 = np.sum(g * g, axis=1)
     keep = (gn2 > ZERO_EPS) & (gn2 <= gc * gc)
     g, gn2 = g[keep], gn2[keep]
     weight = np.exp(-gn2 / (4 * alpha * alpha)) / gn2
     phase = np.cos(np.einsum("tnk,gk->tng", diff, g))  # (t, n, G)
-    v += (4 * np.pi / volume) * np.einsum("tng,g,n->t", phase, weight, q)
+    v += (8 * np.pi / volume) * np.einsum("tng,g,n->t", phase, weight, q)
     return cast(FloatArray, v)
+
+
+def _short_basis(cell: FloatArray) -> FloatArray:
+    """(3, 3) rows of a short basis of the lattice of ``cell`` (rows): pairwise reduction until nothing shortens.
+
+    Each step subtracts an integer multiple of one row from another, so the
+    lattice stays the same; every step shortens a row, so it ends.
+    """
+    b = np.array(cell, dtype=np.float64)
+    for _ in range(100):
+        changed = False
+        b = b[np.argsort(np.einsum("ij,ij->i", b, b), kind="stable")]
+        for i in range(3):
+            for j in range(3):
+                if i == j:
+                    continue
+                k = np.round(b[i] @ b[j] / (b[j] @ b[j]))
+                if k != 0:
+                    shorter = b[i] - k * b[j]
+                    if shorter @ shorter < b[i] @ b[i] * (1 - 1e-12):
+                        b[i] = shorter
+                        changed = True
+        if not changed:
+            break
+    if np.linalg.det(b) * np.linalg.det(cell) < 0:
+        b[0] = -b[0]
+    return b

@@ -896,8 +896,8 @@ def _reconstructions(
             z = [np.tile(bd, det) for bd in base_depths]
             xyz = np.vstack([np.column_stack([a, b]) for a, b in zip(xy, z)])
             cell = hnf @ mesh
-            phi = ewald_slab_matrix(cell, xyz, xyz)
             perms = np.hstack([translation_permutations(hnf, gi) + det * off for gi, off in zip(g, offsets)])
+            phi = _periodic_pair_matrix(cell, xyz, perms, g, offsets, det)
             cache[ci] = (hnf, xyz, cell, phi, perms)
         hnf, xyz, cell, phi, perms = cache[ci]
         sizes = tuple(det * gi for gi in g)
@@ -926,6 +926,24 @@ def _reconstructions(
     else:
         out.sort(key=lambda r: (round(abs(r.residual_charge), 9), round(r.score, 6), r.sites, r.changed, r.hnf))
     return tuple(out)
+
+
+def _periodic_pair_matrix(
+    cell: FloatArray, xyz: FloatArray, perms: IntArray, g: list[int], offsets: IntArray, det: int
+) -> FloatArray:
+    """Ewald pair matrix of the supercell's sites from the rows of its first 1×1 cell.
+
+    A mesh translation permutes the sites and leaves the pair potential
+    unchanged, Phi[P a, P b] = Phi[a, b], and the ``det`` translations carry
+    the first 1×1 cell onto every other, so the rows of its sites give the
+    whole matrix (:func:`ewald_slab_matrix` on ``det`` times fewer targets).
+    """
+    first = np.concatenate([det * off + np.arange(gi) for gi, off in zip(g, offsets)]).astype(np.int64)
+    rows = ewald_slab_matrix(cell, xyz[first], xyz)
+    phi = np.empty((len(xyz), len(xyz)))
+    for perm in perms:
+        phi[np.ix_(perm[first], perm)] = rows
+    return phi
 
 
 def _tiled(per_base: FloatArray, g: list[int], det: int) -> FloatArray:

@@ -79,3 +79,13 @@ def test_far_sheets_feel_only_the_uniform_field():
         phi = ewald_slab_matrix(mesh, [[0.4, 0.2, 0.0]], [[0.0, 0.0, h]])
         near = ewald_slab_matrix(mesh, [[0.4, 0.2, 0.0]], [[0.0, 0.0, h - 1.0]])
         assert float(phi[0, 0] - near[0, 0]) == pytest.approx(-2 * np.pi / 9.0, rel=1e-9)
+
+
+def test_bulk_sum_is_the_madelung_constant_in_a_long_thin_cell_of_the_same_lattice():
+    # Rock salt described by a primitive cell sheared far from its short basis (a unimodular change
+    # of basis, as a high-index face's cell is): the potential must not depend on the description.
+    prim = np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]) * A
+    sheared = np.array([[1, 0, 0], [3, 1, 0], [-2, 5, 1]]) @ prim
+    positions = np.array([[0.0, 0.0, 0.0], [A / 2, 0.0, 0.0]])
+    v = ewald_bulk_potential(sheared, positions, [1.0, -1.0], positions)
+    assert v * A / 2 == pytest.approx([-MADELUNG_NACL, MADELUNG_NACL], abs=2e-6)  # Kittel, as above

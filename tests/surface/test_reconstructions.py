@@ -232,3 +232,26 @@ def test_metal_terminated_hexaboride_still_lists_2x1_and_c2x2(charged):
         by = {t.label: t for t in face_polarity(c, face_terminations(c, (0, 0, 1)), max_cell=4).terminations}
         names = [r.name for r in by[metal].reconstructions if r.layer_changed == (1, 0) or len(r.layer_changed) == 1]
         assert {"(2×1)", "c(2×2)"} <= set(names), names
+
+
+def test_supercell_pair_matrix_from_one_cell_by_translations_is_the_full_ewald_matrix():
+    # The pair matrix filled from the first 1×1 cell's rows must equal the Ewald sum over all
+    # site pairs (ewald_slab_matrix, the reference), here for two groups at different depths.
+    from termination.algebra.lattice2d import translation_permutations
+    from termination.surface.electrostatics import ewald_slab_matrix
+    from termination.surface.reconstructions import _periodic_pair_matrix, supercell_sites
+
+    mesh = np.array([[3.0, 0.0], [1.5, 2.6]])
+    hnf = np.array([[2, 1], [0, 3]])
+    det = 6
+    bases = [np.array([[0.2, 0.1], [1.7, 0.9]]), np.array([[0.9, 1.4]])]
+    depths = [np.array([0.0, 0.4]), np.array([1.3])]
+    g = [2, 1]
+    offsets = np.array([0, 2])
+    xyz = np.vstack(
+        [np.column_stack([supercell_sites(hnf, mesh, b)[0], np.tile(z, det)]) for b, z in zip(bases, depths)]
+    )
+    perms = np.hstack([translation_permutations(hnf, gi) + det * off for gi, off in zip(g, offsets)])
+    cell = hnf @ mesh
+    got = _periodic_pair_matrix(cell, xyz, perms, g, offsets, det)
+    assert np.allclose(got, ewald_slab_matrix(cell, xyz, xyz), rtol=0, atol=1e-12)
