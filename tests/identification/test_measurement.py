@@ -7,6 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from termination.defaults import MAX_MEASURED_VALUES
 from termination.errors import MeasurementError
 from termination.identification.measurement import (
     Measurement,
@@ -335,8 +336,8 @@ def test_oversized_and_overlong_inputs_are_refused(tmp_path):
     with pytest.raises(MeasurementError, match="bytes"):
         read_steps(big)
     many = tmp_path / "many.txt"
-    many.write_text("2.0\n" * 10_001, encoding="utf-8")
-    with pytest.raises(MeasurementError, match="10001 step heights"):
+    many.write_text("2.0\n" * (MAX_MEASURED_VALUES + 1), encoding="utf-8")
+    with pytest.raises(MeasurementError, match=f"{MAX_MEASURED_VALUES + 1} step heights"):
         read_steps(many)
 
 
