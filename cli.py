@@ -1447,9 +1447,8 @@ def _main(
 def main(argv: list[str] | None = None) -> None:
     """Console-script entry point: one-line errors for bad options too; no arguments prints the help."""
     args = list(sys.argv[1:] if argv is None else argv)
-    if "--traceback" in args:
-        _TRACEBACK.set(True)
-        args = [v for v in args if v != "--traceback"]
+    traceback = _TRACEBACK.set("--traceback" in args)  # forgotten when the call ends, like the command line
+    args = [v for v in args if v != "--traceback"]
     typed = _ARGV.set(tuple(args))  # the command line as given, for reports; forgotten when it ends
     if not args:
         args = ["--help"]
@@ -1475,6 +1474,7 @@ def main(argv: list[str] | None = None) -> None:
         sys.exit(2)
     finally:
         _ARGV.reset(typed)
+        _TRACEBACK.reset(traceback)
     if code == 130 and not _INTERRUPTED:  # Ctrl-C while the options were parsed
         typer.echo("termination: interrupted", err=True)
     sys.exit(code if isinstance(code, int) else 0)
