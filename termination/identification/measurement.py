@@ -46,6 +46,7 @@ from typing import TYPE_CHECKING, Any
 
 from termination.defaults import (
     MAX_FACE_INDEX,
+    MAX_INDEX_LIMIT,
     MAX_LENGTH_ANGSTROM,
     MAX_MEASURED_VALUES,
     MAX_MEASUREMENT_BYTES,
@@ -232,8 +233,8 @@ def _check_measurement(m: Measurement) -> None:
     if m.mount is not None:
         set_(m, "mount", _check_mount(m.mount))
     if m.max_index is not None:
-        if isinstance(m.max_index, bool) or not isinstance(m.max_index, int) or m.max_index < 1:
-            raise MeasurementError(f"max_index must be a positive integer, got {m.max_index!r}")
+        if isinstance(m.max_index, bool) or not isinstance(m.max_index, int) or not 1 <= m.max_index <= MAX_INDEX_LIMIT:
+            raise MeasurementError(f"max_index must be an integer from 1 to {MAX_INDEX_LIMIT}, got {m.max_index!r}")
     if m.tilt is not None:
         _check_value(m.tilt, "tilt (deg)", 0.0, 90.0)
     if m.row_angle is not None:
