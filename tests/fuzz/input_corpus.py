@@ -207,7 +207,8 @@ def random_cases(rng, count):
         kind = rng.choice(["measurement", "steps", "option"])
         if kind == "measurement":
             key = rng.choice(toml_keys)
-            value = bad if (bad and bad[0].isdigit()) or bad in ("nan", "inf", "-inf") else f'"{bad}"'
+            numeric = bad and bad[0].isdigit() and bad != "0x10"  # TOML reads 0x10 as the valid 16
+            value = bad if numeric or bad in ("nan", "inf", "-inf") else f'"{bad}"'
             value = f"[{value}]" if key in ("spacings", "steps") else value
             if bad in ("0", "-0") and key in ("tilt", "depth"):
                 value = "-1"  # zero is a valid tilt and depth
