@@ -227,6 +227,22 @@ def test_polar_faces_and_depths_do_not_depend_on_the_input_setting(tmp_path, inv
         assert (layers, labels) == _stack("zincblende:Ga,As", hkl)
 
 
+def test_inequivalent_namesakes_keep_their_primes_on_every_variant_of_a_face():
+    # wurtzite ZnO (0 3 1): two inequivalent Zn terminations with equal broken bonds and equal layer gaps
+    # (found by the property tests); which one is Zn and which Zn' must not depend on the variant given
+    from termination.structures import build_prototype
+    from termination.surface.faces import face_variants
+    from termination.surface.terminations import face_terminations
+
+    crystal = build_prototype("wurtzite:Zn,O")
+    seen = set()
+    for variant in face_variants(crystal, (0, 3, 1)):
+        ft = face_terminations(crystal, variant)
+        seen.add(tuple((t.label, round(t.depth, 6)) for t in ft.terminations))
+        assert [t.label for t in ft.terminations].count("Zn'") == 1
+    assert len(seen) == 1, seen
+
+
 # --------------------------------------------------------------------------- tracebacks
 
 
