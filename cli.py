@@ -995,18 +995,21 @@ def match(
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
-    report = run_match(
-        crystal,
-        merged,
-        top=top,
-        model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
-        reconstructions=not no_reconstructions,
-        charges=_charges(charge),
-        max_cell=max_cell,
-        visibility=visibility,
-        cells=cells,
-        **rules,
-    )
+    # Minutes with --max-index 12 --max-cell 12: a progress bar on a terminal; Ctrl-C stops it.
+    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+        report = run_match(
+            crystal,
+            merged,
+            top=top,
+            model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
+            reconstructions=not no_reconstructions,
+            charges=_charges(charge),
+            max_cell=max_cell,
+            visibility=visibility,
+            cells=cells,
+            progress=progress,
+            **rules,
+        )
     if measured_lines:
         report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
     if outputs.wanted:

@@ -379,6 +379,21 @@ def test_polarity_reports_its_progress_per_face():
     assert len(seen) == 3 + 1  # (0 0 1), (0 1 1), (1 1 1) of an fcc lattice (common practice), then done
 
 
+def test_match_reports_its_progress_over_faces_and_cells():
+    from termination.identification.likelihood import match
+    from termination.identification.measurement import Measurement, Value
+    from termination.structures import build_prototype
+
+    seen = []
+    measured = Measurement(mount=(0, 0, 1), max_index=1, steps=(Value(2.82),))
+    match(build_prototype("rocksalt:Na,Cl"), measured, progress=lambda f, s: seen.append((f, s)), select_cells=None)
+    fractions = [f for f, _ in seen]
+    assert fractions == sorted(fractions) and fractions[0] == 0.0 and fractions[-1] == 1.0
+    stages = [s for _, s in seen]
+    assert stages[:3] == ["face (0 0 1)", "face (0 1 1)", "face (1 1 1)"]  # fcc faces to index 1
+    assert any(s.startswith("cells of (1 1 1)") for s in stages)  # the polar (1 1 1) (Tasker 1979)
+
+
 def test_polarity_at_the_largest_indices_can_be_interrupted():
     # --max-index 12 --max-cell 12 runs for minutes: Ctrl-C gives one line and exit code 130
     code = "import sys; from termination import cli; print('ready', flush=True); cli.main(sys.argv[1:])"
