@@ -138,3 +138,36 @@ def test_step_heights_follow_the_termination_depths_and_add_up_to_d(spec, hkl):
         if {(i, j), (j, k), (i, k)} <= single.keys():
             total = (single[(i, j)] + single[(j, k)] - single[(i, k)]) / d
             assert total == pytest.approx(round(total), abs=1e-5), (i, j, k)
+
+
+# regression tests for what the 1000-example runs found
+
+
+def test_a_layer_across_half_the_period_keeps_its_centre():
+    # heights 0.40 and 0.47 Å in a period of 0.873 Å are one layer at 0.435 Å (their mean), not torn
+    # apart by the wrap-around of z = period, which put the cut inside the layer
+    from termination.surface.layers import cluster_layers
+
+    labels, centres = cluster_layers([0.40, 0.47], 0.873, 0.1)
+    assert labels.tolist() == [0, 0] and centres.tolist() == pytest.approx([0.435])
+
+
+def test_every_variant_of_hcp_0_3_2_breaks_the_same_bonds():
+    # one of the twelve variants of hcp Mg (0 3 2) used to count 48.8 instead of 37.6 bonds per nm^2
+    crystal = crystal_of("hcp:Mg")
+    counts = {
+        round(face_terminations(crystal, v).terminations[0].broken_bonds_per_nm2, 6)
+        for v in face_variants(crystal, (0, 3, 2))
+    }
+    assert len(counts) == 1
+
+
+def test_an_origin_shift_just_below_one_moves_no_atom():
+    # an atom at fractional 0.99999 is not at 1 (np.isclose's default rtol of 1e-5 said it was), so an
+    # origin shift of 0.99999 c leaves wurtzite's layers, depths and steps as they are
+    shifted = _redescribe(crystal_of("wurtzite:Zn,O"), ((0.0, 0.0, 0.0), np.array([0, 0, 0.99999]), np.eye(3), 1, 0))
+    for hkl in ((0, 0, 1), (0, 0, -1)):
+        names, lengths = _stack(face_terminations(shifted, hkl))
+        ref_names, ref_lengths = _stack(face_terminations(crystal_of("wurtzite:Zn,O"), hkl))
+        assert names == ref_names
+        assert lengths == pytest.approx(ref_lengths, abs=1e-6)
