@@ -310,8 +310,34 @@ def _first_line(exc: BaseException) -> str:
     return text.splitlines()[0] if text else type(exc).__name__
 
 
+def _subject(kwargs: dict[str, Any]) -> str:
+    """The input a command was given (structure, image file, paths, --demo), for the one-line error."""
+    if kwargs.get("demo"):
+        return " --demo"
+    for key in ("structure", "file"):
+        if kwargs.get(key):
+            return f" {kwargs[key]}"
+    paths = list(kwargs.get("paths") or ())
+    if paths:
+        return f" {paths[0]}" + (f" (and {len(paths) - 1} more)" if len(paths) > 1 else "")
+    return ""
+
+
+#: Set when a command has reported its own interruption, so that ``main`` does not add a second line.
+_INTERRUPTED: list[bool] = []
+
+
 def one_line_errors(command: str) -> Callable[[F], F]:
-    """Turn library errors, and any unexpected exception, into one stderr line and exit code 2."""
+    """Turn library errors, and any unexpected exception, into one stderr line and exit code 2.
+
+    A library error (:class:`termination.errors.TerminationError`) or an OS
+    error is printed as it is.  Anything else (MemoryError, RecursionError,
+    OverflowError, a bug) is an input the checks missed or an internal error:
+    one line naming the command, its input and the exception, still exit
+    code 2, the trace only with ``--traceback``.  Ctrl-C is one line and exit
+    code 130.  Warnings and log records of the libraries are silenced while
+    the command runs, so that they never add lines.
+    """
 
     def decorate(fn: F) -> F:
         @functools.wraps(fn)
@@ -334,9 +360,13 @@ def one_line_errors(command: str) -> Callable[[F], F]:
                 _fail(_first_line(exc))
             except KeyboardInterrupt:
                 typer.echo(f"termination {command}: interrupted", err=True)
+                _INTERRUPTED.append(True)
                 raise typer.Exit(code=130) from None
             except Exception as exc:  # a bug or an input the checks missed: still one line
-                _fail(f"{command}: unexpected {type(exc).__name__}: {_first_line(exc)} (rerun with --traceback)")
+                what = type(exc).__name__
+                text = str(exc).strip()
+                detail = f"{what}: {text.splitlines()[0]}" if text else what
+                _fail(f"{command}{_subject(kwargs)}: unexpected {detail} (rerun with --traceback)")
             finally:
                 logging.disable(logging.NOTSET)
 
@@ -690,14 +720,17 @@ def polarity(
     outputs = _Outputs("polarity", locals(), plot, plot_format, force, inputs=_inputs(structure))
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
-    report = polarity_report(
-        crystal,
-        plane=_face(plane, crystal, "--plane"),
-        max_index=max_index,
-        charges=_charges(charge),
-        max_cell=max_cell,
-        termination_options=rules,
-    )
+    # Up to minutes with --max-index 12 --max-cell 12: a progress bar on a terminal; Ctrl-C stops it.
+    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+        report = polarity_report(
+            crystal,
+            plane=_face(plane, crystal, "--plane"),
+            max_index=max_index,
+            charges=_charges(charge),
+            max_cell=max_cell,
+            termination_options=rules,
+            progress=progress,
+        )
     if outputs.wanted:
         from termination.figures.commands import polarity_figures
 
@@ -962,18 +995,21 @@ def match(
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
-    report = run_match(
-        crystal,
-        merged,
-        top=top,
-        model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
-        reconstructions=not no_reconstructions,
-        charges=_charges(charge),
-        max_cell=max_cell,
-        visibility=visibility,
-        cells=cells,
-        **rules,
-    )
+    # Minutes with --max-index 12 --max-cell 12: a progress bar on a terminal; Ctrl-C stops it.
+    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+        report = run_match(
+            crystal,
+            merged,
+            top=top,
+            model=MatchModel(flat_prior=flat_prior, mount_sigma_deg=mount_sigma),
+            reconstructions=not no_reconstructions,
+            charges=_charges(charge),
+            max_cell=max_cell,
+            visibility=visibility,
+            cells=cells,
+            progress=progress,
+            **rules,
+        )
     if measured_lines:
         report = dataclasses.replace(report, notes=measured_lines + tuple(report.notes))
     if outputs.wanted:
@@ -993,7 +1029,7 @@ def match(
 
 
 def _progress_bar() -> Any:
-    """A rich progress bar on stderr (used for large images), as a context manager yielding an update function."""
+    """A progress bar on stderr (large images, long polarity runs): a context manager yielding an update function."""
     import contextlib
 
     from rich.console import Console
@@ -1415,27 +1451,36 @@ def _main(
 def main(argv: list[str] | None = None) -> None:
     """Console-script entry point: one-line errors for bad options too; no arguments prints the help."""
     args = list(sys.argv[1:] if argv is None else argv)
-    if "--traceback" in args:
-        _TRACEBACK.set(True)
-        args = [v for v in args if v != "--traceback"]
+    traceback = _TRACEBACK.set("--traceback" in args)  # forgotten when the call ends, like the command line
+    args = [v for v in args if v != "--traceback"]
     typed = _ARGV.set(tuple(args))  # the command line as given, for reports; forgotten when it ends
     if not args:
         args = ["--help"]
-    command = typer.main.get_command(app)
+    _INTERRUPTED.clear()
     try:
+        command = typer.main.get_command(app)
         code = command.main(args=args, prog_name="termination", standalone_mode=False)
     except typer.Exit as exc:  # older releases re-raise instead of returning the code
-        sys.exit(getattr(exc, "exit_code", exc.args[0] if exc.args else 0))
-    except typer.Abort:
-        typer.echo("termination: aborted", err=True)
-        sys.exit(130)
-    except Exception as exc:  # usage errors of the option parser
-        if _TRACEBACK.get() or not hasattr(exc, "format_message"):
+        code = getattr(exc, "exit_code", exc.args[0] if exc.args else 0)
+    except (typer.Abort, KeyboardInterrupt):
+        code = 130
+    except Exception as exc:  # usage errors of the option parser, or a failure while parsing
+        if _TRACEBACK.get():
             raise
-        typer.echo(f"termination: error: {exc.format_message()}", err=True)
+        if hasattr(exc, "format_message"):
+            typer.echo(f"termination: error: {exc.format_message()}", err=True)
+        else:
+            typer.echo(
+                f"termination: error: {args[0]}: unexpected {type(exc).__name__}: {_first_line(exc)} "
+                "(rerun with --traceback)",
+                err=True,
+            )
         sys.exit(2)
     finally:
         _ARGV.reset(typed)
+        _TRACEBACK.reset(traceback)
+    if code == 130 and not _INTERRUPTED:  # Ctrl-C while the options were parsed
+        typer.echo("termination: interrupted", err=True)
     sys.exit(code if isinstance(code, int) else 0)
 
 

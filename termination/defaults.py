@@ -28,6 +28,8 @@ MAX_NEIGHBOUR_PAIRS = 5_000_000
 MAX_INDEX = 3
 #: Largest accepted ``max_index``.
 MAX_INDEX_LIMIT = 12
+#: Largest |h|, |k|, |i|, |l| of a face given by the user (``--plane``, ``--mount``, a measured mount).
+MAX_FACE_INDEX = 100
 
 # --------------------------------------------------------------------------- bonds, layers, terminations
 
@@ -49,6 +51,8 @@ MAX_MULTIPLE_LIMIT = 50
 
 #: Largest accepted net charge of given or guessed formal charges, e per formula unit.
 NEUTRALITY_TOL_E = 1e-3
+#: Largest |q| of a formal charge (given, read from a file or solved for neutrality), e.
+MAX_CHARGE_E = 10.0
 #: Layer charges below this count as neutral, e per surface cell.
 CHARGE_TOL_E = 1e-6
 #: |dipole| / area below this counts as no dipole, e/Å.
@@ -111,6 +115,17 @@ MAX_USER_CELL = 100
 MIN_STEP_ANGSTROM = 0.5
 #: Largest fraction of missing (NaN) pixels a height map may have.
 MAX_NAN_FRACTION = 0.5
+
+# --------------------------------------------------------------------------- measurements and input files
+
+#: Largest number of spacings, and of step heights, in one measurement.
+MAX_MEASURED_VALUES = 1000
+#: Largest accepted uncertainty of a measured value, Å or degrees.
+MAX_SIGMA = 1000.0
+#: Largest measurement file or step list read, bytes (1 MiB; regular files only).
+MAX_MEASUREMENT_BYTES = 1_048_576
+#: Largest structure file read, bytes (16 MiB; regular files only).
+MAX_STRUCTURE_BYTES = 16_777_216
 
 # --------------------------------------------------------------------------- figures
 

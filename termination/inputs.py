@@ -11,12 +11,13 @@ import os
 import stat
 from pathlib import Path
 
+from termination.defaults import MAX_STRUCTURE_BYTES
 from termination.errors import TerminationError
 
 __all__ = ["MAX_TEXT_BYTES", "read_input_bytes", "read_input_text"]
 
-#: Largest text input (measurement file, step list) read, bytes.
-MAX_TEXT_BYTES = 16 * 1024 * 1024
+#: Largest input read when the caller names no limit, bytes (structure files; see ``termination.defaults``).
+MAX_TEXT_BYTES = MAX_STRUCTURE_BYTES
 
 
 def read_input_bytes(

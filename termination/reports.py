@@ -401,6 +401,7 @@ def polarity_report(
     max_cell: int = MAX_CELL,
     use_pymatgen: bool = True,
     termination_options: Mapping[str, Any] | None = None,
+    progress: Callable[[float, str], object] | None = None,
     **tolerances: Unpack[PolarityTolerances],
 ) -> PolarityReport:
     """Polarity of one face or of all distinct faces up to ``max_index``.
@@ -421,6 +422,9 @@ def polarity_report(
         Allow pymatgen's oxidation-state guess as the last resort.
     termination_options : mapping, optional
         Passed to :func:`termination.surface.terminations.face_terminations`.
+    progress : callable, optional
+        ``progress(fraction, stage)``, called before each face and at the end:
+        with ``max_index`` 12 and ``max_cell`` 12 a run takes minutes.
     **tolerances
         See :func:`termination.surface.polarity.termination_polarity`.
 
@@ -439,9 +443,13 @@ def polarity_report(
     else:
         faces = distinct_faces(charged, max_index=MAX_INDEX if max_index is None else max_index)
     rows = []
-    for face in faces:
+    for done, face in enumerate(faces):
+        if progress is not None:
+            progress(done / len(faces), f"face {hkl_text(face.hkl)} ({done + 1} of {len(faces)})")
         ft = face_terminations(charged, face.hkl, face=face, **dict(termination_options or {}))
         rows.append(face_polarity(charged, ft, max_cell=max_cell, **tolerances))
+    if progress is not None:
+        progress(1.0, f"{len(faces)} faces")
     return PolarityReport(
         structure=summarise_structure(crystal),
         charges=assignment,

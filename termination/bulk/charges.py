@@ -41,7 +41,7 @@ from termination.bulk.elements import (
     parse_element_values,
 )
 from termination.bulk.neighbours import neighbour_pairs
-from termination.defaults import BOND_FACTOR, NEUTRALITY_TOL_E, RELATIVE_EPS
+from termination.defaults import BOND_FACTOR, MAX_CHARGE_E, NEUTRALITY_TOL_E, RELATIVE_EPS
 from termination.errors import ChargeError
 from termination.units import E
 
@@ -400,9 +400,20 @@ def pymatgen_guess(species: Iterable[str]) -> dict[str, float] | None:
 
 
 def _neutralise(per_atom: FloatArray, species: Sequence[str], tol: float, what: str) -> FloatArray:
-    """(N,) charges made exactly neutral by scaling the negative ones; ChargeError beyond ``tol`` e per formula unit."""
-    total = float(per_atom.sum())
+    """(N,) charges made exactly neutral by scaling the negative ones; ChargeError beyond ``tol`` e per formula unit.
+
+    Charges beyond ±MAX_CHARGE_E (a file's, or one solved for neutrality) are
+    refused too: no oxidation state comes near, and huge ones overflow the
+    electrostatic sums.
+    """
     comp = count_species(species)
+    if not np.all(np.isfinite(per_atom)) or np.abs(per_atom).max(initial=0.0) > MAX_CHARGE_E:
+        i = int(np.argmax(np.where(np.isfinite(per_atom), np.abs(per_atom), np.inf)))
+        raise ChargeError(
+            f"{what} charge of {species[i]} must lie within ±{MAX_CHARGE_E:g} e (MAX_CHARGE_E), "
+            f"got {_format_charge(float(per_atom[i])) if np.isfinite(per_atom[i]) else per_atom[i]}"
+        )
+    total = float(per_atom.sum())
     formula_units = math.gcd(*comp.values())
     if abs(total) / formula_units > tol:
         parts = ", ".join(f"{el}={_format_charge(float(np.mean(per_atom[[s == el for s in species]])))}" for el in comp)
@@ -509,6 +520,8 @@ def assign_charges(
                 raise ChargeError(f"charge of {el} must be a number, got {q!r}") from None
             if not math.isfinite(value):
                 raise ChargeError(f"charge of {el} must be finite, got {q!r}")
+            if abs(value) > MAX_CHARGE_E:
+                raise ChargeError(f"charge of {el} must lie within ±{MAX_CHARGE_E:g} e (MAX_CHARGE_E), got {q!r}")
             if symbol not in comp:
                 raise ChargeError(
                     f"charge given for {symbol}, which is not in {crystal.formula} ({', '.join(elements)})"

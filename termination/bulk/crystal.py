@@ -355,7 +355,7 @@ def build_crystal(
         sym_rotations, sym_translations = sym["rotations"], sym["translations"]
     rotations = np.array(sym_rotations, dtype=np.int64)
     translations = np.array(sym_translations, dtype=float) % 1.0
-    translations[np.isclose(translations, 1.0, atol=1e-8)] = 0.0
+    translations[np.isclose(translations, 1.0, rtol=0.0, atol=1e-8)] = 0.0  # rtol 0: 0.99999 is no 1
 
     # Distinct rotations in order of first appearance, identity first.
     _, first = np.unique(rotations.reshape(len(rotations), 9), axis=0, return_index=True)
@@ -408,7 +408,7 @@ def _standardise(
         raise StructureError(f"spglib could not find the symmetry of the structure (symprec {symprec} Å)")
     std_lattice = np.array(dataset.std_lattice, dtype=float)
     std_positions = np.array(dataset.std_positions, dtype=float) % 1.0
-    std_positions[np.isclose(std_positions, 1.0, atol=1e-10)] = 0.0
+    std_positions[np.isclose(std_positions, 1.0, rtol=0.0, atol=1e-10)] = 0.0  # rtol 0: an atom at 0.99999 stays
     std_numbers = np.array(dataset.std_types, dtype=np.int64)
     std_charges: FloatArray | None = None
     if charges is not None:

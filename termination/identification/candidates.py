@@ -187,6 +187,7 @@ class CandidateOptions(TerminationOptions, total=False):
     max_cell: int
     cells: Iterable[str | CellSpec]
     select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None
+    progress: Callable[[float, str], object] | None
 
 
 class _FaceFields(TypedDict):
@@ -336,6 +337,7 @@ def candidate_table(
     max_cell: int = MAX_CELL,
     cells: Iterable[str | CellSpec] = (),
     select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None = None,
+    progress: Callable[[float, str], object] | None = None,
     **termination_options: Unpack[TerminationOptions],
 ) -> CandidateTable:
     """Predictions of every face x termination (x reconstruction, x terrace mix) of ``crystal``.
@@ -369,6 +371,10 @@ def candidate_table(
         steps leave them in contention); the others keep the prior share of
         their cells unspent.  Default: build the cells of every polar
         termination.
+    progress : callable, optional
+        ``progress(fraction, stage)``: the faces take the first half, the
+        reconstruction cells the second (minutes with ``max_index`` and
+        ``max_cell`` 12).
     termination_options
         Passed to :func:`termination.surface.terminations.face_terminations`
         (``layer_tol_angstrom``, ``bond_factor``, ``bond_cutoff_angstrom``, ``unit_ratio``).
@@ -395,7 +401,9 @@ def candidate_table(
     pending = []  # polar terminations whose reconstruction cells are still to build
     fitted: dict[str, int] = {spec.label: 0 for spec in specs}
     domains_seen: dict[str, list[tuple[tuple[int, int, int], tuple[str, ...]]]] = {}
-    for (f, ft), w_face in zip(per_face, face_costs):
+    for n, ((f, ft), w_face) in enumerate(zip(per_face, face_costs)):
+        if progress is not None:
+            progress(0.5 * n / len(per_face), f"face {face_text(f.hkl, crystal.hexagonal_axes)}")
         mesh = ft.atoms.mesh_inplane
         user = [(spec, m) for spec in specs if (m := cell_matrix(spec, mesh)) is not None]
         for spec, _ in user:
@@ -489,8 +497,11 @@ def candidate_table(
     if select_cells is not None and pending:
         chosen = set(select_cells(tuple(c for group in groups for c in group)))
     spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
-    for index, ft, t, rotations, polarity, log_single, one in pending:
+    for n, (index, ft, t, rotations, polarity, log_single, one) in enumerate(pending):
         assert polar_info is not None  # only a provider fills pending
+        if progress is not None:
+            face = face_text(ft.face.hkl, crystal.hexagonal_axes)
+            progress(0.5 + 0.5 * n / len(pending), f"cells of {face} {t.label}")
         share = model.reconstructed_share
         if chosen is not None and (ft.face.hkl, t.id) not in chosen:
             spent.append(log_single + math.log(share))
@@ -510,6 +521,8 @@ def candidate_table(
             ]
         first = groups[index][0]
         groups[index][0] = replace(first, log_prior=first.log_prior + math.log1p(-share))
+    if progress is not None:
+        progress(1.0, f"{len(per_face)} faces")
     rows = [c for group in groups for c in group]
     if model.flat_prior:
         rows = [replace(r, log_prior=0.0) for r in rows]

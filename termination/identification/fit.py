@@ -13,7 +13,9 @@ and each step) would be standard normal if the candidate were right, so
 - a step with |z| > 3 is an outlier; with an outlier fraction eps per step the
   number of outliers among n steps is binomial, and the check fails when
   more occur than the binomial tail allows at ``outlier_alpha`` (default
-  0.05: one outlier among up to 7 steps, two among up to 16).
+  0.05: none for a single step, one among 2 to 7 steps, two among up to 16);
+- an outlier step higher than the range of the model's outlier density
+  (50 Å) is one the model cannot weigh at all: the check fails.
 
 When it fails, the residuals point at the likely causes (wrong mount face or
 a face beyond --max-index for the tilt; a reconstruction or imaging species
@@ -26,6 +28,8 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+
+from termination.defaults import ROUNDING_EPS
 
 __all__ = ["OUTLIER_Z", "FitCheck", "allowed_outliers", "chi_square_sf", "fit_check"]
 
@@ -104,13 +108,24 @@ def chi_square_sf(x: float, dof: int) -> float:
 def allowed_outliers(n: int, fraction: float, alpha: float) -> int:
     """Smallest k with P(Binomial(n, fraction) > k) <= alpha: how many outlier steps are still plausible.
 
-    >>> allowed_outliers(5, 0.05, 0.05), allowed_outliers(7, 0.05, 0.05), allowed_outliers(20, 0.05, 0.05)
-    (1, 1, 3)
+    The terms are summed in log space, so any n the measurement allows works
+    (``comb(n, k)`` overflows a float from n of about 1030 on).  A tail equal
+    to ``alpha`` on paper counts as within it: one step alone may not be an
+    outlier at the default 5 %, since P(X > 0) = 0.05.
+
+    >>> allowed_outliers(1, 0.05, 0.05), allowed_outliers(5, 0.05, 0.05), allowed_outliers(7, 0.05, 0.05)
+    (0, 1, 1)
+    >>> allowed_outliers(20, 0.05, 0.05), allowed_outliers(10_000, 0.05, 0.05)
+    (3, 536)
     """
-    tail = 1.0
+    if n <= 0:
+        return 0
+    log_f, log_g = math.log(fraction), math.log1p(-fraction)
+    log_n = math.lgamma(n + 1)
+    cdf = 0.0
     for k in range(n + 1):
-        tail -= math.comb(n, k) * fraction**k * (1 - fraction) ** (n - k)
-        if tail <= alpha:
+        cdf += math.exp(log_n - math.lgamma(k + 1) - math.lgamma(n - k + 1) + k * log_f + (n - k) * log_g)
+        if 1.0 - cdf <= alpha * (1 + ROUNDING_EPS):
             return k
     return n
 
@@ -135,6 +150,8 @@ def fit_check(
     outlier_fraction: float,
     alpha: float,
     outlier_alpha: float,
+    steps_beyond_range: Sequence[float] = (),
+    step_range_angstrom: float = math.inf,
 ) -> FitCheck:
     """Goodness of fit from the standardised residuals of the best candidate.
 
@@ -151,6 +168,12 @@ def fit_check(
         Threshold of the chi-square test.
     outlier_alpha : float
         Threshold of the outlier count.
+    steps_beyond_range : sequence of float
+        Outlier steps higher than ``step_range_angstrom``, Å: the outlier
+        density of the model covers heights up to that range only, so the
+        model cannot weigh them and the check fails, whatever the allowance.
+    step_range_angstrom : float
+        The range of the outlier density of steps, Å (for the message).
 
     Returns
     -------
@@ -165,7 +188,8 @@ def fit_check(
     chi2 = sum(z * z for _, z in zs) + sum(z * z for z in kept)
     dof = len(zs) + len(kept)
     p = chi_square_sf(chi2, dof)
-    fits = p >= alpha and outliers <= allowed
+    beyond = [float(h) for h in steps_beyond_range]
+    fits = p >= alpha and outliers <= allowed and not beyond
     worst = []
     for name in ("tilt", "lattice"):
         values = [z for n, z in zs if n == name]
@@ -180,10 +204,15 @@ def fit_check(
         for name in ("tilt", "lattice"):
             if any(abs(z) > OUTLIER_Z for n, z in zs if n == name):
                 causes.append(_CAUSES[name])
+        if beyond:
+            causes.append(
+                f"a step of {max(beyond):g} Å lies beyond the {step_range_angstrom:g} Å range of the step model and "
+                "matches no allowed step (a step bunch, or the z calibration)"
+            )
         if outliers > allowed or any(abs(z) > OUTLIER_Z for z in kept):
             causes.append(_CAUSES["steps"])
         if not causes:
             causes.append("several values are each a little off: check the stated uncertainties")
-        if len(causes) == 3:
+        if len(causes) >= 3 and not beyond:
             causes.append("nothing fits: is it the right structure and lattice constant?")
     return FitCheck(fits, chi2, dof, p, outliers, allowed, alpha, tuple(worst), tuple(causes))

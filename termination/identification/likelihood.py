@@ -507,6 +507,8 @@ def _fit(row: MatchRow, model: MatchModel) -> FitCheck:
         outlier_fraction=model.step_outlier_fraction,
         alpha=model.fit_alpha,
         outlier_alpha=model.fit_outlier_alpha,
+        steps_beyond_range=[s.measured for s in row.steps if s.outlier and s.measured > model.step_range_angstrom],
+        step_range_angstrom=model.step_range_angstrom,
     )
 
 

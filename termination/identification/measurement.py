@@ -44,7 +44,14 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from termination.defaults import MAX_LENGTH_ANGSTROM
+from termination.defaults import (
+    MAX_FACE_INDEX,
+    MAX_INDEX_LIMIT,
+    MAX_LENGTH_ANGSTROM,
+    MAX_MEASURED_VALUES,
+    MAX_MEASUREMENT_BYTES,
+    MAX_SIGMA,
+)
 from termination.errors import MeasurementError, TerminationError
 from termination.inputs import read_input_text
 from termination.outputs import write_text
@@ -73,12 +80,6 @@ _VALUE_RE = re.compile(rf"^\s*(?P<value>{NUMBER_PATTERN})\s*(?:(?:\+-|\+/-|±)\s
 _SYMBOL_RE = re.compile(r"^[A-Z][a-z]{0,2}$")
 _BARE_KEY_RE = re.compile(r"^[A-Za-z0-9_-]+$")
 
-#: Largest number of spacings or of steps in one measurement.
-MAX_VALUES = 10_000
-#: Largest accepted uncertainty of a measured value (Å or degrees).
-SIGMA_LIMIT = 1000.0
-#: Largest measurement file or step list read, bytes.
-MAX_FILE_BYTES = 1024 * 1024
 
 _TOP_KEYS = {"mount", "max_index", "tilt", "row_angle", "spacings", "steps", "cells", "visibility"}
 _VISIBILITY_KEYS = {"visible", "weights", "decay_length", "depth", "site_weights"}
@@ -199,6 +200,10 @@ def _check_mount(mount: Any, what: str = "mount") -> tuple[int, ...]:
         )
     if out in ([0, 0, 0], [0, 0, 0, 0]):
         raise MeasurementError(f"{what} (0 0 0) is not a face; give three integers not all zero")
+    if any(abs(v) > MAX_FACE_INDEX for v in out):
+        raise MeasurementError(
+            f"{what} {out}: Miller indices must lie within ±{MAX_FACE_INDEX} (MAX_FACE_INDEX), got {max(out, key=abs)}"
+        )
     return tuple(out)
 
 
@@ -228,8 +233,8 @@ def _check_measurement(m: Measurement) -> None:
     if m.mount is not None:
         set_(m, "mount", _check_mount(m.mount))
     if m.max_index is not None:
-        if isinstance(m.max_index, bool) or not isinstance(m.max_index, int) or m.max_index < 1:
-            raise MeasurementError(f"max_index must be a positive integer, got {m.max_index!r}")
+        if isinstance(m.max_index, bool) or not isinstance(m.max_index, int) or not 1 <= m.max_index <= MAX_INDEX_LIMIT:
+            raise MeasurementError(f"max_index must be an integer from 1 to {MAX_INDEX_LIMIT}, got {m.max_index!r}")
     if m.tilt is not None:
         _check_value(m.tilt, "tilt (deg)", 0.0, 90.0)
     if m.row_angle is not None:
@@ -237,16 +242,16 @@ def _check_measurement(m: Measurement) -> None:
     for name in ("spacings", "steps"):
         values = tuple(getattr(m, name))
         unit = "spacing" if name == "spacings" else "step height"
-        if len(values) > MAX_VALUES:
-            raise MeasurementError(f"at most {MAX_VALUES} {name} can be matched, got {len(values)}")
+        if len(values) > MAX_MEASURED_VALUES:
+            raise MeasurementError(f"at most {MAX_MEASURED_VALUES} {name} can be matched, got {len(values)}")
         for v in values:
             _check_value(v, f"{unit} (Å)", 0.0, MAX_LENGTH_ANGSTROM, True, False)
         set_(m, name, values)
     for name in ("tilt", "row_angle", "spacings", "steps"):
         value = getattr(m, name)
         for v in value if isinstance(value, tuple) else (value,):
-            if v is not None and v.sigma is not None and v.sigma > SIGMA_LIMIT:
-                raise MeasurementError(f"sigma of {name} must be at most {SIGMA_LIMIT:g}, got {v.sigma:g}")
+            if v is not None and v.sigma is not None and v.sigma > MAX_SIGMA:
+                raise MeasurementError(f"sigma of {name} must be at most {MAX_SIGMA:g}, got {v.sigma:g}")
     visible = tuple(m.visible)
     for s in visible:
         if not isinstance(s, str) or not _SYMBOL_RE.match(s):
@@ -437,7 +442,7 @@ def read_measurement(path: str | os.PathLike[str]) -> Measurement:
         value of the wrong type, NaN, a negative sigma or a (0 0 0) mount.
     """
     path = Path(path)
-    text = read_input_text(path, what="measurement file", error=MeasurementError, max_bytes=MAX_FILE_BYTES)
+    text = read_input_text(path, what="measurement file", error=MeasurementError, max_bytes=MAX_MEASUREMENT_BYTES)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -600,11 +605,11 @@ def read_steps(path: str | os.PathLike[str]) -> tuple[Value, ...]:
         number, a negative sigma or a line with more than two columns.
     """
     path = Path(path)
-    text = read_input_text(path, what="step list", error=MeasurementError, max_bytes=MAX_FILE_BYTES)
+    text = read_input_text(path, what="step list", error=MeasurementError, max_bytes=MAX_MEASUREMENT_BYTES)
     lines = text.splitlines()
     values = sum(1 for line in lines if line.split("#", 1)[0].strip())
-    if values > MAX_VALUES:
-        raise MeasurementError(f"{path}: {values} step heights; at most {MAX_VALUES} are matched")
+    if values > MAX_MEASURED_VALUES:
+        raise MeasurementError(f"{path}: {values} step heights; at most {MAX_MEASURED_VALUES} are matched")
     steps = []
     for lineno, line in enumerate(lines, 1):
         body = line.split("#", 1)[0].strip()

@@ -94,7 +94,7 @@ def face_atoms(crystal: Crystal, face: Face) -> FaceAtoms:
     M = np.vstack([face.mesh_fractional, face.stack_fractional])
     s = crystal.positions @ np.linalg.inv(M)
     s -= np.floor(s)
-    s[np.abs(s - 1.0) <= 1e-8 + 1e-5] = 0.0  # np.isclose(s, 1, atol=1e-8) without its overhead
+    s[np.abs(s - 1.0) <= 1e-8] = 0.0  # float noise only: an atom at 0.99999 stays there
     # Positions rounded to 1e-6 (mod 1) as one int64 code per atom: a 1D
     # unique is much faster than a row-wise one and finds the same atoms.
     q = np.rint(s * 1e6).astype(np.int64) % 1_000_000
@@ -162,11 +162,13 @@ def cluster_layers(
     new = np.concatenate([[0], np.cumsum(gaps > layer_tol_angstrom)])
     unwrapped = zs.copy()
     if period is not None:
-        # Periodic wrap: the last cluster joins the first across z = period.
+        # Periodic wrap: the last cluster joins the first across z = period, one period down.
+        # Only its heights move: a first layer that straddles period / 2 without wrapping
+        # keeps its own heights (it used to be torn apart, and its cut placed inside it).
         if len(zs) > 1 and new[-1] > 0 and (zs[0] + period - zs[-1]) <= layer_tol_angstrom:
-            new[new == new[-1]] = 0
-        wrapped = (new == 0) & (zs > period / 2)
-        unwrapped[wrapped] -= period
+            last = new == new[-1]
+            new[last] = 0
+            unwrapped[last] -= period
     n = new.max() + 1
     centres = np.bincount(new, weights=unwrapped, minlength=n) / np.bincount(new, minlength=n)
     if period is not None:

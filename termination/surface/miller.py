@@ -20,6 +20,7 @@ from typing import SupportsFloat, SupportsInt
 import numpy as np
 
 from termination.algebra.integer import primitive_index
+from termination.defaults import MAX_FACE_INDEX
 from termination.errors import PlaneError
 
 __all__ = [
@@ -191,7 +192,14 @@ def _integers(values: Iterable[SupportsFloat], name: str, lengths: tuple[int, ..
         raise PlaneError(f"{name} must be {what}, got {values!r}") from None
     if len(floats) not in lengths or not all(np.isfinite(floats)) or any(v != int(v) for v in floats):
         raise PlaneError(f"{name} must be {what}, got {values!r}")
-    return [int(v) for v in floats]
+    ints = [int(v) for v in floats]
+    # Checked before any work: a huge index makes huge surface cells (and overflows int64).
+    if any(abs(v) > MAX_FACE_INDEX for v in ints):
+        raise PlaneError(
+            f"{name} ({' '.join(str(v) for v in ints)}): Miller indices must lie within ±{MAX_FACE_INDEX} "
+            f"(MAX_FACE_INDEX), got {max(ints, key=abs)}"
+        )
+    return ints
 
 
 def check_hkl(hkl: Iterable[SupportsFloat], name: str = "plane", hexagonal: bool | None = None) -> HKL:

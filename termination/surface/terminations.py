@@ -35,6 +35,7 @@ Rules (documented in the README):
 
 from __future__ import annotations
 
+from collections import Counter
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import NamedTuple, SupportsFloat
@@ -342,6 +343,40 @@ def _signature(k: int, centres: FloatArray, comps: list[dict[str, int]], d: floa
     return tuple(out)
 
 
+def _lateral_signature(
+    k: int, atoms: FaceAtoms, labels: IntArray, centres: FloatArray, d: float
+) -> tuple[tuple[float, ...], ...]:
+    """How the layers of one period below layer ``k`` sit laterally under it, as sorted distances.
+
+    For each layer m read down from ``k`` (``k`` itself first), the in-plane
+    distances from every atom of layer ``k`` to its nearest copy of each atom
+    of m (over the mesh translations; the copy one period lower is shifted
+    by the stacking vector), sorted and rounded to 10^-4 Å.  Lengths only: the
+    same for any origin, orientation and mesh basis, and for
+    symmetry-equivalent terminations.  It tells apart inequivalent
+    terminations whose layer gaps and compositions agree (the two Zn
+    terminations of wurtzite (0 3 1)), which would otherwise be ordered by
+    the input setting.
+    """
+    nl = len(centres)
+    top = np.flatnonzero(labels == k)
+    mesh = atoms.mesh_inplane
+    inv = np.linalg.inv(mesh)
+    shifts = np.array([(i, j) for i in (-1, 0, 1) for j in (-1, 0, 1)], dtype=float) @ mesh
+    out: list[tuple[float, ...]] = []
+    for step in range(nl):
+        m = (k + step) % nl
+        below = np.flatnonzero(labels == m)
+        # periods between the top atom's layer and layer m's copy that lies below it (0 or 1)
+        down = 1.0 if m < k else 0.0
+        diff = atoms.inplane[below][None, :, :] - down * atoms.stack_inplane - atoms.inplane[top][:, None, :]
+        frac = diff @ inv
+        frac -= np.rint(frac)
+        lateral = np.linalg.norm((frac @ mesh)[:, :, None, :] + shifts[None, None, :, :], axis=-1).min(axis=-1)
+        out.append(tuple(np.round(np.sort(lateral.ravel()), 4).tolist()))
+    return tuple(out)
+
+
 def _face_terminations(
     crystal: Crystal, face: Face, graph: BondGraph, tol: float, ratio: float, max_multiple: int
 ) -> FaceTerminations:
@@ -406,10 +441,13 @@ def _face_terminations(
         bb, wb = float(counts[k] / area_nm2), float(weighted[k] / area_nm2)
         key = (round(bb, 6), round(wb, 6), composition_label(unit_comp), _signature(k, centres, comps, d))
         raw.append(_Candidate(k, unit_comp, units[k], float(cut_heights[k]), bb, wb, key))
-    # Cheapest first; ties by the unit's composition and the stack below it, which do not depend
-    # on the crystal's origin (the layer heights do): T1, its depth reference and the primes are
-    # the same for any input setting.  Candidates still tied are equivalent or look alike.
-    order = sorted(range(len(raw)), key=lambda i: (raw[i].key, raw[i].k))
+    # Cheapest first; ties by the unit's composition and the stack below it (gaps, then how the
+    # layers sit laterally), none of which depends on the crystal's origin or the face variant:
+    # T1, its depth reference and the primes are the same for any input setting.  Candidates
+    # still tied are equivalent.
+    tied = Counter(c.key for c in raw)  # the lateral signature is needed for ties only
+    lateral = {c.k: _lateral_signature(c.k, atoms, labels, centres, d) if tied[c.key] > 1 else () for c in raw}
+    order = sorted(range(len(raw)), key=lambda i: (raw[i].key, lateral[raw[i].k], raw[i].k))
     ids = {raw[i].k: f"T{n + 1}" for n, i in enumerate(order)}
 
     # Renumber the layers so that layer 0 is the top layer of T1, and measure depths from it.

@@ -7,6 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from termination.defaults import MAX_MEASURED_VALUES
 from termination.errors import MeasurementError
 from termination.identification.measurement import (
     Measurement,
@@ -194,8 +195,8 @@ def test_write_refuses_to_overwrite_without_force(tmp_path):
         ("mount = [0, 0, 0]", "(0 0 0)"),
         ("mount = [1, 2]", "three integers"),
         ("mount = [1, 2, 0.5]", "three integers"),
-        ("max_index = 0", "positive integer"),
-        ("max_index = true", "positive integer"),
+        ("max_index = 0", "an integer from 1 to 12"),
+        ("max_index = true", "an integer from 1 to 12"),
         ("[visibility]\nvisible = 'Sn'", "list"),
         ("[visibility]\nvisible = ['sn']", "'sn'"),
         ("[visibility]\nweights = { Na = -1 }", "non-negative"),
@@ -335,8 +336,8 @@ def test_oversized_and_overlong_inputs_are_refused(tmp_path):
     with pytest.raises(MeasurementError, match="bytes"):
         read_steps(big)
     many = tmp_path / "many.txt"
-    many.write_text("2.0\n" * 10_001, encoding="utf-8")
-    with pytest.raises(MeasurementError, match="10001 step heights"):
+    many.write_text("2.0\n" * (MAX_MEASURED_VALUES + 1), encoding="utf-8")
+    with pytest.raises(MeasurementError, match=f"{MAX_MEASURED_VALUES + 1} step heights"):
         read_steps(many)
 
 
