@@ -173,6 +173,7 @@ def _fit_section(fit: Any) -> str:
             ("step outliers", f"{fit.step_outliers} (the allowance accepts {fit.allowed_step_outliers})"),
             ("largest residuals", ", ".join(fit.worst)),
             ("likely causes", "; ".join(fit.causes)),
+            ("caveats", "; ".join(fit.caveats)),
         ]
     )
     return f"<h2>Fit check</h2>{body}"

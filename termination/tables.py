@@ -625,6 +625,7 @@ def _match(r: Any, wide: bool) -> list[Block]:
                 "dim",
             )
         )
+        out.extend(Text(f"Fit check caveat: {c}.", "warning") for c in fit.caveats)
     out.append(Text(r.verdict, "bold" if fit.fits else "warning"))
     out.append(Text(f"Decided by {r.decided_by}."))
     if r.warning:

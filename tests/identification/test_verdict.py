@@ -189,6 +189,21 @@ def test_fit_check_flags_a_structure_not_among_the_candidates(crystal):
     assert right / total <= 0.1
 
 
+def test_a_passed_check_without_a_lattice_carries_a_caveat(crystal):
+    # Calibration run (README): without a lattice the check flags only ~15 % of foreign
+    # structures, so a pass on tilt and steps alone must say it is weak; with a lattice it need not.
+    table = candidate_table(crystal("rocksalt:Na,Cl"), mount=(0, 0, 1), max_index=2, reconstructions=False)
+    a = 5.64  # NaCl; Wyckoff, Crystal Structures vol. 1 (from memory)
+    tilt_steps = Measurement(tilt=V(54.74, 2.0), steps=(V(a / math.sqrt(3), 0.1),))  # (1 1 1), cubic angle table
+    fit = score(table, tilt_steps, top=1).fit
+    assert fit.fits and len(fit.caveats) == 1 and "no corrugation lattice" in fit.caveats[0]
+    with_lattice = Measurement(
+        tilt=V(0.0, 2.0), spacings=(V(a / 2, 0.05), V(a / 2, 0.05)), row_angle=V(90.0, 2.0), steps=(V(a / 2, 0.1),)
+    )  # (0 0 1) with both ions imaged: a/2 square net (common practice)
+    fit = score(table, with_lattice, top=1).fit
+    assert fit.fits and fit.caveats == ()
+
+
 def test_chi_square_tail_matches_scipy():
     from scipy.stats import chi2
 
