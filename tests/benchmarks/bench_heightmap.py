@@ -7,7 +7,7 @@
 
 *time*: median wall time of :func:`termination.imaging.analysis.analyse_heightmap`
 on a 2048 x 2048 synthetic topograph with every artifact of a raw image (six
-1.25 Å steps with meandering edges and corner pieces, line offsets 0.5 Å rms,
+1.48 Å steps with meandering edges and corner pieces, line offsets 0.5 Å rms,
 adsorbates and pits over 5 %, a 0.2 Å rms 1/f background, lateral shifts, a
 3.9 Å square corrugation, 0.05 Å noise, 0.25 Å pixels).
 
@@ -54,10 +54,10 @@ def realistic_map(size, seed=0):
         0.25,
         tilt_deg=3.0,
         azimuth_deg=20.0,
-        step_heights=[1.25] * 6,
+        step_heights=[1.48] * 6,
         step_azimuth_deg=15.0,
         meander_angstrom=30.0,
-        corner_pieces=[(0, 300, 1.25), (3, 2000, -1.25)],
+        corner_pieces=[(0, 300, 1.48), (3, 2000, -1.48)],
         lattice=(3.9, 3.9, 90.0, 10.0),
         corrugation_angstrom=0.1,
         noise_angstrom=0.05,
@@ -86,7 +86,7 @@ def bench_time(runs, size):
         f"  terrace tilt {r.tilt.terrace:.3f} ± {r.tilt.terrace_sigma:.3f}° (true 3), lattice {lat.a:.4f} x "
         f"{lat.b:.4f} Å, γ {lat.gamma:.2f}° (true 3.9, 90), steps "
         + ", ".join(f"{s.height:.3f}±{s.sigma:.3f}" for s in r.steps)
-        + " Å (true 1.25)"
+        + " Å (true 1.48)"
     )
 
 

@@ -14,7 +14,7 @@ from termination.testing import synthetic_heightmap
 runner = CliRunner()
 
 # known geometry of the synthetic topograph (heights stored in nm, pixels 0.05 nm)
-TILT, A, STEP = 5.0, 4.0, 1.25
+TILT, A, STEP = 5.0, 4.0, 1.48
 
 
 def numbers(line):

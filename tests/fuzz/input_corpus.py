@@ -28,7 +28,7 @@ GOOD_STEPS = b"# step height (A)  sigma (A)\n2.82 0.1\n5.64\n2.82+-0.1\n"
 # (description, TOML text): every one is a defect the reader must name
 TOML_DEFECTS = [
     ("malformed TOML", b"mount = [0, 0, 1\n"),
-    ("unterminated string", b'tilt = "30+-3\n'),
+    ("unterminated string", b'tilt = "2+-2\n'),
     ("unknown key", b"tilt = 3.0\ncolour = 2\n"),
     ("unknown visibility key", b"[visibility]\nshade = 1\n"),
     ("visibility not a table", b"visibility = 3\n"),

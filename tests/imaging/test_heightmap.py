@@ -327,7 +327,7 @@ def test_square_lattice_steps_and_tilt_round_trip():
     truth = dict(
         tilt_deg=5.0,
         azimuth_deg=30.0,
-        step_heights=[1.25] * 3,
+        step_heights=[1.48] * 3,
         step_azimuth_deg=10.0,
         step_wave_angstrom=4.0,
         lattice=(4.0, 4.0, 90.0, 15.0),
@@ -338,10 +338,10 @@ def test_square_lattice_steps_and_tilt_round_trip():
     assert abs(r.tilt.terrace - 5.0) <= TILT_DEG
     assert angle_diff(r.tilt.terrace_azimuth, 30.0) <= 2.0
     assert r.tilt.terrace_sigma < TILT_DEG
-    # the staircase adds to the terrace slope: 3 steps of 1.25 Å over ~128 Å add about atan(3.75/128) = 1.7° (geometry)
+    # the staircase adds to the terrace slope: 3 steps of 1.48 Å over ~128 Å add about atan(4.44/128) = 2.0° (geometry)
     assert r.tilt.macroscopic > r.tilt.terrace + 0.5
     assert_lattice(r.lattice, 4.0, 4.0, 90.0)
-    assert_steps(r.steps, 3, 1.25)
+    assert_steps(r.steps, 3, 1.48)
     assert r.terraces == 4
     assert any("drift-free" in n for n in r.notes)
 
@@ -401,21 +401,21 @@ def test_single_terrace_has_no_steps_and_says_so():
 
 def test_no_corrugation_gives_no_lattice():
     z = synthetic_heightmap(
-        (256, 256), 0.5, tilt_deg=2.0, step_heights=[1.25, 1.25], corrugation_angstrom=0.0, noise_angstrom=0.05, seed=4
+        (256, 256), 0.5, tilt_deg=2.0, step_heights=[1.48, 1.48], corrugation_angstrom=0.0, noise_angstrom=0.05, seed=4
     )
     r = analyse_heightmap(z, 0.5)
     assert r.lattice is None
     assert any(n.startswith("no lattice") for n in r.notes)
-    assert_steps(r.steps, 2, 1.25)
+    assert_steps(r.steps, 2, 1.48)
 
 
 def test_strong_noise_is_an_honest_not_found():
-    # noise of 5 Å per pixel hides 1.25 Å steps and a 0.1 Å corrugation
+    # noise of 5 Å per pixel hides 1.48 Å steps and a 0.1 Å corrugation
     z = synthetic_heightmap(
         (256, 256),
         0.5,
         tilt_deg=2.0,
-        step_heights=[1.25] * 2,
+        step_heights=[1.48] * 2,
         lattice=(3.0, 3.0, 60.0, 5.0),
         corrugation_angstrom=0.1,
         noise_angstrom=5.0,
@@ -583,7 +583,7 @@ def test_measurement_from_an_analysis_round_trips_through_the_file(tmp_path):
         (256, 256),
         0.5,
         tilt_deg=5.0,
-        step_heights=[1.25] * 2,
+        step_heights=[1.48] * 2,
         lattice=(4.0, 4.0, 90.0, 0.0),
         noise_angstrom=0.05,
         seed=12,
