@@ -34,7 +34,15 @@ from termination.figures.topograph import MeasuredMap
 from termination.figures.topview import apparent_vectors
 from termination.surface.corrugation import CorrugationPattern, reciprocal_points
 
-__all__ = ["best_turn", "first_shell", "fourier_pattern", "power_spectrum", "spot_positions"]
+__all__ = [
+    "SPECTRUM_DECADES",
+    "best_turn",
+    "first_shell",
+    "fourier_pattern",
+    "power_spectrum",
+    "spectrum_limits",
+    "spot_positions",
+]
 
 
 def spot_positions(pattern: CorrugationPattern, mesh_inplane: FloatArray, rotation_deg: float = 0.0) -> FloatArray:
@@ -98,22 +106,57 @@ def first_shell(pattern: CorrugationPattern, mesh_inplane: FloatArray) -> FloatA
     return out
 
 
+#: Decades of power below the brightest spots that a measured spectrum shows.
+SPECTRUM_DECADES = 4.0
+
+
 def power_spectrum(heights: FloatArray, pixel_size: tuple[float, float]) -> tuple[FloatArray, FloatArray, FloatArray]:
     """Power spectrum of a height map with a Hann window: (power (ny, nx), kx (nx,), ky (ny,)), k in 1/Å.
 
-    Missing pixels count as the mean; the mean is removed before the window.
-    Frequencies are centred (``fftshift``); row index is y, column index x.
+    Missing pixels (NaN: the step edges, adsorbates and pits the analysis
+    left out) split the map into terraces.  When they do, only the largest
+    terrace is transformed, as the lattice measurement transforms terraces
+    one by one: the atomic lattice of one terrace is shifted laterally
+    against the next, and a transform across them streaks every spot.  The
+    terrace's box is windowed (Hann) and zero-padded to the map's size so that k keeps the map's grid.
+    The mean of the finite pixels is removed first.  Frequencies are centred
+    (``fftshift``); row index is y, column index x.
     """
+    from scipy import ndimage
+
     z = np.asarray(heights, dtype=float)
-    finite = np.isfinite(z)
-    z = np.where(finite, z, float(np.mean(z[finite])) if finite.any() else 0.0)
-    z = z - z.mean()
     ny, nx = z.shape
-    window = np.outer(np.hanning(ny), np.hanning(nx))
-    power = np.abs(np.fft.fftshift(np.fft.fft2(z * window))) ** 2
+    finite = np.isfinite(z)
+    box: tuple[slice, slice] = (slice(0, ny), slice(0, nx))
+    if finite.any() and not finite.all():
+        labels, n = ndimage.label(finite)
+        if n > 1:
+            sizes = np.bincount(labels.ravel())[1:]
+            largest = 1 + int(np.argmax(sizes))
+            finite = labels == largest
+            found = ndimage.find_objects(labels)[largest - 1]
+            if found is not None:
+                box = (found[0], found[1])
+    mean = float(np.mean(z[finite])) if finite.any() else 0.0
+    sub = np.where(finite, z - mean, 0.0)[box]
+    window = np.outer(np.hanning(sub.shape[0]), np.hanning(sub.shape[1]))
+    power = np.abs(np.fft.fftshift(np.fft.fft2(sub * window, s=(ny, nx)))) ** 2
     kx = np.fft.fftshift(np.fft.fftfreq(nx, float(pixel_size[0])))
     ky = np.fft.fftshift(np.fft.fftfreq(ny, float(pixel_size[1])))
     return power, kx, ky
+
+
+def spectrum_limits(log_power: FloatArray, kx: FloatArray, ky: FloatArray, k_max: float) -> tuple[float, float]:
+    """Colour limits of a log power spectrum shown out to |kx|, |ky| <= k_max (1/Å).
+
+    From the median of the window shown (the background, not the empty high
+    frequencies beyond it) to its brightest spots (99.9th percentile), at
+    most :data:`SPECTRUM_DECADES` decades: the step-edge streak at k = 0 and
+    the far side lobes of the window are not what a reader should see.
+    """
+    shown = log_power[np.ix_(np.abs(ky) <= k_max, np.abs(kx) <= k_max)]
+    lo, hi = np.percentile(shown if shown.size else log_power, [50.0, 99.9])
+    return max(float(lo), float(hi) - SPECTRUM_DECADES), float(hi)
 
 
 def fourier_pattern(
@@ -193,8 +236,7 @@ def fourier_pattern(
         if spectrum is not None:
             log_power, kx, ky = spectrum
             dkx, dky = kx[1] - kx[0], ky[1] - ky[0]
-            # Clip to the background and the brightest peaks, not the step-edge streak at k = 0.
-            lo, hi = np.percentile(log_power, [50.0, 99.9])
+            lo, hi = spectrum_limits(log_power, kx, ky, lim)
             ax.imshow(
                 log_power,
                 vmin=lo,

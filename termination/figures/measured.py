@@ -22,7 +22,7 @@ import numpy as np
 
 from termination.arrays import FloatArray
 from termination.figures.canvas import new_figure, style
-from termination.figures.fourier import power_spectrum
+from termination.figures.fourier import power_spectrum, spectrum_limits
 from termination.figures.labels import nice_length, scale_bar
 from termination.figures.palette import COLOURS, relief_colormap
 from termination.figures.topograph import MeasuredMap, measured_panel
@@ -106,7 +106,7 @@ def lattice_spectrum(measured: MeasuredMap, lattice: Any, *, width_in: float = 4
         ax = fig.add_subplot()
         ax.set_aspect("equal")
         dkx, dky = kx[1] - kx[0], ky[1] - ky[0]
-        lo, hi = np.percentile(log_power, [50.0, 99.9])
+        lo, hi = spectrum_limits(log_power, kx, ky, k_max)
         ax.imshow(
             log_power,
             origin="lower",

@@ -22,7 +22,7 @@ from termination.imaging.parameters import ImageParameters
 from termination.imaging.terraces import TerraceFit
 from termination.units import ANGSTROM, DEG
 
-__all__ = ["DRIFT_NOTE", "DriftCorrection", "Lattice", "fourier_lattice", "measure_lattice"]
+__all__ = ["DRIFT_NOTE", "DriftCorrection", "Lattice", "fourier_lattice", "measure_lattice", "taper_mask"]
 
 DRIFT_NOTE = (
     "lattice assumes a drift-free, linear scanner: drift, creep or a wrong x/y calibration distort a, b and gamma"
@@ -511,7 +511,7 @@ def _terrace_regions(
     return regions
 
 
-def _taper(mask: BoolArray, sigma_px: float = 3.0) -> Any:
+def taper_mask(mask: BoolArray, sigma_px: float = 3.0) -> Any:
     """Weights that fall smoothly from 1 inside ``mask`` to 0 at its edge (over about 2 sigma_px).
 
     The edges of a terrace mask would otherwise transform into bright
@@ -700,7 +700,7 @@ def measure_lattice(
         sub = np.where(on, flat[rows, cols], 0.0).astype(np.float32)
         if area:
             sub[on] -= float(np.mean(sub[on], dtype=np.float64))
-        sub *= _taper(on)
+        sub *= taper_mask(on)
         trial: list[str] = []
         peaks = _spectrum_peaks(sub, px, p, trial, support=on)
         del sub, on
@@ -742,7 +742,7 @@ def measure_lattice(
         return None, None
     else:
         # one level, but no terrace large enough on its own: the whole image
-        peaks = _spectrum_peaks(flat * _taper(keep), px, p, notes, support=keep)
+        peaks = _spectrum_peaks(flat * taper_mask(keep), px, p, notes, support=keep)
         fitted = _fit_basis(*peaks, p, notes) if peaks is not None else None
         if fitted is None:
             return None, None

@@ -69,3 +69,24 @@ def test_maps_follow_the_analysis_parameters():
     m = MeasuredMap(Z, (0.25, 0.25), parameters=(("min_step_angstrom", 0.8),))
     assert np.allclose(m.levelled.terraces, levelled_maps(Z, 0.25, min_step_angstrom=0.8).terraces, equal_nan=True)
     assert m.levelled is m.levelled  # computed once
+
+
+def test_spectrum_of_terraces_shifted_laterally_keeps_its_spot():
+    # Two terraces split by a missing strip, the second shifted by half a period: a transform across both
+    # cancels the first-order spot (geometry), the largest terrace alone keeps it at 1/period.
+    from termination.figures.fourier import SPECTRUM_DECADES, power_spectrum, spectrum_limits
+
+    n, px, period = 256, 0.25, 4.0
+    x = np.arange(n) * px
+    z = np.tile(np.cos(2 * np.pi * x / period), (n, 1))
+    z[:, 150:] = np.cos(2 * np.pi * (x[150:] - period / 2) / period)
+    z[:, 140:150] = np.nan
+    power, kx, ky = power_spectrum(z, (px, px))
+    row = power[np.argmin(np.abs(ky)), :]
+    spot = row[np.argmin(np.abs(kx - 1 / period))]
+    assert spot > 0.5 * row.max()
+    whole = np.nan_to_num(z)
+    across = np.abs(np.fft.fftshift(np.fft.fft2(whole * np.outer(np.hanning(n), np.hanning(n))))) ** 2
+    assert across[n // 2, np.argmin(np.abs(kx - 1 / period))] < 0.5 * across.max()  # what the selection avoids
+    lo, hi = spectrum_limits(np.log10(power + 1e-30), kx, ky, 0.6)
+    assert hi - lo <= SPECTRUM_DECADES
