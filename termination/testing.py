@@ -33,12 +33,54 @@ if TYPE_CHECKING:
 __all__ = [
     "calibration",
     "geometric_measurement",
+    "minimal_cif",
     "pa3_structure",
     "random_rotation",
     "reciprocal_shell",
     "synthetic_heightmap",
     "synthetic_measurement",
 ]
+
+
+def minimal_cif(
+    name: str,
+    spacegroup: str,
+    lengths_angstrom: Sequence[float],
+    angles_deg: Sequence[float],
+    sites: Sequence[tuple[str, str, float, float, float] | tuple[str, str, float, float, float, float]],
+) -> str:
+    """Text of a minimal CIF: a space-group symbol, the cell and one loop of atom sites.
+
+    A base for structure-file tests: edit the text to plant one defect at a
+    time (a wrong symbol, a negative length, a missing column).
+
+    Parameters
+    ----------
+    name : str
+        The data block's name.
+    spacegroup : str
+        Hermann-Mauguin symbol, e.g. ``'F m -3 m'``.
+    lengths_angstrom, angles_deg : (3,) sequence of float
+        a, b, c in Å and alpha, beta, gamma in degrees.
+    sites : sequence of (label, symbol, x, y, z) or (label, symbol, x, y, z, occupancy)
+        Fractional coordinates; an occupancy column is written when every site gives one.
+
+    Examples
+    --------
+    >>> text = minimal_cif("NaCl", "F m -3 m", (5.64,) * 3, (90,) * 3, [("Na1", "Na", 0, 0, 0)])
+    >>> text.splitlines()[2], text.splitlines()[-1]
+    ('_cell_length_a 5.64', 'Na1 Na 0 0 0')
+    """
+    occupancy = bool(sites) and all(len(site) == 6 for site in sites)
+    lines = [f"data_{name}", f"_symmetry_space_group_name_H-M '{spacegroup}'"]
+    lines += [f"_cell_length_{axis} {v:g}" for axis, v in zip("abc", lengths_angstrom, strict=True)]
+    lines += [f"_cell_angle_{angle} {v:g}" for angle, v in zip(("alpha", "beta", "gamma"), angles_deg, strict=True)]
+    lines += ["loop_", "_atom_site_label", "_atom_site_type_symbol"]
+    lines += [f"_atom_site_fract_{axis}" for axis in "xyz"] + (["_atom_site_occupancy"] if occupancy else [])
+    for site in sites:
+        label, symbol, *values = site
+        lines.append(" ".join([label, symbol, *(f"{float(v):g}" for v in values[: 4 if occupancy else 3])]))
+    return "\n".join(lines) + "\n"
 
 
 def reciprocal_shell(a: float, b: float, gamma_deg: float, direction_deg: float = 0.0) -> tuple[FloatArray, FloatArray]:

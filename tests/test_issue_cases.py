@@ -15,7 +15,6 @@ import os
 import signal
 import subprocess
 import sys
-import textwrap
 import time
 from pathlib import Path
 
@@ -24,29 +23,13 @@ import pytest
 from typer.testing import CliRunner
 
 from termination import cli
+from termination.testing import minimal_cif
 
 runner = CliRunner()
 ROOT = Path(__file__).resolve().parents[1]
 
-NACL_CIF = textwrap.dedent(
-    """\
-    data_NaCl
-    _symmetry_space_group_name_H-M 'F m -3 m'
-    _cell_length_a 5.64
-    _cell_length_b 5.64
-    _cell_length_c 5.64
-    _cell_angle_alpha 90
-    _cell_angle_beta 90
-    _cell_angle_gamma 90
-    loop_
-    _atom_site_label
-    _atom_site_type_symbol
-    _atom_site_fract_x
-    _atom_site_fract_y
-    _atom_site_fract_z
-    Na1 Na 0 0 0
-    Cl1 Cl 0.5 0.5 0.5
-    """
+NACL_CIF = minimal_cif(
+    "NaCl", "F m -3 m", (5.64,) * 3, (90,) * 3, [("Na1", "Na", 0, 0, 0), ("Cl1", "Cl", 0.5, 0.5, 0.5)]
 )
 # an operation list without the F centring: the two atoms then make the CsCl structure
 P_OPS = "loop_\n_symmetry_equiv_pos_as_xyz\n'x, y, z'\n'-x, -y, -z'\n"

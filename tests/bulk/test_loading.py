@@ -4,25 +4,11 @@ import pytest
 from termination import StructureError
 from termination.reports import planes_report
 from termination.structures import load_structure
+from termination.testing import minimal_cif
 
-PARTIAL_CIF = """data_partial
-_symmetry_space_group_name_H-M 'P 1'
-_cell_length_a 4.0
-_cell_length_b 4.0
-_cell_length_c 4.0
-_cell_angle_alpha 90
-_cell_angle_beta 90
-_cell_angle_gamma 90
-loop_
-_atom_site_label
-_atom_site_type_symbol
-_atom_site_fract_x
-_atom_site_fract_y
-_atom_site_fract_z
-_atom_site_occupancy
-Fe1 Fe 0 0 0 0.5
-Co1 Co 0 0 0 0.5
-"""
+PARTIAL_CIF = minimal_cif(
+    "partial", "P 1", (4.0,) * 3, (90,) * 3, [("Fe1", "Fe", 0, 0, 0, 0.5), ("Co1", "Co", 0, 0, 0, 0.5)]
+)
 
 
 def test_poscar_read_through_ase_matches_prototype(proto, tmp_path):

@@ -12,6 +12,7 @@ from termination import StructureError
 from termination.structures import load_structure
 from termination.structures.extxyz import read_extxyz
 from termination.structures.poscar import read_poscar
+from termination.testing import minimal_cif
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -128,23 +129,7 @@ def test_extxyz_defects_name_the_line(tmp_path, text, message):
         load_structure(str(path))
 
 
-NACL = """data_NaCl
-_symmetry_space_group_name_H-M 'F m -3 m'
-_cell_length_a 5.64
-_cell_length_b 5.64
-_cell_length_c 5.64
-_cell_angle_alpha 90
-_cell_angle_beta 90
-_cell_angle_gamma 90
-loop_
-_atom_site_label
-_atom_site_type_symbol
-_atom_site_fract_x
-_atom_site_fract_y
-_atom_site_fract_z
-Na1 Na 0 0 0
-Cl1 Cl 0.5 0.5 0.5
-"""
+NACL = minimal_cif("NaCl", "F m -3 m", (5.64,) * 3, (90,) * 3, [("Na1", "Na", 0, 0, 0), ("Cl1", "Cl", 0.5, 0.5, 0.5)])
 OPS = "loop_\n_symmetry_equiv_pos_as_xyz\n'x, y, z'\n'-x, -y, -z'\n"
 
 

@@ -11,24 +11,11 @@ from __future__ import annotations
 import random
 from collections.abc import Callable
 
-GOOD_CIF = """data_NaCl
-_symmetry_space_group_name_H-M 'F m -3 m'
-_cell_length_a 5.64
-_cell_length_b 5.64
-_cell_length_c 5.64
-_cell_angle_alpha 90
-_cell_angle_beta 90
-_cell_angle_gamma 90
-loop_
-_atom_site_label
-_atom_site_type_symbol
-_atom_site_fract_x
-_atom_site_fract_y
-_atom_site_fract_z
-_atom_site_occupancy
-Na1 Na 0 0 0 1
-Cl1 Cl 0.5 0.5 0.5 1
-"""
+from termination.testing import minimal_cif
+
+GOOD_CIF = minimal_cif(
+    "NaCl", "F m -3 m", (5.64,) * 3, (90,) * 3, [("Na1", "Na", 0, 0, 0, 1), ("Cl1", "Cl", 0.5, 0.5, 0.5, 1)]
+)
 
 GOOD_POSCAR = "NaCl\n5.64\n1 0 0\n0 1 0\n0 0 1\nNa Cl\n4 4\nDirect\n" + "".join(
     f"{x} {y} {z}\n"
