@@ -1,14 +1,17 @@
 """Absolute values that relative comparisons cannot catch: bond densities, whole step lists, tolerances, tilts."""
 
+import dataclasses
 import itertools
 import math
 
 import numpy as np
 import pytest
 
+from termination.errors import StructureError
 from termination.structures import build_prototype
 from termination.surface.corrugation import Visibility
 from termination.surface.faces import distinct_faces, face_geometry
+from termination.surface.layers import cluster_layers, face_atoms
 from termination.surface.steps import allowed_heights, step_offset
 from termination.surface.terminations import face_terminations
 
@@ -129,3 +132,41 @@ def test_depth_decay_weights_the_top_layer_more_than_the_second():
     amp = Visibility().amplitudes(["Na", "Na"], [0.0, 2.82])
     assert amp[0] == pytest.approx(1.0) and amp[1] == pytest.approx(math.exp(-2.82 / 0.5))
     assert amp[0] > amp[1]
+
+
+# Layer clustering and the atoms of a face: the tolerance boundary, integer input, the wrap, the refusal.
+def test_a_gap_equal_to_the_tolerance_joins_the_layer():
+    # "Atoms within this height form one layer" (the --layer-tol help): within includes the bound.
+    labels, centres = cluster_layers([0.0, 0.5], None, 0.5)
+    assert labels.tolist() == [0, 0] and centres.tolist() == [0.25]
+    labels, _ = cluster_layers([0.0, 0.5], None, 0.4999)
+    assert labels.tolist() == [0, 1]
+
+
+def test_integer_heights_wrap_across_the_period_like_floats():
+    # 9 and 0 lie 0.5 apart across z = 9.5, so they form one layer centred at -0.25 = 9.25 (mod 9.5)
+    labels, centres = cluster_layers([0, 4, 9], 9.5, 1.0)
+    assert labels.tolist() == [1, 0, 1]
+    assert centres.tolist() == pytest.approx([4.0, 9.25], abs=1e-12)
+    assert np.array_equal(cluster_layers([0.0, 4.0, 9.0], 9.5, 1.0)[1], centres)
+
+
+def test_face_atoms_carry_their_face_and_heights_in_the_period():
+    crystal = build_prototype("rocksalt:Na,Cl")
+    face = face_geometry(crystal, (1, 1, 1))
+    atoms = face_atoms(crystal, face)
+    assert atoms.face == face and atoms.d == pytest.approx(5.64 / np.sqrt(3))  # d(111) = a/sqrt(3), common practice
+    assert np.all((atoms.heights >= 0) & (atoms.heights < atoms.d))
+    assert sorted(atoms.species) == ["Cl", "Na"]  # one formula unit per primitive cell of rock salt
+
+
+def test_atoms_that_do_not_fill_the_primitive_cell_are_refused_with_the_reason():
+    # fcc with its centring translations dropped: the face's primitive cell holds 1 atom, not 4 / 1,
+    # the mismatch a symmetry tolerance that disagrees with the cell produces.
+    crystal = build_prototype("fcc:Cu")
+    bad = dataclasses.replace(crystal, centring=crystal.centring[:1])
+    with pytest.raises(StructureError) as info:
+        face_atoms(bad, face_geometry(crystal, (0, 0, 1)))
+    message = str(info.value)
+    assert message.startswith("face (0 0 1): found ") and "found 1 atoms per primitive cell, expected 4;" in message
+    assert message.endswith("the structure's symmetry tolerance may be too loose")

@@ -199,3 +199,59 @@ def test_unknown_termination_message_prints_miller_index_plainly(proto):
     ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
     with pytest.raises(StructureError, match=r"face \(1 1 1\) has no termination"):
         ft.termination("Xx")
+
+
+# Surface atoms and repeat units: the images below the top layer, their order, the depth bounds.
+
+
+def _lattice_offsets(ft, atoms):
+    """Offsets of every atom from the first, in the basis (mesh a, mesh b, stacking vector) of the face."""
+    basis = np.zeros((3, 3))
+    basis[:2, :2] = ft.atoms.mesh_inplane
+    basis[2, :2] = ft.atoms.stack_inplane
+    basis[2, 2] = ft.d
+    xyz = np.column_stack([atoms.inplane, -atoms.depth])
+    return (xyz - xyz[0]) @ np.linalg.inv(basis)
+
+
+def test_images_below_the_top_layer_sit_on_the_bulk_lattice(proto):
+    # fcc has one atom per primitive cell, so every atom of the surface down to any depth is a
+    # lattice translation of the first: ABC stacking of (1 1 1) (common practice).
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    atoms = ft.surface_atoms("T1", 3 * ft.d)
+    assert len(atoms.depth) == 4 and np.unique(np.round(atoms.depth, 6)).size == 4
+    frac = _lattice_offsets(ft, atoms)
+    assert np.allclose(frac, np.round(frac), atol=1e-9)
+
+
+def test_surface_atoms_are_sorted_by_depth_then_position_with_integer_units(proto):
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    atoms = ft.surface_atoms("TiO2", 2.5)
+    keys = [(round(z, 9), round(x, 9), round(y, 9)) for z, (x, y) in zip(atoms.depth, atoms.inplane)]
+    assert keys == sorted(keys) and len(keys) == 5  # TiO2 over SrO, a/2 = 1.95 Å apart
+    assert atoms.unit.dtype.kind == "i" and atoms.unit.tolist() == [0, 0, 0, 1, 1]
+
+
+def test_an_atom_exactly_at_the_depth_limit_is_included(proto):
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    deep = ft.surface_atoms("Cl", 5.0)
+    second = float(np.unique(deep.depth)[1])  # the Na layer, d/2 = 1.628 Å down
+    assert sorted(ft.surface_atoms("Cl", second).species) == ["Cl", "Na"]
+
+
+@pytest.mark.parametrize("hkl", [(4, 2, 1), (1, 1, 1), (3, 3, 1)])
+def test_every_repeat_unit_holds_one_formula_unit_per_cell(proto, hkl):
+    # Rock salt has one NaCl per primitive cell; (4 2 1) has d = a / (2 sqrt 21) = 0.615 Å < 1 Å
+    # (fcc reflection rule, common practice), so a cut depth taken as a fraction of d would show.
+    ft = face_terminations(proto("rocksalt:Na,Cl"), hkl)
+    for t in ft.terminations:
+        unit = ft.repeat_unit(t.id)
+        assert sorted(unit.species) == ["Cl", "Na"], (hkl, t.id)
+        assert np.all(unit.depth < ft.d) and np.ptp(unit.depth) < ft.d
+
+
+def test_an_unknown_termination_names_the_ones_the_face_has(proto):
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    with pytest.raises(StructureError) as info:
+        ft.termination("Xe")
+    assert str(info.value) == "face (1 1 1) has no termination 'Xe'; it has T1 (Cl), T2 (Na)"
