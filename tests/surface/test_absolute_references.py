@@ -170,3 +170,23 @@ def test_atoms_that_do_not_fill_the_primitive_cell_are_refused_with_the_reason()
     message = str(info.value)
     assert message.startswith("face (0 0 1): found ") and "found 1 atoms per primitive cell, expected 4;" in message
     assert message.endswith("the structure's symmetry tolerance may be too loose")
+
+
+@pytest.mark.parametrize(
+    "heights, labels, centres",
+    [
+        # period 2 Å throughout; worked by hand: single linkage, then the top cluster joins the bottom one
+        # when the gap across z = 2 is within the tolerance, its atoms counted at z - 2.
+        (([0.0, 0.05, 1.0, 1.98], 0.1), [0, 0, 1, 0], [0.01, 1.0]),
+        (([0.0, 1.95], 0.1), [0, 0], [1.975]),  # two atoms, one layer across the period
+        (([0.0, 0.5, 1.95], 0.1), [1, 0, 1], [0.5, 1.975]),  # the wrap joins the first and last, not the middle
+        (([0.0, 1.5], 0.5), [0, 0], [1.75]),  # a wrap gap equal to the tolerance joins
+        (([0.0, 1.0], 1.0), [0, 0], [0.5]),  # one layer without a wrap: an atom at d/2 is not moved down
+        (([0.0, 0.4, 0.8], 0.5), [0, 0, 0], [0.4]),  # nor one between d/3 and d/2
+    ],
+)
+def test_periodic_layers_by_hand(heights, labels, centres):
+    z, tol = heights
+    got_labels, got_centres = cluster_layers(z, 2.0, tol)
+    assert got_labels.tolist() == labels
+    assert got_centres.tolist() == pytest.approx(centres, abs=1e-12)
