@@ -255,3 +255,18 @@ def test_an_unknown_termination_names_the_ones_the_face_has(proto):
     with pytest.raises(StructureError) as info:
         ft.termination("Xe")
     assert str(info.value) == "face (1 1 1) has no termination 'Xe'; it has T1 (Cl), T2 (Na)"
+
+
+def test_a_layer_that_straddles_the_cell_boundary_is_one_layer():
+    # Two atoms 0.01 Å apart across z = 0 (fractional 0.001 and 0.999 of c = 5 Å): one layer at the
+    # default tolerance of 0.1 Å, however the cell's origin cuts it.
+    crystal = build_crystal(np.diag([3.0, 3.0, 5.0]), [[0, 0, 0.001], [0.5, 0.5, 0.999]], ["Cu", "Cu"])
+    ft = face_terminations(crystal, (0, 0, 1))
+    assert len(ft.layers) == 1 and ft.layers[0].composition == {"Cu": 2}
+
+
+def test_the_cut_of_a_one_layer_face_lies_half_a_period_above_the_layer(proto):
+    # fcc (1 1 1): one layer per period d = a / sqrt(3); the cut plane lies midway between layers.
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    (t,) = ft.terminations
+    assert (t.cut_height - ft.layers[0].height) % ft.d == pytest.approx(ft.d / 2, abs=1e-9)
