@@ -270,3 +270,24 @@ def test_the_cut_of_a_one_layer_face_lies_half_a_period_above_the_layer(proto):
     ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
     (t,) = ft.terminations
     assert (t.cut_height - ft.layers[0].height) % ft.d == pytest.approx(ft.d / 2, abs=1e-9)
+
+
+def test_only_van_der_waals_gaps_end_a_layered_crystal_and_only_they_are_flagged(proto):
+    # 2H-MoS2 (0 0 0 1): S-Mo-S sheets held by van der Waals forces; the cleave runs between the
+    # sheets, never through one (common practice).  Two sheets per cell, so two such cuts.
+    ft = face_terminations(proto("2H-MX2:Mo,S"), (0, 0, 1))
+    assert [(t.label, t.van_der_waals, t.broken_bonds_per_nm2) for t in ft.terminations] == [
+        ("MoS2", True, 0.0),
+        ("MoS2", True, 0.0),
+    ]
+    ionic = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    assert [t.van_der_waals for t in ionic.terminations] == [False, False]
+    # without any bond there is no van der Waals gap either: nothing to tell a gap from
+    unbonded = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), bond_cutoff_angstrom=2.0)
+    assert [t.van_der_waals for t in unbonded.terminations] == [False, False]
+
+
+def test_a_unit_ratio_of_one_keeps_the_cheapest_cuts(proto):
+    # Na- and Cl-ended (1 1 1) cuts of rock salt break the same bonds, so both stay at ratio 1.
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), unit_ratio=1.0)
+    assert [t.label for t in ft.terminations] == ["Cl", "Na"]
