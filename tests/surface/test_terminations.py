@@ -291,3 +291,13 @@ def test_a_unit_ratio_of_one_keeps_the_cheapest_cuts(proto):
     # Na- and Cl-ended (1 1 1) cuts of rock salt break the same bonds, so both stay at ratio 1.
     ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), unit_ratio=1.0)
     assert [t.label for t in ft.terminations] == ["Cl", "Na"]
+
+
+def test_layers_are_listed_from_the_top_of_t1_down_with_their_depths(proto):
+    # Perovskite (0 0 1): SrO and TiO2 layers a/2 = 1.9525 Å apart (a = 3.905 Å, from memory);
+    # layer 0 is the top layer of T1 and the depths run down from it.
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    t1 = ft.terminations[0]
+    assert t1.layers[0] == 0
+    assert [layer.depth for layer in ft.layers] == pytest.approx([0.0, 3.905 / 2], abs=1e-9)
+    assert ft.layers[0].composition == t1.composition
