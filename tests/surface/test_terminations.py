@@ -301,3 +301,13 @@ def test_layers_are_listed_from_the_top_of_t1_down_with_their_depths(proto):
     assert t1.layers[0] == 0
     assert [layer.depth for layer in ft.layers] == pytest.approx([0.0, 3.905 / 2], abs=1e-9)
     assert ft.layers[0].composition == t1.composition
+
+
+def test_the_bounds_of_the_settings_are_accepted(proto):
+    # --max-multiple 0 to 50 and --layer-tol 0 are valid (the CLI help).  A list holds delta + n d for
+    # n = 0..N, without the zero height of a termination to itself: N + 1 heights, or N.
+    crystal = proto("rocksalt:Na,Cl")
+    for n in (0, 50):
+        steps = face_terminations(crystal, (1, 1, 1), max_multiple=n).steps
+        assert [len(s.heights) for s in steps] == [n + (s.from_label != s.to_label) for s in steps]
+    assert len(face_terminations(crystal, (1, 1, 1), layer_tol_angstrom=0.0).layers) == 2
