@@ -311,3 +311,24 @@ def test_the_bounds_of_the_settings_are_accepted(proto):
         steps = face_terminations(crystal, (1, 1, 1), max_multiple=n).steps
         assert [len(s.heights) for s in steps] == [n + (s.from_label != s.to_label) for s in steps]
     assert len(face_terminations(crystal, (1, 1, 1), layer_tol_angstrom=0.0).layers) == 2
+
+
+def test_rocksalt_111_cuts_layers_and_depths_by_value(proto):
+    # Rock salt (1 1 1): Cl and Na layers d/2 = a / (2 sqrt 3) = 1.628 Å apart; each cut breaks the 3 bonds
+    # per cell that join a layer to the next (3 of 6 neighbours above, common practice).
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), unit_ratio=1.5)
+    half = 5.64 / (2 * np.sqrt(3))
+    assert ft.unit_ratio == 1.5
+    assert [(c.below, c.above, c.broken_bonds) for c in sorted(ft.cuts, key=lambda c: c.below)] == [
+        (0, 1, 3.0),
+        (1, 0, 3.0),
+    ]
+    assert all(c.weighted_bonds > 0 for c in ft.cuts)
+    assert [len(layer.atoms) for layer in ft.layers] == [1, 1]
+    assert [(t.label, t.depth) for t in ft.terminations] == [("Cl", 0.0), ("Na", pytest.approx(half, abs=1e-9))]
+
+
+def test_look_alike_terminations_are_primed_once_each(proto):
+    # Fluorite (1 1 3): two F-ended terminations that no symmetry relates; the second is F'.
+    ft = face_terminations(proto("fluorite:Ca,F"), (1, 1, 3))
+    assert [t.label for t in ft.terminations] == ["Ca", "F", "F'"]
