@@ -1,14 +1,17 @@
 """Absolute values that relative comparisons cannot catch: bond densities, whole step lists, tolerances, tilts."""
 
+import dataclasses
 import itertools
 import math
 
 import numpy as np
 import pytest
 
+from termination.errors import StructureError
 from termination.structures import build_prototype
 from termination.surface.corrugation import Visibility
 from termination.surface.faces import distinct_faces, face_geometry
+from termination.surface.layers import cluster_layers, face_atoms
 from termination.surface.steps import allowed_heights, step_offset
 from termination.surface.terminations import face_terminations
 
@@ -110,13 +113,17 @@ def _min_angle(crystal, hkl, mount):
 
 
 @pytest.mark.parametrize("mount", [(1, 1, 0), (1, 1, 1)])
-@pytest.mark.parametrize("hkl", [(3, 1, 0), (2, 1, 0), (3, 2, 1), (1, 0, 0), (2, 1, 1)])
+# with negative entries the written index is not the closest variant to either mount
+@pytest.mark.parametrize(
+    "hkl", [(3, 1, 0), (2, 1, 0), (3, 2, 1), (1, 0, 0), (2, 1, 1), (1, -1, 0), (-3, 1, 0), (1, -2, -1)]
+)
 def test_tilt_is_the_closest_variant_not_the_written_index(hkl, mount):
     # For a centrosymmetric cubic crystal every signed permutation is a variant (m-3m); the tilt
     # is the smallest angle over them (cubic interplanar angles, Cullity App. 15 style).
     crystal = build_prototype("fcc:Cu")
     face = face_geometry(crystal, hkl, mount)
-    assert face.tilt == pytest.approx(_min_angle(crystal, hkl, mount), abs=1e-9)
+    # 1e-5 degrees: acos near 1 loses half the digits when the tilt is zero
+    assert face.tilt == pytest.approx(_min_angle(crystal, hkl, mount), abs=1e-5)
 
 
 def test_depth_decay_weights_the_top_layer_more_than_the_second():
@@ -125,3 +132,61 @@ def test_depth_decay_weights_the_top_layer_more_than_the_second():
     amp = Visibility().amplitudes(["Na", "Na"], [0.0, 2.82])
     assert amp[0] == pytest.approx(1.0) and amp[1] == pytest.approx(math.exp(-2.82 / 0.5))
     assert amp[0] > amp[1]
+
+
+# Layer clustering and the atoms of a face: the tolerance boundary, integer input, the wrap, the refusal.
+def test_a_gap_equal_to_the_tolerance_joins_the_layer():
+    # "Atoms within this height form one layer" (the --layer-tol help): within includes the bound.
+    labels, centres = cluster_layers([0.0, 0.5], None, 0.5)
+    assert labels.tolist() == [0, 0] and centres.tolist() == [0.25]
+    labels, _ = cluster_layers([0.0, 0.5], None, 0.4999)
+    assert labels.tolist() == [0, 1]
+
+
+def test_integer_heights_wrap_across_the_period_like_floats():
+    # 9 and 0 lie 0.5 apart across z = 9.5, so they form one layer centred at -0.25 = 9.25 (mod 9.5)
+    labels, centres = cluster_layers([0, 4, 9], 9.5, 1.0)
+    assert labels.tolist() == [1, 0, 1]
+    assert centres.tolist() == pytest.approx([4.0, 9.25], abs=1e-12)
+    assert np.array_equal(cluster_layers([0.0, 4.0, 9.0], 9.5, 1.0)[1], centres)
+
+
+def test_face_atoms_carry_their_face_and_heights_in_the_period():
+    crystal = build_prototype("rocksalt:Na,Cl")
+    face = face_geometry(crystal, (1, 1, 1))
+    atoms = face_atoms(crystal, face)
+    assert atoms.face == face and atoms.d == pytest.approx(5.64 / np.sqrt(3))  # d(111) = a/sqrt(3), common practice
+    assert np.all((atoms.heights >= 0) & (atoms.heights < atoms.d))
+    assert sorted(atoms.species) == ["Cl", "Na"]  # one formula unit per primitive cell of rock salt
+
+
+def test_atoms_that_do_not_fill_the_primitive_cell_are_refused_with_the_reason():
+    # fcc with its centring translations dropped: the face's primitive cell holds 1 atom, not 4 / 1,
+    # the mismatch a symmetry tolerance that disagrees with the cell produces.
+    crystal = build_prototype("fcc:Cu")
+    bad = dataclasses.replace(crystal, centring=crystal.centring[:1])
+    with pytest.raises(StructureError) as info:
+        face_atoms(bad, face_geometry(crystal, (0, 0, 1)))
+    message = str(info.value)
+    assert message.startswith("face (0 0 1): found ") and "found 1 atoms per primitive cell, expected 4;" in message
+    assert message.endswith("the structure's symmetry tolerance may be too loose")
+
+
+@pytest.mark.parametrize(
+    "heights, labels, centres",
+    [
+        # period 2 Å throughout; worked by hand: single linkage, then the top cluster joins the bottom one
+        # when the gap across z = 2 is within the tolerance, its atoms counted at z - 2.
+        (([0.0, 0.05, 1.0, 1.98], 0.1), [0, 0, 1, 0], [0.01, 1.0]),
+        (([0.0, 1.95], 0.1), [0, 0], [1.975]),  # two atoms, one layer across the period
+        (([0.0, 0.5, 1.95], 0.1), [1, 0, 1], [0.5, 1.975]),  # the wrap joins the first and last, not the middle
+        (([0.0, 1.5], 0.5), [0, 0], [1.75]),  # a wrap gap equal to the tolerance joins
+        (([0.0, 1.0], 1.0), [0, 0], [0.5]),  # one layer without a wrap: an atom at d/2 is not moved down
+        (([0.0, 0.4, 0.8], 0.5), [0, 0, 0], [0.4]),  # nor one between d/3 and d/2
+    ],
+)
+def test_periodic_layers_by_hand(heights, labels, centres):
+    z, tol = heights
+    got_labels, got_centres = cluster_layers(z, 2.0, tol)
+    assert got_labels.tolist() == labels
+    assert got_centres.tolist() == pytest.approx(centres, abs=1e-12)

@@ -199,3 +199,136 @@ def test_unknown_termination_message_prints_miller_index_plainly(proto):
     ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
     with pytest.raises(StructureError, match=r"face \(1 1 1\) has no termination"):
         ft.termination("Xx")
+
+
+# Surface atoms and repeat units: the images below the top layer, their order, the depth bounds.
+
+
+def _lattice_offsets(ft, atoms):
+    """Offsets of every atom from the first, in the basis (mesh a, mesh b, stacking vector) of the face."""
+    basis = np.zeros((3, 3))
+    basis[:2, :2] = ft.atoms.mesh_inplane
+    basis[2, :2] = ft.atoms.stack_inplane
+    basis[2, 2] = ft.d
+    xyz = np.column_stack([atoms.inplane, -atoms.depth])
+    return (xyz - xyz[0]) @ np.linalg.inv(basis)
+
+
+def test_images_below_the_top_layer_sit_on_the_bulk_lattice(proto):
+    # fcc has one atom per primitive cell, so every atom of the surface down to any depth is a
+    # lattice translation of the first: ABC stacking of (1 1 1) (common practice).
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    atoms = ft.surface_atoms("T1", 3 * ft.d)
+    assert len(atoms.depth) == 4 and np.unique(np.round(atoms.depth, 6)).size == 4
+    frac = _lattice_offsets(ft, atoms)
+    assert np.allclose(frac, np.round(frac), atol=1e-9)
+
+
+def test_surface_atoms_are_sorted_by_depth_then_position_with_integer_units(proto):
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    atoms = ft.surface_atoms("TiO2", 2.5)
+    keys = [(round(z, 9), round(x, 9), round(y, 9)) for z, (x, y) in zip(atoms.depth, atoms.inplane)]
+    assert keys == sorted(keys) and len(keys) == 5  # TiO2 over SrO, a/2 = 1.95 Å apart
+    assert atoms.unit.dtype.kind == "i" and atoms.unit.tolist() == [0, 0, 0, 1, 1]
+
+
+def test_an_atom_exactly_at_the_depth_limit_is_included(proto):
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    deep = ft.surface_atoms("Cl", 5.0)
+    second = float(np.unique(deep.depth)[1])  # the Na layer, d/2 = 1.628 Å down
+    assert sorted(ft.surface_atoms("Cl", second).species) == ["Cl", "Na"]
+
+
+@pytest.mark.parametrize("hkl", [(4, 2, 1), (1, 1, 1), (3, 3, 1)])
+def test_every_repeat_unit_holds_one_formula_unit_per_cell(proto, hkl):
+    # Rock salt has one NaCl per primitive cell; (4 2 1) has d = a / (2 sqrt 21) = 0.615 Å < 1 Å
+    # (fcc reflection rule, common practice), so a cut depth taken as a fraction of d would show.
+    ft = face_terminations(proto("rocksalt:Na,Cl"), hkl)
+    for t in ft.terminations:
+        unit = ft.repeat_unit(t.id)
+        assert sorted(unit.species) == ["Cl", "Na"], (hkl, t.id)
+        assert np.all(unit.depth < ft.d) and np.ptp(unit.depth) < ft.d
+
+
+def test_an_unknown_termination_names_the_ones_the_face_has(proto):
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    with pytest.raises(StructureError) as info:
+        ft.termination("Xe")
+    assert str(info.value) == "face (1 1 1) has no termination 'Xe'; it has T1 (Cl), T2 (Na)"
+
+
+def test_a_layer_that_straddles_the_cell_boundary_is_one_layer():
+    # Two atoms 0.01 Å apart across z = 0 (fractional 0.001 and 0.999 of c = 5 Å): one layer at the
+    # default tolerance of 0.1 Å, however the cell's origin cuts it.
+    crystal = build_crystal(np.diag([3.0, 3.0, 5.0]), [[0, 0, 0.001], [0.5, 0.5, 0.999]], ["Cu", "Cu"])
+    ft = face_terminations(crystal, (0, 0, 1))
+    assert len(ft.layers) == 1 and ft.layers[0].composition == {"Cu": 2}
+
+
+def test_the_cut_of_a_one_layer_face_lies_half_a_period_above_the_layer(proto):
+    # fcc (1 1 1): one layer per period d = a / sqrt(3); the cut plane lies midway between layers.
+    ft = face_terminations(proto("fcc:Cu"), (1, 1, 1))
+    (t,) = ft.terminations
+    assert (t.cut_height - ft.layers[0].height) % ft.d == pytest.approx(ft.d / 2, abs=1e-9)
+
+
+def test_only_van_der_waals_gaps_end_a_layered_crystal_and_only_they_are_flagged(proto):
+    # 2H-MoS2 (0 0 0 1): S-Mo-S sheets held by van der Waals forces; the cleave runs between the
+    # sheets, never through one (common practice).  Two sheets per cell, so two such cuts.
+    ft = face_terminations(proto("2H-MX2:Mo,S"), (0, 0, 1))
+    assert [(t.label, t.van_der_waals, t.broken_bonds_per_nm2) for t in ft.terminations] == [
+        ("MoS2", True, 0.0),
+        ("MoS2", True, 0.0),
+    ]
+    ionic = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1))
+    assert [t.van_der_waals for t in ionic.terminations] == [False, False]
+    # without any bond there is no van der Waals gap either: nothing to tell a gap from
+    unbonded = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), bond_cutoff_angstrom=2.0)
+    assert [t.van_der_waals for t in unbonded.terminations] == [False, False]
+
+
+def test_a_unit_ratio_of_one_keeps_the_cheapest_cuts(proto):
+    # Na- and Cl-ended (1 1 1) cuts of rock salt break the same bonds, so both stay at ratio 1.
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), unit_ratio=1.0)
+    assert [t.label for t in ft.terminations] == ["Cl", "Na"]
+
+
+def test_layers_are_listed_from_the_top_of_t1_down_with_their_depths(proto):
+    # Perovskite (0 0 1): SrO and TiO2 layers a/2 = 1.9525 Å apart (a = 3.905 Å, from memory);
+    # layer 0 is the top layer of T1 and the depths run down from it.
+    ft = face_terminations(proto("perovskite:Sr,Ti,O"), (0, 0, 1))
+    t1 = ft.terminations[0]
+    assert t1.layers[0] == 0
+    assert [layer.depth for layer in ft.layers] == pytest.approx([0.0, 3.905 / 2], abs=1e-9)
+    assert ft.layers[0].composition == t1.composition
+
+
+def test_the_bounds_of_the_settings_are_accepted(proto):
+    # --max-multiple 0 to 50 and --layer-tol 0 are valid (the CLI help).  A list holds delta + n d for
+    # n = 0..N, without the zero height of a termination to itself: N + 1 heights, or N.
+    crystal = proto("rocksalt:Na,Cl")
+    for n in (0, 50):
+        steps = face_terminations(crystal, (1, 1, 1), max_multiple=n).steps
+        assert [len(s.heights) for s in steps] == [n + (s.from_label != s.to_label) for s in steps]
+    assert len(face_terminations(crystal, (1, 1, 1), layer_tol_angstrom=0.0).layers) == 2
+
+
+def test_rocksalt_111_cuts_layers_and_depths_by_value(proto):
+    # Rock salt (1 1 1): Cl and Na layers d/2 = a / (2 sqrt 3) = 1.628 Å apart; each cut breaks the 3 bonds
+    # per cell that join a layer to the next (3 of 6 neighbours above, common practice).
+    ft = face_terminations(proto("rocksalt:Na,Cl"), (1, 1, 1), unit_ratio=1.5)
+    half = 5.64 / (2 * np.sqrt(3))
+    assert ft.unit_ratio == 1.5
+    assert [(c.below, c.above, c.broken_bonds) for c in sorted(ft.cuts, key=lambda c: c.below)] == [
+        (0, 1, 3.0),
+        (1, 0, 3.0),
+    ]
+    assert all(c.weighted_bonds > 0 for c in ft.cuts)
+    assert [len(layer.atoms) for layer in ft.layers] == [1, 1]
+    assert [(t.label, t.depth) for t in ft.terminations] == [("Cl", 0.0), ("Na", pytest.approx(half, abs=1e-9))]
+
+
+def test_look_alike_terminations_are_primed_once_each(proto):
+    # Fluorite (1 1 3): two F-ended terminations that no symmetry relates; the second is F'.
+    ft = face_terminations(proto("fluorite:Ca,F"), (1, 1, 3))
+    assert [t.label for t in ft.terminations] == ["Ca", "F", "F'"]
