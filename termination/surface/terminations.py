@@ -525,23 +525,21 @@ def _crossings(
     rest = step - full * d
     z1 = z0 + rest
     per_cell = 1.0 / len(crystal.centring)
-    weights = (np.ones(len(z0)), graph.weight[up].astype(np.float64), graph.unit[up].astype(np.float64))
+    weights = np.stack([np.ones(len(z0)), graph.weight[up], graph.unit[up]]).astype(np.float64)  # (3, B)
     order = np.argsort(cut_heights, kind="stable")
     sorted_cuts = cut_heights[order]
     n_cuts = len(cut_heights)
     # Each bond adds w on the arc (z0, z1] of cut heights; z1 < 2d, so the arc is covered by the cuts
     # c in (z0, z1] and c + d in (z0, z1].  A +w at the first sorted cut above the lower end and a -w
-    # at the first above the upper end, summed cumulatively, give every cut's total: the same
-    # indices serve the three weights.
-    ends = np.concatenate([z0, z1, z0 - d, z1 - d])
-    index = np.searchsorted(sorted_cuts, ends, side="right")
-    sign = np.repeat([1.0, -1.0, 1.0, -1.0], len(z0))
-    totals = np.empty((n_cuts, 3))
-    for col, w in enumerate(weights):
-        arcs = np.cumsum(np.bincount(index, weights=np.tile(w, 4) * sign, minlength=n_cuts + 1))[:n_cuts]
-        totals[:, col] = arcs + float((full * w).sum())
+    # at the first above the upper end, summed cumulatively, give every cut's total: one set of
+    # indices, one bincount for the three weights (each in its own block of n_cuts + 1 bins).
+    index = np.searchsorted(sorted_cuts, np.concatenate([z0, z1, z0 - d, z1 - d]), side="right")
+    signed = weights[:, None, :] * np.array([1.0, -1.0, 1.0, -1.0])[None, :, None]  # (3, 4, B)
+    blocks = (index[None, :] + (n_cuts + 1) * np.arange(3)[:, None]).ravel()
+    arcs = np.bincount(blocks, weights=signed.ravel(), minlength=3 * (n_cuts + 1)).reshape(3, n_cuts + 1)
+    totals = np.cumsum(arcs, axis=1)[:, :n_cuts] + (full[None, :] * weights).sum(axis=1)[:, None]
     values = np.empty((3, n_cuts))
-    values[:, order] = totals.T * per_cell
+    values[:, order] = totals * per_cell
     return values[0], values[1], values[2]
 
 
