@@ -658,8 +658,9 @@ def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSele
     with pi(t) the prior its 1×1 candidate keeps and r the
     ``reconstructed_share`` (with ``flat_prior``: L_tilt + L_steps +
     L_lattice,max).  Terminations are taken in the order of B, highest
-    first; each one's cells are built and scored, and the best score so far
-    (1×1 candidates, mixed surfaces and the cells built) rises with them.
+    first; each one's cells are built, and scored when B is above the best
+    score so far (1×1 candidates, mixed surfaces and the cells scored), which
+    rises with them.
     The search stops at the first termination whose B trails that best by
     more than :data:`CONTENTION_MARGIN`: no later cell could come nearer.
     The ranking is the same as with every cell built, up to candidates
@@ -687,8 +688,10 @@ def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSele
             if bound < best - CONTENTION_MARGIN:
                 break
             c = candidates[i]
-            for cell in build(c.hkl, c.termination.id):
-                best = max(best, prior(cell) + _score_one(cell, eff, model).loglik)
+            cells = build(c.hkl, c.termination.id)
+            if bound > best:  # only then can one of these cells raise the best: score them
+                for cell in cells:
+                    best = max(best, prior(cell) + _score_one(cell, eff, model).loglik)
 
     return select
 
