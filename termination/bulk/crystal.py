@@ -9,6 +9,7 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from math import gcd
 from typing import TYPE_CHECKING, cast
 
@@ -91,10 +92,15 @@ class Crystal:
         """(3, 3) metric tensor G = A A^T (Å²)."""
         return self.lattice @ self.lattice.T
 
-    @property
+    @cached_property
     def reciprocal(self) -> FloatArray:
-        """(3, 3) reciprocal lattice rows b_i with a_i . b_j = delta_ij (no 2 pi), 1/Å."""
-        return cast(FloatArray, np.linalg.inv(self.lattice).T)
+        """(3, 3) reciprocal lattice rows b_i with a_i . b_j = delta_ij (no 2 pi), 1/Å.
+
+        Computed once per crystal (every face asks for it) and read-only.
+        """
+        inverse = np.linalg.inv(self.lattice)
+        inverse.flags.writeable = False
+        return cast(FloatArray, inverse.T)
 
     @property
     def volume(self) -> float:

@@ -62,6 +62,8 @@ __all__ = [
     "Candidate",
     "CandidateOptions",
     "CandidateTable",
+    "CellBuilder",
+    "CellSelector",
     "TerminationOptions",
     "candidate_table",
     "fraction_grid",
@@ -175,6 +177,14 @@ class TerminationOptions(TypedDict, total=False):
     max_multiple: int
 
 
+#: Builds the reconstruction-cell candidates of one (hkl, termination id) and returns them (empty when
+#: the termination has no cells to build); a second call for the same termination returns the same cells.
+CellBuilder = Callable[[HKL, str], tuple[Candidate, ...]]
+
+#: ``select_cells(candidates, build)``: calls ``build`` for the terminations whose cells may matter.
+CellSelector = Callable[[tuple[Candidate, ...], CellBuilder], None]
+
+
 class CandidateOptions(TerminationOptions, total=False):
     """The keyword options of :func:`candidate_table` (what ``match`` passes on)."""
 
@@ -186,7 +196,7 @@ class CandidateOptions(TerminationOptions, total=False):
     charges: Mapping[str, float] | None
     max_cell: int
     cells: Iterable[str | CellSpec]
-    select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None
+    select_cells: CellSelector | None
     progress: Callable[[float, str], object] | None
 
 
@@ -336,7 +346,7 @@ def candidate_table(
     charges: Mapping[str, float] | None = None,
     max_cell: int = MAX_CELL,
     cells: Iterable[str | CellSpec] = (),
-    select_cells: Callable[[tuple[Candidate, ...]], Iterable[tuple[HKL, str]]] | None = None,
+    select_cells: CellSelector | None = None,
     progress: Callable[[float, str], object] | None = None,
     **termination_options: Unpack[TerminationOptions],
 ) -> CandidateTable:
@@ -366,11 +376,15 @@ def candidate_table(
     select_cells : callable, optional
         Reconstruction cells are the expensive part.  When given, the
         candidates without cells are built first and
-        ``select_cells(candidates)`` returns the (hkl, termination id) pairs
-        whose cells are worth building (``match`` passes those whose tilt and
-        steps leave them in contention); the others keep the prior share of
-        their cells unspent.  Default: build the cells of every polar
-        termination.
+        ``select_cells(candidates, build)`` calls ``build(hkl, termination_id)``
+        for the polar terminations whose cells are worth building, in the
+        order it likes; ``build`` returns their cell candidates, so that the
+        selector can score them before it decides on the next (``match``
+        builds those whose tilt and steps leave them in contention).  In
+        ``candidates`` the 1×1 candidate of a polar termination already
+        gives up the prior share of its cells (``reconstructed_share``); the
+        cells that are not built keep that share unspent.  Default: build the
+        cells of every polar termination.
     progress : callable, optional
         ``progress(fraction, stage)``: the faces take the first half, the
         reconstruction cells the second (minutes with ``max_index`` and
@@ -492,24 +506,28 @@ def candidate_table(
                         )
                     ]
                 )
-    # Reconstruction cells last: the expensive part, built where they may matter.
-    chosen = None
-    if select_cells is not None and pending:
-        chosen = set(select_cells(tuple(c for group in groups for c in group)))
-    spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
-    for n, (index, ft, t, rotations, polarity, log_single, one) in enumerate(pending):
-        assert polar_info is not None  # only a provider fills pending
-        if progress is not None:
-            face = face_text(ft.face.hkl, crystal.hexagonal_axes)
-            progress(0.5 + 0.5 * n / len(pending), f"cells of {face} {t.label}")
-        share = model.reconstructed_share
-        if chosen is not None and (ft.face.hkl, t.id) not in chosen:
-            spent.append(log_single + math.log(share))
-        else:
+    # Reconstruction cells last: the expensive part, built where they may matter.  A polar
+    # termination's 1×1 candidate gives the share of its cells away whether they are built or not
+    # (it keeps all of it only when the search finds no cell).
+    share = model.reconstructed_share
+    for index, *_ in pending:
+        first = groups[index][0]
+        groups[index][0] = replace(first, log_prior=first.log_prior + math.log1p(-share))
+    by_key = {(entry[1].face.hkl, entry[2].id): entry for entry in pending}
+    built: dict[int, list[Candidate]] = {}
+
+    def build(hkl: HKL, termination_id: str) -> tuple[Candidate, ...]:
+        entry = by_key.get((hkl, termination_id))
+        if entry is None:
+            return ()
+        index, ft, t, rotations, polarity, log_single, one = entry
+        if index not in built:
+            assert polar_info is not None  # only a provider fills pending
+            if progress is not None:
+                stage = f"cells of {face_text(ft.face.hkl, crystal.hexagonal_axes)} {t.label}"
+                progress(0.5 + 0.5 * len(built) / len(pending), stage)
             recon = polar_info.cells(ft, t, rotations, polarity)
-            if not recon:
-                continue
-            groups[index] += [
+            built[index] = [
                 Candidate(
                     cell=cell_name,
                     lattices=(cl,),
@@ -519,10 +537,23 @@ def candidate_table(
                 )
                 for cell_name, (cl, cp) in ((name, _lattice_entry(pats)) for name, pats in recon)
             ]
-        first = groups[index][0]
-        groups[index][0] = replace(first, log_prior=first.log_prior + math.log1p(-share))
+        return tuple(built[index])
+
+    if select_cells is None:
+        for entry in pending:
+            build(entry[1].face.hkl, entry[2].id)
+    elif pending:
+        select_cells(tuple(c for group in groups for c in group), build)
     if progress is not None:
         progress(1.0, f"{len(per_face)} faces")
+    spent = []  # log prior mass of cells that were not built (their share stays out of the 1x1)
+    for index, _, _, _, _, log_single, _ in pending:
+        if index not in built:
+            spent.append(log_single + math.log(share))
+        elif built[index]:
+            groups[index] += built[index]
+        else:  # no cell found: the 1×1 keeps the whole mass
+            groups[index][0] = replace(groups[index][0], log_prior=log_single)
     rows = [c for group in groups for c in group]
     if model.flat_prior:
         rows = [replace(r, log_prior=0.0) for r in rows]

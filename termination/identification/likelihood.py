@@ -69,12 +69,16 @@ from termination.identification.candidates import (
     Candidate,
     CandidateOptions,
     CandidateTable,
+    CellBuilder,
+    CellSelector,
     candidate_table,
     fraction_grid,
     logsumexp,
 )
 from termination.identification.fit import FitCheck, fit_check
 from termination.identification.lattices import (
+    ANGLE_RANGE_DEG,
+    SPACING_RANGE_ANGSTROM,
     angle_log_likelihood,
     lattice_readings,
     log_student,
@@ -624,37 +628,72 @@ def match(
 CONTENTION_MARGIN = 25.0
 
 
-def cells_in_contention(
-    measurement: Measurement, model: MatchModel
-) -> Callable[[Sequence[Candidate]], set[tuple[HKL, str]]]:
-    """A ``select_cells`` function for :func:`candidate_table`: the terminations whose cells may matter.
+def lattice_log_likelihood_max(eff: EffectiveMeasurement, model: MatchModel) -> float:
+    """The largest lattice term any predicted lattice can give the measured spacings and row angle.
 
-    A cell shares its termination's tilt and steps; only its lattice differs,
-    and no lattice can score better than every measured spacing and angle
-    matched exactly.  So a cell of termination t can reach at most
-    log prior(t) + L_tilt(t) + L_steps(t) + L_lattice,max; if that trails the
-    best candidate without cells by more than :data:`CONTENTION_MARGIN`, the
-    cell search of t is skipped.  The ranking is the same as with every cell
-    built, up to candidates e^-25 times less probable than the best.
+    Each spacing and the row angle contributes at most the larger of the
+    Student-t density at zero residual for its measured sigma (a predicted
+    length only widens it: s^2 = s_measured^2 + (model_rel p)^2) and the
+    uniform density of a value no lattice explains; a mixture over lattice
+    readings or periods is at most its largest component.
+    """
+    dof = model.tail_dof
+    spacing_floor = -math.log(SPACING_RANGE_ANGSTROM)
+    angle_floor = -math.log(ANGLE_RANGE_DEG)
+    total = sum(max(float(log_student(0.0, 0.0, s, dof)), spacing_floor) for _, s in eff["spacings"])
+    if eff["row_angle"] is not None:
+        total += max(float(log_student(0.0, 0.0, eff["row_angle"][1], dof)), angle_floor)
+    return float(total)
+
+
+def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSelector:
+    """A ``select_cells`` function for :func:`candidate_table`: builds the cells of terminations in contention.
+
+    A cell shares its termination's tilt and steps; only its lattice and its
+    prior differ.  No lattice scores better than
+    :func:`lattice_log_likelihood_max`, and a cell's prior is at most its
+    termination's share of cells, so every cell of termination t scores at
+    most
+
+        B(t) = log pi(t) - log(1 - r) + log r + L_tilt(t) + L_steps(t) + L_lattice,max
+
+    with pi(t) the prior its 1×1 candidate keeps and r the
+    ``reconstructed_share`` (with ``flat_prior``: L_tilt + L_steps +
+    L_lattice,max).  Terminations are taken in the order of B, highest
+    first; each one's cells are built, and scored when B is above the best
+    score so far (1×1 candidates, mixed surfaces and the cells scored), which
+    rises with them.
+    The search stops at the first termination whose B trails that best by
+    more than :data:`CONTENTION_MARGIN`: no later cell could come nearer.
+    The ranking is the same as with every cell built, up to candidates
+    e^-25 times less probable than the best.
     """
     eff = effective_measurement(measurement, model)
-    dof = model.tail_dof
-    sigmas = [s for _, s in eff["spacings"]] + ([eff["row_angle"][1]] if eff["row_angle"] is not None else [])
-    lattice_max = float(sum(log_student(0.0, 0.0, s, dof) for s in sigmas))
+    lattice_max = lattice_log_likelihood_max(eff, model)
+    r = model.reconstructed_share
+    cell_share = 0.0 if model.flat_prior else math.log(r) - math.log1p(-r)
 
-    def select(candidates: Sequence[Candidate]) -> set[tuple[HKL, str]]:
+    def prior(c: Candidate) -> float:
+        return 0.0 if model.flat_prior else c.log_prior
+
+    def select(candidates: tuple[Candidate, ...], build: CellBuilder) -> None:
         if not candidates:
-            return set()
-        prior = [0.0 if model.flat_prior else c.log_prior for c in candidates]
+            return
         scored = [_score_one(c, eff, model) for c in candidates]
-        best = max(p + sc.loglik for p, sc in zip(prior, scored))
-        out: set[tuple[HKL, str]] = set()
-        for c, p, sc in zip(candidates, prior, scored):
-            if c.cell is None and not c.mixed:
-                bound = p + (sc.terms.tilt or 0.0) + (sc.terms.steps or 0.0) + lattice_max
-                if bound >= best - CONTENTION_MARGIN:
-                    out.add((c.hkl, c.termination.id))
-        return out
+        best = max(prior(c) + sc.loglik for c, sc in zip(candidates, scored))
+        bounds = [
+            (prior(c) + cell_share + (sc.terms.tilt or 0.0) + (sc.terms.steps or 0.0) + lattice_max, i)
+            for i, (c, sc) in enumerate(zip(candidates, scored))
+            if c.cell is None and not c.mixed
+        ]
+        for bound, i in sorted(bounds, key=lambda b: (-b[0], b[1])):
+            if bound < best - CONTENTION_MARGIN:
+                break
+            c = candidates[i]
+            cells = build(c.hkl, c.termination.id)
+            if bound > best:  # only then can one of these cells raise the best: score them
+                for cell in cells:
+                    best = max(best, prior(cell) + _score_one(cell, eff, model).loglik)
 
     return select
 

@@ -563,33 +563,22 @@ def _crossings(
     rest = step - full * d
     z1 = z0 + rest
     per_cell = 1.0 / len(crystal.centring)
-    weights = (
-        np.ones(len(z0)),
-        graph.weight[up].astype(np.float64),
-        graph.unit[up].astype(np.float64),
-    )
+    weights = np.stack([np.ones(len(z0)), graph.weight[up], graph.unit[up]]).astype(np.float64)  # (3, B)
     order = np.argsort(cut_heights, kind="stable")
     sorted_cuts = cut_heights[order]
     n_cuts = len(cut_heights)
-
-    def arc(lo: FloatArray, hi: FloatArray, w: FloatArray) -> FloatArray:
-        """Sum of w over the arcs (lo, hi] (lo < hi, both in [0, 2d)), evaluated at every sorted cut."""
-        total = np.zeros(n_cuts + 1)
-        for shift in (0.0, d):
-            # planes c + shift in (lo, hi]: sorted cuts from a (first c > lo - shift) to b (first c > hi - shift)
-            a = np.searchsorted(sorted_cuts, lo - shift, side="right")
-            b = np.searchsorted(sorted_cuts, hi - shift, side="right")
-            np.add.at(total, a, w)
-            np.add.at(total, b, -w)
-        return np.cumsum(total)[:n_cuts]
-
-    out = []
-    for w in weights:
-        per_sorted = arc(z0, z1, w) + float((full * w).sum())
-        values = np.empty(n_cuts)
-        values[order] = per_sorted
-        out.append(values * per_cell)
-    return out[0], out[1], out[2]
+    # Each bond adds w on the arc (z0, z1] of cut heights; z1 < 2d, so the arc is covered by the cuts
+    # c in (z0, z1] and c + d in (z0, z1].  A +w at the first sorted cut above the lower end and a -w
+    # at the first above the upper end, summed cumulatively, give every cut's total: one set of
+    # indices, one bincount for the three weights (each in its own block of n_cuts + 1 bins).
+    index = np.searchsorted(sorted_cuts, np.concatenate([z0, z1, z0 - d, z1 - d]), side="right")
+    signed = weights[:, None, :] * np.array([1.0, -1.0, 1.0, -1.0])[None, :, None]  # (3, 4, B)
+    blocks = (index[None, :] + (n_cuts + 1) * np.arange(3)[:, None]).ravel()
+    arcs = np.bincount(blocks, weights=signed.ravel(), minlength=3 * (n_cuts + 1)).reshape(3, n_cuts + 1)
+    totals = np.cumsum(arcs, axis=1)[:, :n_cuts] + (full[None, :] * weights).sum(axis=1)[:, None]
+    values = np.empty((3, n_cuts))
+    values[:, order] = totals * per_cell
+    return values[0], values[1], values[2]
 
 
 def _equivalence(
