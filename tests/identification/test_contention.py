@@ -9,8 +9,6 @@ import math
 import numpy as np
 import pytest
 
-from structures.prototypes import orbit
-from termination.bulk.crystal import build_crystal
 from termination.identification.candidates import candidate_table
 from termination.identification.lattices import periodicities
 from termination.identification.likelihood import (
@@ -24,20 +22,6 @@ from termination.identification.likelihood import (
 from termination.identification.measurement import Measurement, Value
 from termination.identification.model import MatchModel
 from termination.surface.corrugation import ApparentLattice
-
-FD3M_ORIGIN_2 = 526  # Hall number of Fd-3m, origin choice 2 (spglib's database)
-
-
-@pytest.fixture(scope="module")
-def spinel():
-    sites = [("Mg", [1 / 8, 1 / 8, 1 / 8]), ("Al", [0.5, 0.5, 0.5]), ("O", [0.262, 0.262, 0.262])]
-    positions, species = [], []
-    for element, point in sites:
-        orb = orbit(FD3M_ORIGIN_2, point)
-        positions.append(orb)
-        species += [element] * len(orb)
-    return build_crystal(np.eye(3) * 8.08, np.vstack(positions), species)
-
 
 #: A (111) terrace seen from a (100) mount (54.7°), 4.67 Å steps (d111 = a/sqrt(3)) and a doubled
 #: hexagonal mesh (2 x 5.71 Å): reconstruction cells lead.  # common practice (spinel geometry)

@@ -6,27 +6,8 @@ The sites are generated with the package's own orbit builder, so no
 prototype table is involved.
 """
 
-import numpy as np
-import pytest
-
-from structures.prototypes import orbit
-from termination.bulk.crystal import build_crystal
 from termination.identification.likelihood import match
 from termination.identification.measurement import Measurement, Value
-
-#: Hall number of Fd-3m, origin choice 2 (spglib's database).  # International Tables Vol. A
-FD3M_ORIGIN_2 = 526
-
-
-@pytest.fixture(scope="module")
-def spinel():
-    sites = [("Mg", [1 / 8, 1 / 8, 1 / 8]), ("Al", [0.5, 0.5, 0.5]), ("O", [0.262, 0.262, 0.262])]
-    positions, species = [], []
-    for element, point in sites:
-        orb = orbit(FD3M_ORIGIN_2, point)
-        positions.append(orb)
-        species += [element] * len(orb)
-    return build_crystal(np.eye(3) * 8.08, np.vstack(positions), species)
 
 
 def _top(report, n=5):

@@ -25,29 +25,15 @@ from termination.imaging.reading import (
 )
 from termination.imaging.terraces import plane_fit
 from termination.testing import reciprocal_shell, synthetic_heightmap
+from tests.imaging.lattice_grid import reduced
 
 SPACING_REL = 0.02  # the issue's tolerances
 STEP_REL = 0.05
 TILT_DEG = 0.3
 
 
-def reduced_lattice(a, b, gamma_deg):
-    """Two shortest vectors of a 2-D lattice and their angle in the obtuse convention, 90-120° (Gauss reduction)."""
-    u = np.array([a, 0.0])
-    v = b * np.array([math.cos(math.radians(gamma_deg)), math.sin(math.radians(gamma_deg))])
-    while True:
-        if u @ u > v @ v:
-            u, v = v, u
-        mu = round(float(u @ v) / float(u @ u))
-        if mu == 0:
-            break
-        v = v - mu * u
-    la, lb = np.linalg.norm(u), np.linalg.norm(v)
-    return la, lb, math.degrees(math.acos(-abs(float(u @ v)) / (la * lb)))
-
-
 def assert_lattice(lat, a, b, gamma):
-    ra, rb, rg = reduced_lattice(a, b, gamma)
+    ra, rb, rg = reduced(a, b, gamma)
     assert lat is not None
     assert abs(lat.a - ra) <= SPACING_REL * ra
     assert abs(lat.b - rb) <= SPACING_REL * rb
