@@ -379,5 +379,141 @@ def test_uncharged_terminations_are_refused(proto):
     from termination.errors import ChargeError
 
     c = proto("rocksalt:Na,Cl")
-    with pytest.raises(ChargeError, match="no charges"):
+    with pytest.raises(
+        ChargeError, match=r"no charges; build the terminations from a crystal with charges \(Crystal\.with_charges\)"
+    ):
         termination_polarity(c, face_terminations(c, (1, 1, 1)), "Na")
+
+
+# Every option changes the result; the notes say why a compensation is missing ---------------------
+
+
+def test_nonpolar_termination_has_no_sites_and_no_note(charged):
+    # Tasker 1979: rock salt (100) is type I, nothing to compensate
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (0, 0, 1))
+    (t,) = polar_face(c, (0, 0, 1)).terminations
+    assert t.id == ft.terminations[0].id
+    assert t.note is None and t.site_kind is None and t.site_label is None
+
+
+def test_rocksalt_111_exact_cells_leave_no_note(charged):
+    # Goniakowski et al. 2008: half of the top layer, realised by (2×1) within index 4
+    t = polarity(charged("rocksalt:Na,Cl"), (1, 1, 1))["Na"]
+    assert t.reconstructions and t.reconstructions[0].exact and t.note is None
+
+
+def test_tolerances_at_the_boundary_count_as_zero(charged):
+    # common practice: a value equal to its tolerance counts as zero (|x| <= tol)
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (1, 1, 1))
+    t = termination_polarity(c, ft, "Na", with_reconstructions=False)
+    # the Na and Cl layers carry exactly +-1 e per cell (formal charges, one ion per cell)
+    neutral = termination_polarity(c, ft, "Na", charge_tol_e=1.0, with_reconstructions=False)
+    assert neutral.tasker_type == "I" and neutral.compensation == 0
+    assert neutral.note == "neutral layers, but their rumpling gives the repeat unit a dipole"
+    # a dipole equal to its tolerance is no dipole: charged layers without one are type II
+    tol = abs(t.dipole_per_area)
+    assert (
+        termination_polarity(c, ft, "Na", dipole_tol_e_per_angstrom=tol, with_reconstructions=False).tasker_type == "II"
+    )
+    quiet = termination_polarity(
+        c, ft, "Na", charge_tol_e=1.0, dipole_tol_e_per_angstrom=tol, with_reconstructions=False
+    )
+    assert quiet.tasker_type == "I" and quiet.note is None
+    # mu / A, not mu * A: a tolerance between the two leaves the type II unit without a note
+    assert ft.face.mesh.area > 2
+    between = termination_polarity(
+        c, ft, "Na", charge_tol_e=1.0, dipole_tol_e_per_angstrom=2 * tol, with_reconstructions=False
+    )
+    assert between.note is None
+
+
+def test_compensation_beyond_the_fraction_tolerance_is_flagged(charged):
+    # Goniakowski et al. 2008: rock salt (111) needs 1/2 of the top layer; with a fraction tolerance
+    # of 1/2 that is "all the sites", which the model cannot support: flagged, no cells offered
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (1, 1, 1))
+    t = termination_polarity(c, ft, "Na", fraction_tol=0.5)
+    assert t.compensation == -0.5 and t.reconstructions == ()
+    assert t.note == "compensation needs 1/2 of the top layer: more than these sites can give"
+
+
+def test_no_reconstruction_search_when_switched_off(charged):
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (1, 1, 1))
+    t = termination_polarity(c, ft, "Na", with_reconstructions=False)
+    assert t.compensation == -0.5 and t.reconstructions == () and t.note is None
+    f = face_polarity(c, ft, with_reconstructions=False)
+    assert all(r.reconstructions == () for r in f.terminations)
+    with pytest.raises(TypeError, match="needs the crystal to search reconstructions"):
+        termination_polarity(None, ft, "Na")
+
+
+def test_tolerances_reach_every_termination(charged):
+    # rock salt (111) with a dipole tolerance above its dipole: type II, not polar
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (1, 1, 1))
+    assert face_is_polar(ft) is True
+    assert face_is_polar(ft, dipole_tol_e_per_angstrom=1.0) is False
+    f = face_polarity(c, ft, dipole_tol_e_per_angstrom=1.0)
+    assert not f.polar and {t.tasker_type for t in f.terminations} == {"II"}
+
+
+def test_compensation_layers_option(charged):
+    # compensation_layers: with one layer only the top Na layer gives the charge; with two the Cl
+    # layer below may too (Goniakowski et al. 2008: rock salt (111), half of the top layer)
+    c = charged("rocksalt:Na,Cl")
+    ft = face_terminations(c, (1, 1, 1))
+    one = termination_polarity(c, ft, "Na", layers=1)
+    two = termination_polarity(c, ft, "Na", layers=2)
+    assert {r.layer_labels for r in one.reconstructions} == {("Na",)}
+    assert ("Na", "Cl") in {r.layer_labels for r in two.reconstructions}
+
+
+def test_nearest_cells_when_none_is_exact(charged):
+    # Goniakowski et al. 2008: the Zn-terminated zinc-blende (111) bilayer needs dq = -1/2 e per cell,
+    # a quarter of its Zn2+ (the 2×2 vacancy cell, index 4).  Up to index 2 the nearest is (2×1), one
+    # Zn of two: 1 e per cell, 0.5 e too many; up to index 3 (√3×√3)R30° and (3×1), one of three:
+    # 2/3 e per cell, 1/6 e too many.  Up to index 1 no cell changes any site.
+    z = charged("zincblende:Zn,S")
+    ft = face_terminations(z, (1, 1, 1))
+    t = termination_polarity(z, ft, "ZnS", max_cell=2)
+    assert t.compensation == -0.25
+    assert [(r.name, r.exact) for r in t.reconstructions] == [("(2×1)", False)]
+    assert t.note == (
+        "no cell up to index 2 realises 1/4 of the top layer exactly; nearest: (2×1) (+0.500 e per cell left); "
+        "the remainder is left to electronic compensation or adsorbates"
+    )
+    t3 = termination_polarity(z, ft, "ZnS", max_cell=3)
+    assert t3.note is not None and t3.note.startswith("no cell up to index 3 realises 1/4")
+    assert "(√3×√3)R30° (+0.167 e per cell left), (3×1) (+0.167 e per cell left);" in t3.note
+    t1 = termination_polarity(z, ft, "ZnS", max_cell=1)
+    assert t1.reconstructions == () and t1.note == "no supercell up to index 1 realises 1/4 of the sites"
+
+
+def test_layer_charges_follow_the_layer_tolerance(charged):
+    # zinc-blende (111): Zn and S planes a quarter of the (111) spacing apart, a sqrt(3)/12 = 0.78 Å
+    # (common practice); a tolerance above that merges the bilayer into one neutral layer
+    from termination.surface.polarity import layer_charges
+
+    z = charged("zincblende:Zn,S")
+    ft = face_terminations(z, (1, 1, 1))
+    ru = ft.repeat_unit("ZnS")
+    split = layer_charges(ru, 0.1)
+    assert [(L.composition, round(L.charge, 9)) for L in split] == [({"Zn": 1}, 2.0), ({"S": 1}, -2.0)]
+    assert split[1].depth == pytest.approx(ft.d / 4)
+    (merged,) = layer_charges(ru, 1.2)
+    assert merged.composition == {"Zn": 1, "S": 1} and merged.charge == 0.0
+    assert merged.depth == pytest.approx(ft.d / 8)
+
+
+@pytest.mark.parametrize(
+    ("f", "text"),
+    [(-0.25, "1/4"), (0.5, "1/2"), (2 / 3, "2/3"), (1 / 24, "1/24"), (0.04, "0.04"), (0.123456, "0.1235")],
+)
+def test_fraction_text(f, text):
+    # the notes write a compensation as a fraction with denominator up to 24, else as a decimal
+    from termination.surface.polarity import _fraction_text
+
+    assert _fraction_text(f) == text
