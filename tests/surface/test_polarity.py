@@ -446,7 +446,7 @@ def test_no_reconstruction_search_when_switched_off(charged):
     assert t.compensation == -0.5 and t.reconstructions == () and t.note is None
     f = face_polarity(c, ft, with_reconstructions=False)
     assert all(r.reconstructions == () for r in f.terminations)
-    with pytest.raises(TypeError, match="needs the crystal to search reconstructions"):
+    with pytest.raises(TypeError, match="^termination_polarity needs the crystal to search reconstructions$"):
         termination_polarity(None, ft, "Na")
 
 
@@ -517,3 +517,52 @@ def test_fraction_text(f, text):
     from termination.surface.polarity import _fraction_text
 
     assert _fraction_text(f) == text
+
+
+def test_nearest_note_lists_three_cells_and_counts_the_rest(charged):
+    # the note names the first three distinct cells and counts the others
+    from termination.surface.polarity import _nearest_note
+
+    z = charged("zincblende:Zn,S")
+    three = termination_polarity(z, face_terminations(z, (1, 1, 1)), "ZnS", max_cell=4).reconstructions
+    assert [r.name for r in three] == ["(2×2)", "(2 0 / 1 2)", "(4×1)"]
+    cells = "(2×2) (+0.000 e per cell left), (2 0 / 1 2) (+0.000 e per cell left), (4×1) (+0.000 e per cell left)"
+    assert _nearest_note(three, -0.25, 4, "top layer") == (
+        f"no cell up to index 4 realises 1/4 of the top layer exactly; nearest: {cells}; "
+        "the remainder is left to electronic compensation or adsorbates"
+    )
+    c = charged("rocksalt:Na,Cl")
+    six = termination_polarity(c, face_terminations(c, (1, 1, 1)), "Na", max_cell=4).reconstructions
+    assert len(six) == 6 and len({r.name for r in six}) == 4  # two cells appear twice
+    note = _nearest_note(six, -0.5, 4, "top layer")
+    assert note.count("e per cell left") == 3 and " and 1 more;" in note
+
+
+def test_antifluorite_111_single_cation_layer_needs_all_of_it(charged):
+    # Tasker 1979: fluorite-type (111) is type II only for the full X-M-X unit; cut inside it
+    # (a single Li layer on top of Li2O, layers +1, +1, -2 e per cell) the unit is polar and needs
+    # the whole top layer removed, which leaves the type II unit: flagged, not offered as a cell
+    c = charged("antifluorite:Li,O")
+    ft = face_terminations(c, (1, 1, 1))
+    t = termination_polarity(c, ft, "Li'", max_cell=2)
+    assert [round(L.charge, 9) for L in t.layers] == [1.0, 1.0, -2.0]
+    assert t.tasker_type == "III" and t.compensation == -1.0 and t.reconstructions == ()
+    assert t.note == "compensation needs 1/1 of the top layer: more than these sites can give"
+    # a charge tolerance equal to the top layer's charge makes it neutral (common practice: |x| <= tol
+    # is zero) while the O layer stays charged: the compensation must come from deeper
+    deep = termination_polarity(c, ft, "Li'", max_cell=2, charge_tol_e=1.0)
+    assert deep.tasker_type == "III" and deep.compensation is None and deep.reconstructions == ()
+    assert deep.note == "the top unit and top layer are neutral: the compensation must come from deeper layers"
+
+
+def test_positive_compensation_adds_top_layer_sites_only(charged):
+    # corundum (1 1 -2 0) with an O2 top layer: dq / Q > 0, sites to add (Goniakowski et al. 2008,
+    # the layer-stack condition sigma_top' = sigma_top + dq); an added site belongs to the top layer,
+    # never to the Al layer below (common practice: adatoms continue the bulk stacking)
+    c = charged("corundum:Al,O")
+    ft = face_terminations(c, (1, 1, 0))
+    t = termination_polarity(c, ft, "O2", max_cell=2)
+    assert t.tasker_type == "III" and t.site_label == "O"
+    assert t.compensation == pytest.approx(t.compensating_charge / -4.0) and t.compensation > 0
+    assert t.reconstructions and t.note is None
+    assert {(r.mode, r.layer_labels) for r in t.reconstructions} == {("add", ("O",))}
