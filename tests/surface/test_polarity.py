@@ -440,6 +440,7 @@ def test_compensation_beyond_the_fraction_tolerance_is_flagged(charged):
 
 
 def test_no_reconstruction_search_when_switched_off(charged):
+    # Goniakowski et al. 2008: rock salt (111) needs half of the top layer, whether or not cells are searched
     c = charged("rocksalt:Na,Cl")
     ft = face_terminations(c, (1, 1, 1))
     t = termination_polarity(c, ft, "Na", with_reconstructions=False)
@@ -451,7 +452,8 @@ def test_no_reconstruction_search_when_switched_off(charged):
 
 
 def test_tolerances_reach_every_termination(charged):
-    # rock salt (111) with a dipole tolerance above its dipole: type II, not polar
+    # Tasker 1979: rock salt (111) is type III; with a dipole tolerance above its dipole (0.12 e/Å) the
+    # charged layers are read as type II, and the face is no longer polar
     c = charged("rocksalt:Na,Cl")
     ft = face_terminations(c, (1, 1, 1))
     assert face_is_polar(ft) is True
@@ -513,7 +515,8 @@ def test_layer_charges_follow_the_layer_tolerance(charged):
     [(-0.25, "1/4"), (0.5, "1/2"), (2 / 3, "2/3"), (1 / 24, "1/24"), (0.04, "0.04"), (0.123456, "0.1235")],
 )
 def test_fraction_text(f, text):
-    # the notes write a compensation as a fraction with denominator up to 24, else as a decimal
+    # the notes write a compensation as a fraction with denominator up to 24, else with 4 significant
+    # digits (common practice); 1/25 = 0.04 is beyond the denominator limit
     from termination.surface.polarity import _fraction_text
 
     assert _fraction_text(f) == text
