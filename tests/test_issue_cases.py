@@ -388,7 +388,7 @@ def test_polarity_at_the_largest_indices_can_be_interrupted():
         assert proc.stdout.readline().strip() == "ready"
         time.sleep(1.5)
         proc.send_signal(signal.SIGINT)
-        _, err = proc.communicate(timeout=30)
+        _, err = proc.communicate(timeout=120)
     finally:
         proc.kill()
     assert proc.returncode == 130, err
