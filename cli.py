@@ -310,6 +310,13 @@ def _first_line(exc: BaseException) -> str:
     return text.splitlines()[0] if text else type(exc).__name__
 
 
+def _unexpected(exc: BaseException) -> str:
+    """The one-line text of an exception no check foresaw: its type, its first line, how to see the trace."""
+    text = str(exc).strip()
+    detail = f"{type(exc).__name__}: {text.splitlines()[0]}" if text else type(exc).__name__
+    return f"unexpected {detail} (rerun with --traceback)"
+
+
 def _subject(kwargs: dict[str, Any]) -> str:
     """The input a command was given (structure, image file, paths, --demo), for the one-line error."""
     if kwargs.get("demo"):
@@ -363,10 +370,7 @@ def one_line_errors(command: str) -> Callable[[F], F]:
                 _INTERRUPTED.append(True)
                 raise typer.Exit(code=130) from None
             except Exception as exc:  # a bug or an input the checks missed: still one line
-                what = type(exc).__name__
-                text = str(exc).strip()
-                detail = f"{what}: {text.splitlines()[0]}" if text else what
-                _fail(f"{command}{_subject(kwargs)}: unexpected {detail} (rerun with --traceback)")
+                _fail(f"{command}{_subject(kwargs)}: {_unexpected(exc)}")
             finally:
                 logging.disable(logging.NOTSET)
 
@@ -721,7 +725,7 @@ def polarity(
     crystal = _load(structure, a, x, symprec, c)
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     # Up to minutes with --max-index 12 --max-cell 12: a progress bar on a terminal; Ctrl-C stops it.
-    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+    with _progress_bar() as progress:
         report = polarity_report(
             crystal,
             plane=_face(plane, crystal, "--plane"),
@@ -984,7 +988,7 @@ def match(
     if image_file is not None:
         from termination.reports import image_measurement
 
-        with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+        with _progress_bar() as progress:
             from_image, measured_lines = image_measurement(
                 image_file, pixel_size=pixel_size, z_unit=z_unit, channel=channel, progress=progress
             )
@@ -996,7 +1000,7 @@ def match(
     rules = _termination_rules(layer_tol, bond_factor, bond_cutoff, unit_ratio)
     rules.pop("max_multiple")
     # Minutes with --max-index 12 --max-cell 12: a progress bar on a terminal; Ctrl-C stops it.
-    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+    with _progress_bar() as progress:
         report = run_match(
             crystal,
             merged,
@@ -1029,9 +1033,12 @@ def match(
 
 
 def _progress_bar() -> Any:
-    """A progress bar on stderr (large images, long polarity runs): a context manager yielding an update function."""
-    import contextlib
+    """A progress bar on stderr (large images, long polarity runs): a context manager yielding an update function.
 
+    It yields None (no progress reported) when stderr is not a terminal.
+    """
+    if not sys.stderr.isatty():
+        return contextlib.nullcontext(None)
     from rich.console import Console
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
@@ -1142,7 +1149,7 @@ def image(
     outputs = _Outputs("image", locals(), plot, plot_format, force, report_file, inputs=(file,))
 
     # A progress bar only where someone watches: a terminal, and a map of a megapixel or more.
-    with _progress_bar() if sys.stderr.isatty() else contextlib.nullcontext(None) as progress:
+    with _progress_bar() as progress:
         report = image_report(
             file,
             pixel_size=pixel_size,
@@ -1168,8 +1175,6 @@ def image(
 
 def _screen_progress() -> Any:
     """A rich progress bar on stderr for a screen: structures done, rate and time left."""
-    import contextlib
-
     from rich.console import Console
     from rich.progress import (
         BarColumn,
@@ -1302,8 +1307,6 @@ def screen(
     wide: Wide = False,
 ) -> None:
     """Screen many structures: cleavage rank, terminations, steps, Tasker types and best cells per face."""
-    import contextlib
-
     from termination.screening import screen as run_screen
 
     executor, n, closer = _executor(workers, scheduler)
@@ -1470,11 +1473,7 @@ def main(argv: list[str] | None = None) -> None:
         if hasattr(exc, "format_message"):
             typer.echo(f"termination: error: {exc.format_message()}", err=True)
         else:
-            typer.echo(
-                f"termination: error: {args[0]}: unexpected {type(exc).__name__}: {_first_line(exc)} "
-                "(rerun with --traceback)",
-                err=True,
-            )
+            typer.echo(f"termination: error: {args[0]}: {_unexpected(exc)}", err=True)
         sys.exit(2)
     finally:
         _ARGV.reset(typed)
