@@ -870,14 +870,13 @@ def _supercell_sites(
     C, Z, sp = _check_changes(changed_inplane, changed_depth, mode, changed_species)
     extra_species: list[str] = [] if sp is None else sp
     v.check(tuple(face_terminations.atoms.species) + tuple(extra_species))
-    species, inplane, depth, mesh, amplitudes = _surface_sites(face_terminations, key, v, crystal)
+    _, inplane, depth, mesh, amplitudes = _surface_sites(face_terminations, key, v, crystal)
     tol = v.site_tol_angstrom
     super_cell = M.astype(float) @ mesh
     T = coset_representatives(row_basis(M)).astype(float) @ mesh
     pos = (inplane[None, :, :] + T[:, None, :]).reshape(-1, 2)
     dep = np.tile(depth, len(T))
     amp = np.tile(amplitudes, len(T))
-    spc = tuple(species) * len(T)
     deepest = float(depth.max()) + tol
     if mode == "remove":
         hit = _matches(pos, dep, C, Z, super_cell, tol)
@@ -889,7 +888,6 @@ def _supercell_sites(
                 )
         keep = cast(BoolArray, ~hit.any(axis=0))
         pos, dep, amp = pos[keep], dep[keep], amp[keep]
-        spc = tuple(s for s, k in zip(spc, keep) if k)
     else:
         hit = _matches(pos, dep, C, Z, super_cell, tol)
         for k in range(len(Z)):
@@ -912,7 +910,6 @@ def _supercell_sites(
         added = tuple(s for s, k in zip(add_species, inside) if k)
         amp = np.concatenate([amp, v.amplitudes(added, Z[inside])])
         dep = np.concatenate([dep, Z[inside]])
-        spc = spc + added
     if len(dep) == 0:
         raise StructureError(f"the supercell {M.tolist()} of termination {key!r} has no atoms left")
     return pos, amp, super_cell, mesh
