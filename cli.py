@@ -330,8 +330,8 @@ def _subject(kwargs: dict[str, Any]) -> str:
     return ""
 
 
-#: Set when a command has reported its own interruption, so that ``main`` does not add a second line.
-_INTERRUPTED: list[bool] = []
+#: True once a command has reported its own interruption, so that ``main`` does not add a second line.
+_INTERRUPTED: contextvars.ContextVar[bool] = contextvars.ContextVar("interrupted", default=False)
 
 
 def one_line_errors(command: str) -> Callable[[F], F]:
@@ -367,7 +367,7 @@ def one_line_errors(command: str) -> Callable[[F], F]:
                 _fail(_first_line(exc))
             except KeyboardInterrupt:
                 typer.echo(f"termination {command}: interrupted", err=True)
-                _INTERRUPTED.append(True)
+                _INTERRUPTED.set(True)
                 raise typer.Exit(code=130) from None
             except Exception as exc:  # a bug or an input the checks missed: still one line
                 _fail(f"{command}{_subject(kwargs)}: {_unexpected(exc)}")
@@ -1459,7 +1459,7 @@ def main(argv: list[str] | None = None) -> None:
     typed = _ARGV.set(tuple(args))  # the command line as given, for reports; forgotten when it ends
     if not args:
         args = ["--help"]
-    _INTERRUPTED.clear()
+    interrupted = _INTERRUPTED.set(False)
     try:
         command = typer.main.get_command(app)
         code = command.main(args=args, prog_name="termination", standalone_mode=False)
@@ -1478,7 +1478,9 @@ def main(argv: list[str] | None = None) -> None:
     finally:
         _ARGV.reset(typed)
         _TRACEBACK.reset(traceback)
-    if code == 130 and not _INTERRUPTED:  # Ctrl-C while the options were parsed
+        reported = _INTERRUPTED.get()  # the command printed its own "interrupted" line
+        _INTERRUPTED.reset(interrupted)
+    if code == 130 and not reported:  # Ctrl-C while the options were parsed
         typer.echo("termination: interrupted", err=True)
     sys.exit(code if isinstance(code, int) else 0)
 
