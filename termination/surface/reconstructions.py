@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import lru_cache
-from itertools import combinations
+from itertools import chain, combinations
 from math import comb, prod
 from typing import Literal, NamedTuple, SupportsInt
 
@@ -413,8 +413,7 @@ def _subsets_touching_first_cell(n: int, k: int, g: int) -> IntArray:
     """(m, k) k-subsets of range(n), as sorted rows, whose smallest element is < g (cached, read-only)."""
     blocks: list[IntArray] = []
     for first in range(min(g, n - k + 1)):
-        combos = list(combinations(range(first + 1, n), k - 1))
-        rest = np.array(combos, dtype=np.int64).reshape(len(combos), k - 1)
+        rest = _all_subsets(n - first - 1, k - 1) + (first + 1)
         blocks.append(np.hstack([np.full((len(rest), 1), first, dtype=np.int64), rest]))
     out = np.vstack(blocks) if blocks else np.zeros((0, k), dtype=np.int64)
     out.flags.writeable = False
@@ -423,8 +422,9 @@ def _subsets_touching_first_cell(n: int, k: int, g: int) -> IntArray:
 
 def _all_subsets(n: int, k: int) -> IntArray:
     """(C(n, k), k) every k-subset of range(n) as sorted rows."""
-    combos = list(combinations(range(n), k))
-    return np.array(combos, dtype=np.int64).reshape(len(combos), k)
+    count = comb(n, k)
+    flat = np.fromiter(chain.from_iterable(combinations(range(n), k)), dtype=np.int64, count=count * k)
+    return flat.reshape(count, k)
 
 
 def rank_occupations(
@@ -501,23 +501,24 @@ def rank_occupations(
     combos = parts[0]
     for block in parts[1:]:
         combos = np.hstack([np.repeat(combos, len(block), axis=0), np.tile(block, (len(combos), 1))])
+    # Subsets as 0/1 rows of an (m, n) indicator matrix: the translates' bit masks and the energies
+    # are then matrix products (one BLAS call for the quadratic form, not m k^2 gathers).
+    indicator = np.zeros((len(combos), n), dtype=np.int64)
+    np.put_along_axis(indicator, combos, 1, axis=1)
     bits = np.left_shift(np.int64(1), np.arange(n, dtype=np.int64))
-    masks = np.stack([bits[perm][combos].sum(axis=1) for perm in perms])  # (D, m): every translate's bits
+    masks = (indicator @ bits[perms].T).T  # (D, m): every translate's bits
     primitive = np.all(masks[1:] != masks[0][None, :], axis=0)
-    combos, masks = combos[primitive], masks[:, primitive]
+    combos, masks, indicator = combos[primitive], masks[:, primitive], indicator[primitive]
     if not len(combos):
         return None
     _, first = np.unique(masks.min(axis=0), return_index=True)
-    combos = combos[np.sort(first)]
+    first.sort()
+    combos = combos[first]
+    x = indicator[first].astype(float)
     d = np.asarray(delta, dtype=float)
     weighted = 0.5 * d[:, None] * d[None, :] * phi
     linear = np.zeros(n) if site_energy is None else np.asarray(site_energy, dtype=float)
-    k = combos.shape[1]
-    energy = np.empty(len(combos))
-    chunk = max(1, 2_000_000 // (k * k))
-    for s in range(0, len(combos), chunk):
-        c = combos[s : s + chunk]
-        energy[s : s + chunk] = weighted[c[:, :, None], c[:, None, :]].sum(axis=(1, 2)) + linear[c].sum(axis=1)
+    energy = np.einsum("ij,ij->i", x @ weighted, x) + x @ linear
     energy *= COULOMB_EV_ANGSTROM
     order = np.lexsort((np.arange(len(combos)), np.round(energy, 9)))
     return PatternRanking(combos[order], energy[order], len(combos), total)
