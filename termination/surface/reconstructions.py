@@ -750,18 +750,26 @@ class _Split:
     realised: float
 
 
-def _splits(det: int, groups: tuple[CompensationSites, ...], q: tuple[float, ...], sign: float) -> list[_Split]:
-    """Every (k_1, k_2) with 0 <= k_i < n_i, not all zero, with the charge per 1×1 cell it realises."""
+def _splits(
+    det: int, groups: tuple[CompensationSites, ...], q: tuple[float, ...], sign: float, top_changes: bool
+) -> tuple[IntArray, FloatArray]:
+    """Every (k_1, k_2) with 0 <= k_i < n_i, not all zero, and the charge per 1×1 cell each realises.
+
+    With ``top_changes`` the top group's count must not be zero either.
+    Returns the (N, L) counts in lexicographic order and the (N,) charges.
+    """
     sizes = [det * len(g.inplane) for g in groups]
-    out = []
-    ranges = [range(s) for s in sizes]
-    grid = np.array(np.meshgrid(*ranges, indexing="ij")).reshape(len(sizes), -1).T
-    for counts in grid:
-        if not counts.any():
-            continue
-        realised = sign * float(np.dot(counts, q)) / det
-        out.append(_Split(tuple(int(c) for c in counts), realised))
-    return out
+    grid = np.stack(np.meshgrid(*[np.arange(s) for s in sizes], indexing="ij"), axis=-1).reshape(-1, len(sizes))
+    keep = grid.any(axis=1)
+    if top_changes:
+        keep &= grid[:, 0] != 0
+    grid = grid[keep].astype(np.int64)
+    realised = sign * (grid @ np.asarray(q, dtype=float)) / det
+    return grid, realised
+
+
+def _split_list(counts: IntArray, realised: FloatArray) -> list[_Split]:
+    return [_Split(tuple(int(c) for c in row), float(r)) for row, r in zip(counts, realised)]
 
 
 def _slab(ft: FaceTerminations, key: str, periods: int, dq: float) -> tuple[FloatArray, FloatArray]:
@@ -873,16 +881,18 @@ def _reconstructions(
     classes = supercell_classes(max_cell, termination_operations(crystal, ft.face))
     rotations = face_point_group(crystal, ft.face)
     per_class = [(members, int(members[0][0, 0] * members[0][1, 1])) for members in classes]
-    candidates: list[tuple[int, _Split]] = []
-    for ci, (_, det) in enumerate(per_class):
-        for sp in _splits(det, groups, q_mean, sign):
-            if len(groups) > 1 and sp.counts[0] == 0 and mode == "remove":
-                continue  # the top layer stays whole: that compensation belongs to the layer below
-            candidates.append((ci, sp))
-    exact = [(ci, sp) for ci, sp in candidates if abs(sp.realised - dq) * per_class[ci][1] <= tol_e]
+    # With two layers, a split that leaves the top layer whole belongs to the layer below: not listed.
+    top_changes = len(groups) > 1 and mode == "remove"
+    splits = [_splits(det, groups, q_mean, sign, top_changes) for _, det in per_class]
+    exact = [
+        (ci, sp)
+        for ci, ((counts, realised), (_, det)) in enumerate(zip(splits, per_class))
+        for sp in _split_list(*(a[np.abs(realised - dq) * det <= tol_e] for a in (counts, realised)))
+    ]
     if exact or not nearest:
         chosen = exact
     else:
+        candidates = [(ci, sp) for ci, (counts, realised) in enumerate(splits) for sp in _split_list(counts, realised)]
         chosen = _nearest(candidates, dq, tol_e, [det for _, det in per_class])
     out = []
     cache: dict[int, tuple[IntArray, FloatArray, FloatArray, FloatArray, IntArray]] = {}
