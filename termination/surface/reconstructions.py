@@ -884,11 +884,10 @@ def _reconstructions(
     # With two layers, a split that leaves the top layer whole belongs to the layer below: not listed.
     top_changes = len(groups) > 1 and mode == "remove"
     splits = [_splits(det, groups, q_mean, sign, top_changes) for _, det in per_class]
-    exact = [
-        (ci, sp)
-        for ci, ((counts, realised), (_, det)) in enumerate(zip(splits, per_class))
-        for sp in _split_list(*(a[np.abs(realised - dq) * det <= tol_e] for a in (counts, realised)))
-    ]
+    exact: list[tuple[int, _Split]] = []
+    for ci, ((counts, realised), (_, det)) in enumerate(zip(splits, per_class)):
+        hit = np.abs(realised - dq) * det <= tol_e
+        exact += [(ci, sp) for sp in _split_list(counts[hit], realised[hit])]
     if exact or not nearest:
         chosen = exact
     else:
