@@ -7,7 +7,11 @@ Wall time (median of ``--repeats`` fresh interpreters) of
 - ``termination planes NaCl.vasp --max-index 1`` (a POSCAR file),
 - ``termination match --demo``,
 
-and each command's ratio to the baseline (target: within 3x).  A run with
+and each command's ratio to the baseline (targets, issue 19: ``planes`` within 3x,
+``match --demo`` within 2.5x).  Every command runs once untimed first, with
+bytecode caching on (``PYTHONDONTWRITEBYTECODE`` is removed from the
+children's environment), so that the timed runs read compiled modules as an
+installed package does instead of compiling the sources each time.  A run with
 ``python -X importtime`` lists which of pymatgen, ase, scipy and matplotlib
 each command imports, and the module that pulled each one in; none of them
 belongs on these paths.
@@ -27,7 +31,11 @@ import time
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 CLI = [sys.executable, "-m", "termination.cli"]
 HEAVY = ("pymatgen", "ase", "scipy", "matplotlib")
+#: Ratio targets per command label (issue 19).
+TARGETS = {"match --demo": 2.5}
 TARGET_RATIO = 3.0
+#: The children's environment: bytecode caching on, as for an installed package.
+ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
 
 BASELINE = ("import numpy, spglib", [sys.executable, "-c", "import numpy, spglib"])
 # A POSCAR of rock salt, read by the package's own reader (no ASE, no scipy).
@@ -41,13 +49,15 @@ COMMANDS = [
 
 def run_once(argv):
     t0 = time.perf_counter()
-    subprocess.run(argv, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True)
+    subprocess.run(argv, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True, env=ENV)
     return time.perf_counter() - t0
 
 
 def wall_times(commands, repeats):
     """Median wall time per command; the commands take turns so load drifts hit all alike."""
     times = [[] for _ in commands]
+    for argv in commands:  # untimed: writes the bytecode caches
+        run_once(argv)
     for _ in range(repeats):
         for k, argv in enumerate(commands):
             times[k].append(run_once(argv))
@@ -59,6 +69,7 @@ def heavy_imports(argv):
     proc = subprocess.run(
         [argv[0], "-X", "importtime", *argv[1:]],
         cwd=ROOT,
+        env=ENV,
         stdout=subprocess.DEVNULL,
         stderr=subprocess.PIPE,
         text=True,
@@ -92,14 +103,15 @@ def main(argv=None):
     print(f"median of {args.repeats} fresh interpreters each, taking turns; {sys.executable}")
     print(f"{'command':<46} {'wall (s)':>9} {'ratio':>7}  heavy imports")
     print(f"{BASELINE[0]:<46} {base:9.3f} {1.0:6.2f}x")
-    worst = 0.0
+    missed = []
     for (label, cmd), t in zip(commands, medians):
         found = heavy_imports(cmd)
         text = ", ".join(f"{k} (via {v})" for k, v in sorted(found.items())) or "none"
-        worst = max(worst, t / base)
-        print(f"{'termination ' + label:<46} {t:9.3f} {t / base:6.2f}x  {text}", flush=True)
-    verdict = "met" if worst <= TARGET_RATIO else "NOT met"
-    print(f"worst ratio: {worst:.2f}x (target {TARGET_RATIO:g}x: {verdict})")
+        target = TARGETS.get(label, TARGET_RATIO)
+        if t / base > target:
+            missed.append(f"{label} {t / base:.2f}x > {target:g}x")
+        print(f"{'termination ' + label:<46} {t:9.3f} {t / base:6.2f}x  (target {target:g}x)  {text}", flush=True)
+    print("targets: " + ("all met" if not missed else "NOT met: " + "; ".join(missed)))
 
 
 if __name__ == "__main__":
