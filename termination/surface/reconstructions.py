@@ -33,7 +33,7 @@ from termination.algebra.lattice2d import (
     translation_permutations,
     wood_notation,
 )
-from termination.arrays import FloatArray, IntArray
+from termination.arrays import BoolArray, FloatArray, IntArray
 from termination.bulk.crystal import Crystal
 from termination.bulk.elements import composition_label, count_species
 from termination.defaults import (
@@ -67,6 +67,7 @@ __all__ = [
     "Reconstruction",
     "SiteChoice",
     "SiteKind",
+    "best_occupation",
     "check_max_cell",
     "compensation_layers",
     "compensation_sites",
@@ -409,15 +410,30 @@ class PatternRanking:
 
 
 @lru_cache(maxsize=64)
-def _subsets_touching_first_cell(n: int, k: int, g: int) -> IntArray:
-    """(m, k) k-subsets of range(n), as sorted rows, whose smallest element is < g (cached, read-only)."""
+def _subsets_touching_first_cell(n: int, k: int, g: int) -> tuple[IntArray, BoolArray]:
+    """k-subsets of range(n) whose smallest element is < g: (m, k) sorted rows and their (m, n) indicator rows.
+
+    Cached; both arrays are read-only.
+    """
     blocks: list[IntArray] = []
     for first in range(min(g, n - k + 1)):
         rest = _all_subsets(n - first - 1, k - 1) + (first + 1)
         blocks.append(np.hstack([np.full((len(rest), 1), first, dtype=np.int64), rest]))
-    out = np.vstack(blocks) if blocks else np.zeros((0, k), dtype=np.int64)
-    out.flags.writeable = False
-    return out
+    return _with_indicator(np.vstack(blocks) if blocks else np.zeros((0, k), dtype=np.int64), n)
+
+
+@lru_cache(maxsize=64)
+def _all_subsets_indicated(n: int, k: int) -> tuple[IntArray, BoolArray]:
+    """Every k-subset of range(n): (C(n, k), k) sorted rows and their indicator rows (cached, read-only)."""
+    return _with_indicator(_all_subsets(n, k), n)
+
+
+def _with_indicator(combos: IntArray, n: int) -> tuple[IntArray, BoolArray]:
+    indicator = np.zeros((len(combos), n), dtype=bool)
+    indicator[np.arange(len(combos))[:, None], combos] = True
+    combos.flags.writeable = False
+    indicator.flags.writeable = False
+    return combos, indicator
 
 
 def _all_subsets(n: int, k: int) -> IntArray:
@@ -425,6 +441,144 @@ def _all_subsets(n: int, k: int) -> IntArray:
     count = comb(n, k)
     flat = np.fromiter(chain.from_iterable(combinations(range(n), k)), dtype=np.int64, count=count * k)
     return flat.reshape(count, k)
+
+
+def _occupation_subsets(
+    sizes: tuple[int, ...], ks: tuple[int, ...], det: int, max_patterns: int
+) -> tuple[IntArray, BoolArray] | None:
+    """The subsets :func:`rank_occupations` examines: (m, k) site rows and (m, n) indicator rows.
+
+    The changed sites of each group, the first changing group's touching the
+    first 1×1 cell, in lexicographic order; None when there would be more
+    than ``max_patterns``.
+    """
+    n = sum(sizes)
+    lead = next(i for i, k in enumerate(ks) if k)
+    n_lead, k_lead = sizes[lead], ks[lead]
+    examined = sum(comb(n_lead - 1 - f, k_lead - 1) for f in range(min(n_lead // det, n_lead - k_lead + 1)))
+    examined *= prod(comb(s, k) for i, (s, k) in enumerate(zip(sizes, ks)) if i != lead)
+    if examined > max_patterns:
+        return None
+    combos = np.zeros((1, 0), dtype=np.int64)
+    indicator = np.zeros((1, 0), dtype=bool)
+    offset = 0
+    for i, (s, k) in enumerate(zip(sizes, ks)):
+        if k == 0:
+            indicator = np.hstack([indicator, np.zeros((len(indicator), s), dtype=bool)])
+        else:
+            block, block_ind = (
+                _subsets_touching_first_cell(s, k, s // det) if i == lead else _all_subsets_indicated(s, k)
+            )
+            m = len(combos)
+            combos = np.hstack([np.repeat(combos, len(block), axis=0), np.tile(block + offset, (m, 1))])
+            indicator = np.hstack([np.repeat(indicator, len(block), axis=0), np.tile(block_ind, (m, 1))])
+        offset += s
+    assert indicator.shape[1] == n
+    return combos, indicator
+
+
+def _occupation_energies(
+    indicator: BoolArray, phi: FloatArray, delta: ArrayLike, site_energy: ArrayLike | None
+) -> FloatArray:
+    """Energy (eV) of each subset: sum_c site_energy_c + (1/2) sum_{a,b} delta_a delta_b Phi_ab, as one BLAS product."""
+    x = indicator.astype(float)
+    d = np.asarray(delta, dtype=float)
+    weighted = 0.5 * d[:, None] * d[None, :] * phi
+    linear = np.zeros(len(d)) if site_energy is None else np.asarray(site_energy, dtype=float)
+    energy: FloatArray = np.einsum("ij,ij->i", x @ weighted, x) + x @ linear
+    return energy * COULOMB_EV_ANGSTROM
+
+
+def _translate_masks(indicator: BoolArray, perms: IntArray) -> IntArray:
+    """(D, m) int64 bit masks of the m subsets moved by each of the D translations (site j goes to perm[j])."""
+    bits = np.left_shift(np.int64(1), np.arange(indicator.shape[1], dtype=np.int64))
+    masks: IntArray = (indicator.astype(np.int64) @ bits[perms].T).T
+    return masks
+
+
+def _primitive_subsets(perms: IntArray, sizes: tuple[int, ...], ks: tuple[int, ...]) -> int:
+    """How many subsets (k_i sites of group i) no translation but the identity maps onto themselves.
+
+    The D translations act freely on the sites of each group, so the subsets
+    a subgroup H fixes are unions of its orbits: prod_i C(s_i/|H|, k_i/|H|)
+    when |H| divides every k_i, else none.  Möbius inversion over the
+    subgroup lattice (every subgroup of the abelian translation group is
+    generated by at most two elements) leaves those fixed by the identity
+    alone: sum_H mu(1, H) Fix(H).
+    """
+    det = len(perms)
+    index = {tuple(int(v) for v in p): i for i, p in enumerate(perms)}
+    product = [[index[tuple(int(v) for v in perms[j][perms[i]])] for j in range(det)] for i in range(det)]
+
+    def closure(generators: tuple[int, ...]) -> frozenset[int]:
+        elements, frontier = {0}, [0]
+        while frontier:
+            x = frontier.pop()
+            for gen in generators:
+                y = product[x][gen]
+                if y not in elements:
+                    elements.add(y)
+                    frontier.append(y)
+        return frozenset(elements)
+
+    subgroups = sorted({closure((a, b)) for a in range(det) for b in range(a, det)}, key=lambda h: (len(h), sorted(h)))
+    mu: dict[frozenset[int], int] = {}
+    count = 0
+    for h in subgroups:
+        mu[h] = 1 if len(h) == 1 else -sum(m for k, m in mu.items() if k < h)
+        order = len(h)
+        if mu[h] and all(k % order == 0 for k in ks):
+            count += mu[h] * prod(comb(s // order, k // order) for s, k in zip(sizes, ks))
+    return count
+
+
+def best_occupation(
+    pair_matrix: ArrayLike,
+    group_sizes: tuple[int, ...],
+    counts: tuple[int, ...],
+    permutations: ArrayLike,
+    delta: ArrayLike,
+    site_energy: ArrayLike | None = None,
+    max_patterns: int = MAX_PATTERNS,
+) -> PatternRanking | None:
+    """The first pattern of :func:`rank_occupations` (same arguments), its energy, and the counts.
+
+    Returns a :class:`PatternRanking` that holds only the best pattern and
+    its energy, with the same ``distinct`` and ``total``; None where
+    :func:`rank_occupations` returns None.  The classes are counted, not
+    listed (:func:`_primitive_subsets`), and the energy is computed for every
+    examined subset instead of one per class; the best is the first subset in
+    the examined order with the lowest energy (rounded to 1e-9 eV) that has
+    the full period, which is the pattern :func:`rank_occupations` puts
+    first.
+    """
+    phi = np.asarray(pair_matrix, dtype=float)
+    sizes = tuple(int(s) for s in group_sizes)
+    ks = tuple(int(k) for k in counts)
+    perms = np.asarray(permutations, dtype=np.int64)
+    n = sum(sizes)
+    if n > 62 or not all(0 <= k < s for k, s in zip(ks, sizes)) or not any(ks):
+        return None
+    subsets = _occupation_subsets(sizes, ks, len(perms), max_patterns)
+    if subsets is None:
+        return None
+    distinct, rest = divmod(_primitive_subsets(perms, sizes, ks), len(perms))
+    assert rest == 0, "a free action has orbits of size D"
+    if distinct == 0:
+        return None
+    combos, indicator = subsets
+    energy = _occupation_energies(indicator, phi, delta, site_energy)
+    rounded = np.round(energy, 9)
+    while True:  # lowest energy first; among equal ones, the first with the full period
+        tied = np.flatnonzero(rounded == rounded.min())
+        masks = _translate_masks(indicator[tied], perms)
+        primitive = np.flatnonzero(np.all(masks[1:] != masks[0][None, :], axis=0))
+        if len(primitive):
+            best = int(tied[primitive[0]])
+            break
+        rounded[tied] = np.inf
+    total = prod(comb(s, k) for s, k in zip(sizes, ks))
+    return PatternRanking(combos[best][None, :].copy(), energy[best : best + 1].copy(), distinct, total)
 
 
 def rank_occupations(
@@ -484,29 +638,12 @@ def rank_occupations(
     det = len(perms)
     if n > 62 or not all(0 <= k < s for k, s in zip(ks, sizes)) or not any(ks):  # subsets are int64 bit masks
         return None
-    offsets = np.concatenate([[0], np.cumsum(sizes)[:-1]]).astype(np.int64)
-    lead = next(i for i, k in enumerate(ks) if k)
     total = prod(comb(s, k) for s, k in zip(sizes, ks))
-    n_lead, k_lead = sizes[lead], ks[lead]
-    examined = sum(comb(n_lead - 1 - f, k_lead - 1) for f in range(min(n_lead // det, n_lead - k_lead + 1)))
-    examined *= prod(comb(s, k) for i, (s, k) in enumerate(zip(sizes, ks)) if i != lead)
-    if examined > max_patterns:
+    subsets = _occupation_subsets(sizes, ks, det, max_patterns)
+    if subsets is None:
         return None
-    parts = []
-    for i, (s, k) in enumerate(zip(sizes, ks)):
-        if k == 0:
-            continue
-        block = _subsets_touching_first_cell(s, k, s // det) if i == lead else _all_subsets(s, k)
-        parts.append(block + offsets[i])
-    combos = parts[0]
-    for block in parts[1:]:
-        combos = np.hstack([np.repeat(combos, len(block), axis=0), np.tile(block, (len(combos), 1))])
-    # Subsets as 0/1 rows of an (m, n) indicator matrix: the translates' bit masks and the energies
-    # are then matrix products (one BLAS call for the quadratic form, not m k^2 gathers).
-    indicator = np.zeros((len(combos), n), dtype=np.int64)
-    np.put_along_axis(indicator, combos, 1, axis=1)
-    bits = np.left_shift(np.int64(1), np.arange(n, dtype=np.int64))
-    masks = (indicator @ bits[perms].T).T  # (D, m): every translate's bits
+    combos, indicator = subsets
+    masks = _translate_masks(indicator, perms)
     primitive = np.all(masks[1:] != masks[0][None, :], axis=0)
     combos, masks, indicator = combos[primitive], masks[:, primitive], indicator[primitive]
     if not len(combos):
@@ -514,12 +651,7 @@ def rank_occupations(
     _, first = np.unique(masks.min(axis=0), return_index=True)
     first.sort()
     combos = combos[first]
-    x = indicator[first].astype(float)
-    d = np.asarray(delta, dtype=float)
-    weighted = 0.5 * d[:, None] * d[None, :] * phi
-    linear = np.zeros(n) if site_energy is None else np.asarray(site_energy, dtype=float)
-    energy = np.einsum("ij,ij->i", x @ weighted, x) + x @ linear
-    energy *= COULOMB_EV_ANGSTROM
+    energy = _occupation_energies(indicator[first], phi, delta, site_energy)
     order = np.lexsort((np.arange(len(combos)), np.round(energy, 9)))
     return PatternRanking(combos[order], energy[order], len(combos), total)
 
@@ -922,7 +1054,7 @@ def _reconstructions(
             top_sites = slice(0, sizes[0])
             const = float((u / delta)[top_sites] @ site_energy[top_sites]) + 0.5 * float(u @ phi @ u)
             site_energy = site_energy + delta * (phi @ u)
-        ranking = rank_occupations(phi, sizes, sp.counts, perms, delta, site_energy, max_patterns)
+        ranking = best_occupation(phi, sizes, sp.counts, perms, delta, site_energy, max_patterns)
         if ranking is None:
             continue
         score = (float(ranking.energy_ev[0]) + const * COULOMB_EV_ANGSTROM) / det - e_uniform * COULOMB_EV_ANGSTROM
