@@ -161,8 +161,15 @@ def supercell_classes(max_det: int, operations: ArrayLike) -> list[tuple[IntArra
     orbit of the group acting on the sigma(det) HNFs of each index.
     """
     ops = np.asarray(operations, dtype=np.int64).reshape(-1, 2, 2)
+    return list(_supercell_classes(int(max_det), ops.tobytes()))
+
+
+@lru_cache(maxsize=256)
+def _supercell_classes(max_det: int, operations: bytes) -> tuple[tuple[IntArray, ...], ...]:
+    """:func:`supercell_classes` of int64 operations given as bytes (cached: every termination of a face asks)."""
+    ops = np.frombuffer(operations, dtype=np.int64).reshape(-1, 2, 2)
     classes: list[tuple[IntArray, ...]] = []
-    for det in range(1, int(max_det) + 1):
+    for det in range(1, max_det + 1):
         seen: set[tuple[int, ...]] = set()
         for h in hnf_matrices(det):
             key = tuple(int(v) for v in h.ravel())
@@ -172,8 +179,11 @@ def supercell_classes(max_det: int, operations: ArrayLike) -> list[tuple[IntArra
             for s in ops:
                 orbit.add(tuple(int(v) for v in canonical_hnf(h @ s).ravel()))
             seen |= orbit
-            classes.append(tuple(np.array(k, dtype=np.int64).reshape(2, 2) for k in sorted(orbit)))
-    return classes
+            members = tuple(np.array(k, dtype=np.int64).reshape(2, 2) for k in sorted(orbit))
+            for m in members:
+                m.flags.writeable = False
+            classes.append(members)
+    return tuple(classes)
 
 
 @dataclass(frozen=True)
