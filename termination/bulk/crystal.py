@@ -345,13 +345,10 @@ def build_crystal(
         raise StructureError(f"the conventional cell holds {len(std_numbers)} atoms; at most {MAX_ATOMS} are accepted")
     std_species = tuple(SYMBOLS[z] for z in std_numbers)
 
-    if (
-        np.array_equal(analysed[0], std_lattice)
-        and np.array_equal(analysed[1], std_positions)
-        and np.array_equal(analysed[2], std_numbers)
-    ):
-        # The input was spglib's standard cell already (a prototype, a standard file): its operations are
-        # those of the dataset in hand, and a second symmetry search (spglib's dearest call) would repeat it.
+    if _same_cell(analysed, (std_lattice, std_positions, std_numbers)):
+        # The input was spglib's standard cell already (a prototype, a standard file), perhaps with its
+        # atoms in another order: its operations are those of the dataset in hand, and a second
+        # symmetry search (spglib's dearest call) would repeat it.
         sym_rotations, sym_translations = dataset.rotations, dataset.translations
     else:
         std_cell = cast("SpgCell", (std_lattice, std_positions, std_numbers.astype(np.intc)))
@@ -396,6 +393,22 @@ def build_crystal(
         symprec=float(symprec),
         origin=origin,
     )
+
+
+def _same_cell(a: tuple[FloatArray, FloatArray, IntArray], b: tuple[FloatArray, FloatArray, IntArray]) -> bool:
+    """Whether two cells are the same lattice (to 1e-12 Å) with the same atoms (to 1e-10 in fractions), in any order."""
+    (lat_a, pos_a, num_a), (lat_b, pos_b, num_b) = a, b
+    if not np.allclose(lat_a, lat_b, rtol=0.0, atol=1e-12) or len(num_a) != len(num_b):
+        return False
+
+    def ordered(pos: FloatArray, num: IntArray) -> tuple[FloatArray, IntArray]:
+        frac = np.round(np.asarray(pos, dtype=float) % 1.0, 10) % 1.0
+        order = np.lexsort((*frac.T[::-1], np.asarray(num)))
+        return frac[order], np.asarray(num)[order]
+
+    fa, na = ordered(pos_a, num_a)
+    fb, nb = ordered(pos_b, num_b)
+    return bool(np.array_equal(na, nb) and np.all(np.abs((fa - fb + 0.5) % 1.0 - 0.5) <= 1e-10))
 
 
 def _standardise(
