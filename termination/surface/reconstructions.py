@@ -576,7 +576,8 @@ def best_occupation(
     combos, indicator = subsets
     energy = _occupation_energies(indicator, phi, delta, site_energy)
     rounded = np.round(energy, 9)
-    while True:  # lowest energy first; among equal ones, the first with the full period
+    rounded[np.isnan(rounded)] = np.inf  # NaN ranks last, as in rank_occupations
+    while True:  # lowest energy first; among equal ones, the first with the full period (distinct > 0: one has)
         tied = np.flatnonzero(rounded == rounded.min())
         masks = _translate_masks(indicator[tied], perms)
         primitive = np.flatnonzero(np.all(masks[1:] != masks[0][None, :], axis=0))
