@@ -617,7 +617,7 @@ class _PolarityProvider:
         self, ft: FaceTerminations, t: Termination, rotations: IntArray, pol: TerminationPolarity
     ) -> list[tuple[str, list[CorrugationPattern]]]:
         """[(cell label, [pattern with its domains superposed]), ...] of the best cells, best first."""
-        full = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, with_reconstructions=True)
+        full = termination_polarity(self.charged, ft, t.id, max_cell=self.max_cell, keep_best=MAX_CELLS_PER_TERMINATION)
         out: list[tuple[str, list[CorrugationPattern]]] = []
         for r in _kept_cells(full.reconstructions):
             try:

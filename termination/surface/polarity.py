@@ -209,6 +209,7 @@ def termination_polarity(
     max_patterns: int = MAX_PATTERNS,
     with_reconstructions: bool = True,
     layers: int = COMPENSATION_LAYERS,
+    keep_best: int | None = None,
 ) -> TerminationPolarity:
     """Layer charges, dipole, Tasker type, compensation and reconstructions of one termination.
 
@@ -234,6 +235,12 @@ def termination_polarity(
     layers : {1, 2}
         Layers (or units) from the top that may give the compensating charge
         (:func:`termination.surface.reconstructions.compensation_layers`).
+    keep_best : int, optional
+        List only the best ``keep_best`` cells that change the top layer
+        alone and the best ``keep_best`` that change two layers (the same
+        cells, in the same order, as at the head of each kind in the full
+        list; the others are ranked but not described, and the note names
+        only the cells listed).
 
     Returns
     -------
@@ -319,7 +326,7 @@ def termination_polarity(
                 if compensation > 0:
                     groups = groups[:1]
                 recs = _reconstructions(
-                    crystal, ft, t.id, compensation, n_cells, groups, fraction_tol, max_patterns, nearest=True
+                    crystal, ft, t.id, compensation, n_cells, groups, fraction_tol, max_patterns, True, keep_best
                 )
                 if recs and not recs[0].exact:
                     note = _nearest_note(recs, compensation, n_cells, sites_kind)

@@ -976,8 +976,15 @@ def _reconstructions(
     fraction_tol: float,
     max_patterns: int,
     nearest: bool = False,
+    keep: int | None = None,
 ) -> tuple[Reconstruction, ...]:
-    """:func:`reconstructions` after its input checks, for the sites ``groups`` (top layer first)."""
+    """:func:`reconstructions` after its input checks, for the sites ``groups`` (top layer first).
+
+    With ``keep``, only the first ``keep`` records that change one layer and
+    the first ``keep`` that change several are made (the others are ranked,
+    not described): the same records, in the same order, as the head of each
+    kind in the full list.
+    """
     mesh = np.asarray(ft.atoms.mesh_inplane, dtype=float)
     mode: Mode = "remove" if f < 0 else "add"
     top = groups[0]
@@ -1034,6 +1041,7 @@ def _reconstructions(
         candidates = [(ci, sp) for ci, (counts, realised) in enumerate(splits) for sp in _split_list(counts, realised)]
         chosen = _nearest(candidates, dq, tol_e, [det for _, det in per_class])
     out = []
+    ranked = []
     cache: dict[int, tuple[IntArray, FloatArray, FloatArray, FloatArray, IntArray]] = {}
     domain_names: dict[int, tuple[str, ...]] = {}
     for ci, sp in chosen:
@@ -1066,15 +1074,23 @@ def _reconstructions(
         if ranking is None:
             continue
         score = (float(ranking.energy_ev[0]) + const * COULOMB_EV_ANGSTROM) / det - e_uniform * COULOMB_EV_ANGSTROM
+        # The order of the records: score (nearest cells: residual charge first), sites, changed, cell.
+        order: tuple[object, ...] = (round(score, 6), sizes[0], int(sum(sp.counts)), _matrix2(hnf))
+        if chosen is not exact:
+            order = (round(abs(residual), 9), *order)
+        ranked.append((order, ci, sp, ranking, residual, score, sizes))
+    ranked.sort(key=lambda item: item[0])  # stable: ties keep the order of ``chosen``
+    made = {False: 0, True: 0}  # records made per kind: one layer changed, several
+    for _, ci, sp, ranking, residual, score, sizes in ranked:
+        several = sum(1 for k in sp.counts if k) > 1
+        if keep is not None and made[several] >= keep:
+            continue
+        made[several] += 1
+        hnf, det = cache[ci][0], per_class[ci][1]
         geometry = _Geometry(hnf, det, mesh, groups, bases, base_depths, sizes, shift_inplane)
         if ci not in domain_names:
             domain_names[ci] = tuple(d.name for d in cell_domains(hnf, rotations, mesh, _base_name(det, hnf, mesh)))
-        domains = domain_names[ci]
-        out.append(_record(ft, geometry, sp, ranking, mode, residual, score, domains))
-    if chosen is exact:
-        out.sort(key=lambda r: (round(r.score, 6), r.sites, r.changed, r.hnf))
-    else:
-        out.sort(key=lambda r: (round(abs(r.residual_charge), 9), round(r.score, 6), r.sites, r.changed, r.hnf))
+        out.append(_record(ft, geometry, sp, ranking, mode, residual, score, domain_names[ci]))
     return tuple(out)
 
 

@@ -95,3 +95,36 @@ def test_best_occupation_refuses_what_the_full_ranking_refuses():
     perms = translation_permutations(hnf, 1)
     phi = ewald_pair_matrix(cell, pos)
     assert best_occupation(phi, (4,), (2,), perms, np.ones(4)) is None
+
+
+@pytest.mark.parametrize(
+    "spec, hkl",
+    [
+        ("rocksalt:Na,Cl", (1, 1, 1)),  # octopolar (111): Wolf, Phys. Rev. Lett. 68, 3315 (1992)
+        ("perovskite:Sr,Ti,O", (1, 1, 0)),  # SrTiO3 (110): alternating +4/-4 layers (common practice)
+        ("zincblende:Ga,As", (1, 1, 1)),
+    ],
+)
+@pytest.mark.parametrize("keep", [1, 4])
+def test_keeping_the_best_cells_gives_the_head_of_each_kind(spec, hkl, keep):
+    # match asks for the best few cells of each kind only; they must be exactly those the full list starts with.
+    from termination.bulk.charges import with_formal_charges
+    from termination.structures import build_prototype
+    from termination.surface.polarity import termination_polarity
+    from termination.surface.terminations import face_terminations
+
+    crystal, _ = with_formal_charges(build_prototype(spec), None)
+    ft = face_terminations(crystal, hkl)
+    polar = 0
+    for t in ft.terminations:
+        full = termination_polarity(crystal, ft, t.id).reconstructions
+        kept = termination_polarity(crystal, ft, t.id, keep_best=keep).reconstructions
+        polar += bool(full)
+        for several in (False, True):
+            head = [r for r in full if (sum(1 for k in r.layer_changed if k) > 1) == several][:keep]
+            got = [r for r in kept if (sum(1 for k in r.layer_changed if k) > 1) == several]
+            assert [(r.name, r.layer_changed, r.score, r.changed_inplane.tolist()) for r in got] == [
+                (r.name, r.layer_changed, r.score, r.changed_inplane.tolist()) for r in head
+            ]
+        assert len(kept) <= 2 * keep
+    assert polar  # the face is polar: some termination has cells to keep
