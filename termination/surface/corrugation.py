@@ -1286,16 +1286,20 @@ def superpose_domains(
     (('(2×1)', '(1×2)'), 7.68, 7.68)
     """
     domains, spot_sets = pattern_domains(pattern, matrix, operations, mesh_inplane)
-    union: dict[tuple[float, float], Spot] = {}
+    intensity = [s.intensity for s in pattern.spots]
+    # Per spot position: the (h, k) and spot index of its brightest domain (the first of equals), and
+    # how many domains show it.  One Spot per position is made at the end.
+    union: dict[tuple[float, float], tuple[tuple[float, float], int]] = {}
     counts: dict[tuple[float, float], int] = {}
     for turned in spot_sets:
-        for (h, k), spot in zip(turned.tolist(), pattern.spots):
+        for i, (h, k) in enumerate(turned.tolist()):
             key = (round(h, _DECIMALS) + 0.0, round(k, _DECIMALS) + 0.0)
             counts[key] = counts.get(key, 0) + 1
-            if key not in union or spot.intensity > union[key].intensity:
-                union[key] = Spot((h, k), spot.length, spot.intensity)
+            held = union.get(key)
+            if held is None or intensity[i] > intensity[held[1]]:
+                union[key] = ((h, k), i)
     merged = sorted(
-        (Spot(s.g, s.length, s.intensity, counts[k]) for k, s in union.items()),
+        (Spot(g, pattern.spots[i].length, intensity[i], counts[key]) for key, (g, i) in union.items()),
         key=lambda s: (round(s.length, 9), s.g[0], s.g[1]),
     )
     det = abs(round(float(np.linalg.det(np.asarray(matrix, dtype=float)))))
