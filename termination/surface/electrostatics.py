@@ -131,19 +131,20 @@ def ewald_slab_matrix(
         alpha = float(np.sqrt(np.pi / area))
     rc = cutoff_erfc / alpha
     gc = 2.0 * alpha * cutoff_erfc
-    recip = np.linalg.inv(cell).T  # rows b_i with a_i . b_j = delta_ij
+    inverse = np.linalg.inv(cell)
+    recip = inverse.T  # rows b_i with a_i . b_j = delta_ij
     diff = src[None, :, :] - tgt[:, None, :]  # (n, m, 3): r_j - r_i
     z = diff[..., 2]
     # Every image is summed, so the in-plane separation may be taken modulo the cell: this keeps the
     # real-space search radius small however far the sources drift (a slab's stacking shift).
-    rho = diff[..., :2] - np.floor(diff[..., :2] @ np.linalg.inv(cell) + 0.5) @ cell
-    same = (np.linalg.norm(rho, axis=-1) < _SAME_SITE_ANGSTROM) & (np.abs(z) < _SAME_SITE_ANGSTROM)
+    rho = diff[..., :2] - np.floor(diff[..., :2] @ inverse + 0.5) @ cell
+    rho_len = _lengths(rho)
+    same = (rho_len < _SAME_SITE_ANGSTROM) & (np.abs(z) < _SAME_SITE_ANGSTROM)
     # Real space: every image within rc of a target (in-plane distances bound the 3D ones).
-    span = np.max(np.linalg.norm(rho, axis=-1), initial=0.0)
-    nr = np.ceil((rc + span) * np.linalg.norm(recip, axis=1)).astype(int) + 1
-    i, j = np.meshgrid(np.arange(-nr[0], nr[0] + 1), np.arange(-nr[1], nr[1] + 1), indexing="ij")
-    lat = np.stack([i.ravel(), j.ravel()], axis=1) @ cell
-    lat = lat[np.linalg.norm(lat, axis=1) <= rc + span]
+    span = np.max(rho_len, initial=0.0)
+    nr = np.ceil((rc + span) * _lengths(recip)).astype(int) + 1
+    lat = _grid(-nr[0], nr[0], -nr[1], nr[1]) @ cell
+    lat = lat[_lengths(lat) <= rc + span]
     phi = np.zeros(z.shape)
     out = phi.reshape(-1)
     # Pairs farther apart along the normal than rc have no real-space term.
@@ -161,11 +162,11 @@ def ewald_slab_matrix(
         term[inside] = erfc(alpha * d_in) / d_in
         out[near[s : s + chunk]] = term.sum(axis=1)
     # Reciprocal space.  The terms are even in G: one of each pair +-G, counted twice.
-    ng = np.ceil(gc / (2 * np.pi) * np.linalg.norm(cell, axis=1)).astype(int) + 1
-    i, j = np.meshgrid(np.arange(0, ng[0] + 1), np.arange(-ng[1], ng[1] + 1), indexing="ij")
-    half = (i > 0) | ((i == 0) & (j > 0))
-    g = 2 * np.pi * (np.stack([i[half], j[half]], axis=1) @ recip)
-    gn = np.linalg.norm(g, axis=1)
+    ng = np.ceil(gc / (2 * np.pi) * _lengths(cell)).astype(int) + 1
+    ij = _grid(0, ng[0], -ng[1], ng[1])
+    half = (ij[:, 0] > 0) | ((ij[:, 0] == 0) & (ij[:, 1] > 0))
+    g = 2 * np.pi * (ij[half] @ recip)
+    gn = _lengths(g)
     keep = (gn > ZERO_EPS) & (gn <= gc)
     g, gn = g[keep], gn[keep]
     if len(gn):
@@ -187,6 +188,19 @@ def ewald_slab_matrix(
     phi -= (2 * np.pi / area) * sheet
     phi[same] -= 2 * alpha / np.sqrt(np.pi)
     return cast(FloatArray, phi)
+
+
+def _lengths(v: FloatArray) -> FloatArray:
+    """Euclidean lengths along the last axis: sqrt(sum v^2), what ``np.linalg.norm(v, axis=-1)`` computes."""
+    out: FloatArray = np.sqrt(np.add.reduce(v * v, axis=-1))
+    return out
+
+
+def _grid(i0: int, i1: int, j0: int, j1: int) -> FloatArray:
+    """(K, 2) integer pairs (i, j), i0 <= i <= i1 and j0 <= j <= j1, i slowest (``meshgrid`` "ij" order), as floats."""
+    i = np.repeat(np.arange(i0, i1 + 1), j1 - j0 + 1)
+    j = np.tile(np.arange(j0, j1 + 1), i1 - i0 + 1)
+    return np.stack([i, j], axis=1).astype(float)
 
 
 def ewald_bulk_potential(
