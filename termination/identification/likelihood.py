@@ -55,7 +55,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar, TypedDict, Unpack
 
 import numpy as np
@@ -391,6 +391,40 @@ def _score_one(c: Candidate, eff: EffectiveMeasurement, model: MatchModel) -> _S
     return _Scored(loglik, terms, fractions, best_class, lat[best_class][1], lat[best_class][2], [])
 
 
+class _Scorer:
+    """:func:`_score_one` for one measurement and model, remembered per prediction.
+
+    A candidate's score depends on its tilts, lattices, periods and steps
+    only (and the log prior, which is copied in): the cell search scores the
+    candidates of a table, and the ranking scores them again after their
+    priors are renormalised.  The key is exactly those inputs, so a repeat
+    gives the result the computation would.
+    """
+
+    def __init__(self, eff: EffectiveMeasurement, model: MatchModel) -> None:
+        self.eff = eff
+        self.model = model
+        self.memo: dict[tuple[object, ...], _Scored] = {}
+
+    def __call__(self, c: Candidate) -> _Scored:
+        key = (
+            c.tilts,
+            len(c.classes),
+            c.lattices,
+            c.periods,
+            c.step_heights,
+            c.step_lower,
+            c.step_upper,
+            c.step_factors,
+        )
+        held = self.memo.get(key)
+        if held is None:
+            held = self.memo[key] = _score_one(c, self.eff, self.model)
+        if held.terms.log_prior == c.log_prior:
+            return held
+        return replace(held, terms=replace(held.terms, log_prior=c.log_prior))
+
+
 # --------------------------------------------------------------------------- rows
 
 
@@ -529,6 +563,11 @@ def score(table: CandidateTable, measurement: Measurement, top: int | None = Non
         per-criterion predictions, residuals and log-likelihood terms; the fit
         check of the best; the verdict and what decided it.
     """
+    return _score(table, measurement, top, None)
+
+
+def _score(table: CandidateTable, measurement: Measurement, top: int | None, scorer: _Scorer | None) -> MatchReport:
+    """:func:`score`, reusing the scores ``scorer`` (made for ``measurement``) already holds."""
     if not isinstance(measurement, Measurement):
         raise MeasurementError("measurement must be a Measurement")
     if top is not None and (int(top) != top or top < 1):
@@ -540,7 +579,9 @@ def score(table: CandidateTable, measurement: Measurement, top: int | None = Non
     if eff["tilt"] is not None and table.mount is None:
         raise MeasurementError("a tilt needs the mount face: give --mount H K L")
     cands = table.candidates
-    scored = [_score_one(c, eff, model) for c in cands]
+    if scorer is None or scorer.model != model:
+        scorer = _Scorer(eff, model)
+    scored = [scorer(c) for c in cands]
     loglik = np.array([s.loglik for s in scored])
     post = loglik + np.array([c.log_prior for c in cands])
     if not np.any(np.isfinite(post)):
@@ -618,9 +659,11 @@ def match(
         opts["visibility"] = measurement_visibility(measurement)
     if measurement.cells and not opts.get("cells"):
         opts["cells"] = measurement.cells
-    opts.setdefault("select_cells", cells_in_contention(measurement, opts.get("model") or MatchModel()))
+    model = opts.get("model") or MatchModel()
+    scorer = _Scorer(effective_measurement(measurement, model), model)
+    opts.setdefault("select_cells", _cells_in_contention(measurement, model, scorer))
     table = candidate_table(crystal, **opts)
-    return score(table, measurement, top=top)
+    return _score(table, measurement, top, scorer)
 
 
 #: A termination whose best conceivable reconstruction cell would still trail the best candidate by
@@ -668,7 +711,13 @@ def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSele
     The ranking is the same as with every cell built, up to candidates
     e^-25 times less probable than the best.
     """
+    return _cells_in_contention(measurement, model, None)
+
+
+def _cells_in_contention(measurement: Measurement, model: MatchModel, scorer: _Scorer | None) -> CellSelector:
+    """:func:`cells_in_contention`, scoring through ``scorer`` (made for ``measurement`` and ``model``)."""
     eff = effective_measurement(measurement, model)
+    score_one = scorer if scorer is not None else _Scorer(eff, model)
     lattice_max = lattice_log_likelihood_max(eff, model)
     r = model.reconstructed_share
     cell_share = 0.0 if model.flat_prior else math.log(r) - math.log1p(-r)
@@ -679,7 +728,7 @@ def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSele
     def select(candidates: tuple[Candidate, ...], build: CellBuilder) -> None:
         if not candidates:
             return
-        scored = [_score_one(c, eff, model) for c in candidates]
+        scored = [score_one(c) for c in candidates]
         best = max(prior(c) + sc.loglik for c, sc in zip(candidates, scored))
         bounds = [
             (prior(c) + cell_share + (sc.terms.tilt or 0.0) + (sc.terms.steps or 0.0) + lattice_max, i)
@@ -693,7 +742,7 @@ def cells_in_contention(measurement: Measurement, model: MatchModel) -> CellSele
             cells = build(c.hkl, c.termination.id)
             if bound > best:  # only then can one of these cells raise the best: score them
                 for cell in cells:
-                    best = max(best, prior(cell) + _score_one(cell, eff, model).loglik)
+                    best = max(best, prior(cell) + score_one(cell).loglik)
 
     return select
 

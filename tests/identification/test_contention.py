@@ -117,3 +117,31 @@ def test_flat_prior_keeps_the_ranking_with_lazy_cells(spinel):
         (r.hkl, r.label, r.cell, round(r.probability, 9)) for r in want.candidates if r.probability > 1e-9 * p0
     ]
     assert math.isclose(sum(r.probability for r in want.candidates), 1.0)
+
+
+def test_scores_remembered_across_the_cell_search_equal_fresh_ones(spinel):
+    # match scores each prediction once (the cell search and the ranking share the scores, the priors
+    # copied in); ranking the same table afresh gives the same rows to the last bit.
+    from termination.identification.likelihood import score
+
+    model = MatchModel()
+    table = candidate_table(
+        spinel,
+        (1, 0, 0),
+        2,
+        visibility=measurement_visibility(DOUBLED),
+        model=model,
+        select_cells=cells_in_contention(DOUBLED, model),
+    )
+    fresh = score(table, DOUBLED)
+    shared = match(spinel, DOUBLED, max_index=2)
+    assert len(fresh.candidates) == len(shared.candidates) > 20
+    for a, b in zip(fresh.candidates, shared.candidates):
+        assert (a.hkl, a.label, a.cell, a.probability, a.log_likelihood, a.terms) == (
+            b.hkl,
+            b.label,
+            b.cell,
+            b.probability,
+            b.log_likelihood,
+            b.terms,
+        )
